@@ -1,0 +1,24 @@
+namespace Strayspot.Scoring.Logits;
+
+/// <summary>
+/// Input the scoring library refuses. <see cref="Code"/> is stable: the service maps it to a
+/// problem+json error code and the command line prints it, so never rename an existing one.
+/// </summary>
+public sealed class ScoringInputException : ArgumentException
+{
+    public ScoringInputException(string code, string message) : base(message) => Code = code;
+
+    public string Code { get; }
+}
+
+/// <summary>The stable codes of <see cref="ScoringInputException"/>.</summary>
+public static class ScoringErrorCodes
+{
+    public const string LogitsShape = "logits-shape";
+    public const string LogitsNonFinite = "logits-non-finite";
+    public const string FrameSize = "frame-size";
+    public const string NpyFormat = "npy-format";
+    public const string StatisticsMismatch = "statistics-mismatch";
+    public const string StatisticsFormat = "statistics-format";
+    public const string Options = "options-invalid";
+}

@@ -1,0 +1,6 @@
+namespace Strayspot.Bench;
+
+public static class Program
+{
+    public static int Main(string[] args) => 0;
+}
