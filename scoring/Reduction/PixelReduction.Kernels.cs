@@ -91,9 +91,26 @@ public sealed unsafe partial class PixelReduction
         float* w0 = Ptr(xs.Weight0), w1 = Ptr(xs.Weight1);
         if (Avx2.IsSupported && lanes == Vector256<float>.Count)
         {
+            int* window = (int*)Ptr(xs.WindowStart), rel0 = (int*)Ptr(xs.Relative0), rel1 = (int*)Ptr(xs.Relative1);
             for (int b = 0; b < tileBlocks; b++)
             {
                 int x = (tile + b) * lanes;
+                int start = window[tile + b];
+                if (start >= 0)
+                {
+                    var p0 = Vector256.Load(rel0 + x);
+                    var p1 = Vector256.Load(rel1 + x);
+                    var v0 = Vector256.Load(w0 + x);
+                    var v1 = Vector256.Load(w1 + x);
+                    float* dw = dst + (nint)b * c * lanes;
+                    float* sw = src + start;
+                    for (int ch = 0; ch < c; ch++, sw += plane, dw += lanes)
+                    {
+                        var v = Vector256.Load(sw);
+                        (Avx2.PermuteVar8x32(v, p0) * v0 + Avx2.PermuteVar8x32(v, p1) * v1).Store(dw);
+                    }
+                    continue;
+                }
                 var idx0 = Vector256.Load(i0 + x);
                 var idx1 = Vector256.Load(i1 + x);
                 var wt0 = Vector256.Load(w0 + x);
@@ -151,11 +168,11 @@ public sealed unsafe partial class PixelReduction
         {
             var va = new Vector<float>(wa);
             var vb = new Vector<float>(wb);
-            max = Vector.Load(a) * va + Vector.Load(b) * vb;
+            max = Vector.FusedMultiplyAdd(Vector.Load(a), va, Vector.Load(b) * vb);
             if (keep) max.Store(vals);
             for (int c = 1; c < classes; c++)
             {
-                var v = Vector.Load(a + c * classStride) * va + Vector.Load(b + c * classStride) * vb;
+                var v = Vector.FusedMultiplyAdd(Vector.Load(a + c * classStride), va, Vector.Load(b + c * classStride) * vb);
                 index += one;
                 best = Vector.ConditionalSelect(Vector.GreaterThan(v, max), index, best);
                 max = Vector.Max(max, v);

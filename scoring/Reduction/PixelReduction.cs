@@ -41,6 +41,16 @@ public sealed unsafe partial class PixelReduction
     public ReductionOutputs Outputs { get; }
     public double EnergyTemperature { get; }
 
+    /// <summary>Upper bound on threads per frame (−1: the runtime decides); the host sets it from configuration.</summary>
+    public int MaxDegreeOfParallelism
+    {
+        get => _parallel.MaxDegreeOfParallelism;
+        init => _parallel = new ParallelOptions { MaxDegreeOfParallelism = value is -1 or > 0 ? value
+            : throw new ScoringInputException(ScoringErrorCodes.Options, $"MaxDegreeOfParallelism must be −1 or positive; got {value}.") };
+    }
+
+    private readonly ParallelOptions _parallel = new();
+
     public void Reduce(LogitsView logits, int frameHeight, int frameWidth, ReducedMaps into)
     {
         ArgumentNullException.ThrowIfNull(into);
@@ -63,7 +73,10 @@ public sealed unsafe partial class PixelReduction
         {
             int blocks = (frameWidth + Lanes - 1) / Lanes;
             if (_xs is null || _xs.InLength != logits.Width || _xs.OutLength != frameWidth)
+            {
                 _xs = ResampleAxis.Create(logits.Width, frameWidth, blocks * Lanes);
+                _xs.BuildWindows(Lanes);
+            }
             if (_ys is null || _ys.InLength != logits.Height || _ys.OutLength != frameHeight)
                 _ys = ResampleAxis.Create(logits.Height, frameHeight, frameHeight);
             job.Xs = _xs;
@@ -71,7 +84,9 @@ public sealed unsafe partial class PixelReduction
         }
 
         // More bands than cores balances load when other work shares the machine; each band re-reads at most two source rows.
-        int bands = Math.Clamp(frameHeight / 8, 1, Environment.ProcessorCount * 4);
+        int threads = MaxDegreeOfParallelism > 0 ? Math.Min(MaxDegreeOfParallelism, Environment.ProcessorCount) : Environment.ProcessorCount;
+        int bands = Math.Clamp(frameHeight / 8, 1, threads * 4);
+        if (threads == 1) bands = 1;
         if (bands == 1)
         {
             var worker = Rent(job);
@@ -79,7 +94,7 @@ public sealed unsafe partial class PixelReduction
             _workers.Push(worker);
             return;
         }
-        Parallel.For(0, bands,
+        Parallel.For(0, bands, _parallel,
             () => Rent(job),
             (band, _, worker) => { job.RunBand(band, bands, worker, identity); return worker; },
             worker => _workers.Push(worker));

@@ -28,7 +28,41 @@ internal sealed class ResampleAxis
     public float[] Weight0 { get; }
     public float[] Weight1 { get; }
 
-    /// <param name="paddedLength">At least <paramref name="outLength"/>; positions beyond it repeat sample 0 with weight 0
+    /// <summary>
+    /// For blocks of <c>lanes</c> outputs whose taps all fall in one window of <c>lanes</c> consecutive source samples
+    /// (any upsampling): the window start, and the taps relative to it, so one contiguous load plus a lane permute
+    /// replaces a gather. <see cref="WindowStart"/> is −1 for a block that needs a gather.
+    /// </summary>
+    public int[] WindowStart { get; private set; } = [];
+    public int[] Relative0 { get; private set; } = [];
+    public int[] Relative1 { get; private set; } = [];
+
+    public void BuildWindows(int lanes)
+    {
+        int blocks = Index0.Length / lanes;
+        WindowStart = GC.AllocateUninitializedArray<int>(blocks, pinned: true);
+        Relative0 = GC.AllocateUninitializedArray<int>(blocks * lanes, pinned: true);
+        Relative1 = GC.AllocateUninitializedArray<int>(blocks * lanes, pinned: true);
+        for (int b = 0; b < blocks; b++)
+        {
+            int lo = int.MaxValue, hi = int.MinValue;
+            for (int l = b * lanes; l < (b + 1) * lanes; l++)
+            {
+                lo = Math.Min(lo, Math.Min(Index0[l], Index1[l]));
+                hi = Math.Max(hi, Math.Max(Index0[l], Index1[l]));
+            }
+            int start = Math.Min(lo, InLength - lanes);
+            bool fits = InLength >= lanes && hi - start < lanes;
+            WindowStart[b] = fits ? start : -1;
+            for (int l = b * lanes; l < (b + 1) * lanes; l++)
+            {
+                Relative0[l] = fits ? Index0[l] - start : 0;
+                Relative1[l] = fits ? Index1[l] - start : 0;
+            }
+        }
+    }
+
+    /// <param name="paddedLength">At least <paramref name="outLength"/>; positions beyond it repeat the last sample
     /// so vector code may read whole blocks.</param>
     public static ResampleAxis Create(int inLength, int outLength, int paddedLength)
     {
@@ -51,8 +85,8 @@ internal sealed class ResampleAxis
         }
         for (int i = outLength; i < axis.Index0.Length; i++)
         {
-            axis.Index0[i] = 0;
-            axis.Index1[i] = 0;
+            axis.Index0[i] = axis.Index0[outLength - 1];
+            axis.Index1[i] = axis.Index0[outLength - 1];
             axis.Weight0[i] = 1f;
             axis.Weight1[i] = 0f;
         }
