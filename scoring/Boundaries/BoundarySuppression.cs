@@ -26,7 +26,7 @@ public sealed class BoundarySuppression
     /// <summary>Distances are exact up to this value and clamped to it: no round asks about a larger one.</summary>
     private readonly int _cap;
     private byte[] _distance = [];
-    private float[] _next = [];
+    private byte[] _rowMin = [];
     private float[][] _bandRows = [];
 
     public BoundarySuppression(BoundarySuppressionOptions options)
@@ -53,7 +53,8 @@ public sealed class BoundarySuppression
         if (!_options.Enabled) return;
 
         int n = width * height;
-        if (_distance.Length < n) { _distance = new byte[n]; _next = new float[n]; }
+        if (_distance.Length < n) _distance = new byte[n];
+        if (_rowMin.Length < height) _rowMin = new byte[height];
         int bands = FrameBands.BandCount(width, height);
         if (_bandRows.Length < bands || (_bandRows.Length > 0 && _bandRows[0].Length < RowScratch(width)))
         {
@@ -64,44 +65,46 @@ public sealed class BoundarySuppression
         fixed (float* scorePtr = score)
         fixed (ushort* classPtr = classIndex)
         fixed (byte* distPtr = _distance)
-        fixed (float* nextPtr = _next)
+        fixed (byte* rowMinPtr = _rowMin)
         {
-            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands)) return;
+            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands, rowMinPtr)) return;
 
-            nint src = (nint)scorePtr, dst = (nint)nextPtr, dist = (nint)distPtr;
+            // In place is still a synchronous update: a boundary pixel reads only non-boundary pixels, and
+            // those do not change during the round. Bands may therefore write their rows while others read them.
+            nint values = (nint)scorePtr, dist = (nint)distPtr, rowMin = (nint)rowMinPtr;
+            float[][] rows = _bandRows;
             for (int i = 0; i < _options.Iterations; i++)
             {
                 int threshold = _options.WidthAt(i) - 1;
-                nint s = src, d = dst;
-                float[][] rows = _bandRows;
                 FrameBands.For(bands, height, (b, y0, y1) =>
                 {
                     fixed (float* r = rows[b])
-                        Round((float*)s, (float*)d, (byte*)dist, width, height, threshold, y0, y1, r);
+                        Round((float*)values, (byte*)dist, (byte*)rowMin, width, height, threshold, y0, y1, r);
                 });
-                (src, dst) = (dst, src);
             }
-            if (src != (nint)scorePtr)
-                new ReadOnlySpan<float>((void*)src, n).CopyTo(score);
         }
     }
 
     /// <summary>Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros.</summary>
     private static int RowScratch(int width) => 9 * width;
 
-    private static unsafe void Round(float* src, float* dst, byte* dist, int w, int h, int threshold,
+    private static unsafe void Round(float* values, byte* dist, byte* rowMin, int w, int h, int threshold,
         int y0, int y1, float* rows)
     {
         float* masked = rows, count = rows + w, zero = rows + 8 * w;
         new Span<float>(zero, w).Clear();
         Vector256<int> thr = Vector256.Create(threshold);
+        // Which frame row each ring slot holds (rows are prepared only around rows that have boundary pixels).
+        int* slotRow = stackalloc int[3] { -1, -1, -1 };
 
         float* SumRow(int y) => y < 0 || y >= h ? zero : rows + (2 + y % 3) * w;
         float* CountRow(int y) => y < 0 || y >= h ? zero : rows + (5 + y % 3) * w;
 
         void Prepare(int y)
         {
-            float* v = src + (long)y * w;
+            if (y < 0 || y >= h || slotRow[y % 3] == y) return;
+            slotRow[y % 3] = y;
+            float* v = values + (long)y * w;
             byte* d = dist + (long)y * w;
             float* hs = rows + (2 + y % 3) * w, hc = rows + (5 + y % 3) * w;
             Vector256<float> one = Vector256<float>.One;
@@ -122,27 +125,30 @@ public sealed class BoundarySuppression
             HorizontalSum3(count, hc, w);
         }
 
-        Prepare(Math.Max(y0 - 1, 0));
-        if (y0 > 0) Prepare(y0);
         for (int y = y0; y < y1; y++)
         {
-            if (y + 1 < h) Prepare(y + 1);
+            if (rowMin[y] > threshold) continue; // no boundary pixel in this row: nothing changes
+            Prepare(y - 1);
+            Prepare(y);
+            Prepare(y + 1);
             float* sa = SumRow(y - 1), sb = SumRow(y), sc = SumRow(y + 1);
             float* ca = CountRow(y - 1), cb = CountRow(y), cc = CountRow(y + 1);
-            float* v = src + (long)y * w, o = dst + (long)y * w;
+            float* v = values + (long)y * w;
             byte* d = dist + (long)y * w;
             int x = 0;
             for (; x <= w - 8; x += 8)
             {
+                var boundary = ~NonBoundaryMask(d + x, thr);
+                if (boundary == Vector256<float>.Zero) continue;
                 var sum = Vector256.Load(sa + x) + Vector256.Load(sb + x) + Vector256.Load(sc + x);
                 var cnt = Vector256.Load(ca + x) + Vector256.Load(cb + x) + Vector256.Load(cc + x);
-                var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & ~NonBoundaryMask(d + x, thr);
-                Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + x)), o + x);
+                var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & boundary;
+                Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + x)), v + x);
             }
             for (; x < w; x++)
             {
                 float cnt = ca[x] + cb[x] + cc[x];
-                o[x] = d[x] <= threshold && cnt > 0 ? (sa[x] + sb[x] + sc[x]) / cnt : v[x];
+                if (d[x] <= threshold && cnt > 0) v[x] = (sa[x] + sb[x] + sc[x]) / cnt;
             }
         }
     }

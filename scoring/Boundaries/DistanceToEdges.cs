@@ -1,3 +1,4 @@
+using System.Numerics.Tensors;
 using System.Runtime.Intrinsics;
 
 namespace Strayspot.Scoring.Boundaries;
@@ -15,8 +16,9 @@ internal static class DistanceToEdges
     /// <summary>
     /// Fills <paramref name="dist"/> (w·h bytes) with min(distance, <paramref name="cap"/>); cap must be 1..64.
     /// Returns false, leaving the map at <paramref name="cap"/> everywhere, when the frame has no edge at all.
+    /// When <paramref name="rowMin"/> is given it receives each row's smallest distance (lets rounds skip rows).
     /// </summary>
-    public static unsafe bool Compute(ushort* cls, byte* dist, int w, int h, int cap, int bands)
+    public static unsafe bool Compute(ushort* cls, byte* dist, int w, int h, int cap, int bands, byte* rowMin = null)
     {
         int anyEdge = 0;
         nint c = (nint)cls, d = (nint)dist;
@@ -41,6 +43,7 @@ internal static class DistanceToEdges
             byte* row = dist + (long)y * w;
             if (y < h - 1) MinWithNeighbourRow(row, row + w, w);
             ScanFromRight(row, w, cap);
+            if (rowMin != null) rowMin[y] = TensorPrimitives.Min(new ReadOnlySpan<byte>(row, w));
         }
         return true;
     }
