@@ -19,7 +19,17 @@ public static class CliApp
         return root;
     }
 
-    public static int Run(string[] args) => Build().Parse(args).Invoke();
+    public static int Run(string[] args)
+    {
+        var parsed = Build().Parse(args);
+        // Usage errors are bad input too: exit 2, like every other refusal.
+        if (parsed.Errors.Count > 0 && parsed.Action is not System.CommandLine.Help.HelpAction)
+        {
+            foreach (var error in parsed.Errors) Console.Error.WriteLine($"error [usage]: {error.Message}");
+            return ExitBadInput;
+        }
+        return parsed.Invoke();
+    }
 
     /// <summary>Runs a verb body, turning refused input into a message and exit code 2 instead of a stack trace.</summary>
     public static int Guard(Func<int> body)
