@@ -57,20 +57,20 @@ public sealed class FrameDecoder
 
     public DecodedFrame Decode(ReadOnlyMemory<byte> bytes, string source = "frame")
     {
-        using var stream = new MemoryStream(bytes.ToArray(), writable: false);
+        using var stream = new MemoryStream(bytes.ToArray(), 0, bytes.Length, writable: false, publiclyVisible: true);
         return Decode(stream, source);
     }
 
     public DecodedFrame Decode(Stream stream, string source = "frame")
     {
-        if (!stream.CanSeek)
+        if (stream is not MemoryStream memory || !memory.TryGetBuffer(out _))
         {
-            // Identify and Load both read from the start: copy a one-way stream once.
-            var buffered = new MemoryStream();
-            stream.CopyTo(buffered);
-            buffered.Position = 0;
-            stream = buffered;
+            // Identify, the JPEG end check and Load all read from the start: hold the bytes once.
+            memory = new MemoryStream();
+            stream.CopyTo(memory);
+            memory.Position = 0;
         }
+        stream = memory;
         long start = stream.Position;
         if (stream.Length - start == 0)
             throw new ModelException(ModelErrorCodes.FrameFormat, $"{source} is empty (0 bytes).");
@@ -97,6 +97,8 @@ public sealed class FrameDecoder
                 $"{source} is {info.Width}×{info.Height} = {pixels} pixels; the limit is {_options.MaxPixels}.");
 
         stream.Position = start;
+        if (format.Name == "JPEG" && memory.TryGetBuffer(out var all))
+            EnsureJpegComplete(all.AsSpan((int)start), source);
         Image<Rgb24> image;
         try
         {
@@ -119,13 +121,20 @@ public sealed class FrameDecoder
         return new DecodedFrame(image, format.Name);
     }
 
+    private static void EnsureJpegComplete(ReadOnlySpan<byte> bytes, string source)
+    {
+        if (!JpegStructure.ReachesEndOfImage(bytes))
+            throw new ModelException(ModelErrorCodes.FrameCorrupt,
+                $"{source} is a truncated or damaged JPEG: its data ends before the end-of-image marker.");
+    }
+
     private string AcceptedFormats => _options.AllowBmpAndTiff ? "PNG, JPEG, WebP, BMP or TIFF" : "PNG, JPEG or WebP";
 
     private static bool IsDecodeFailure(Exception e) =>
         e is ImageFormatException or InvalidMemoryOperationException or EndOfStreamException
             or IndexOutOfRangeException or ArgumentException or NotSupportedException or InvalidOperationException;
 
-    private ModelException Map(Exception e, string source) => e switch
+    private ModelException Map(Exception e, string source) => Innermost(e) switch
     {
         UnknownImageFormatException => new ModelException(ModelErrorCodes.FrameFormat,
             $"{source} is not a {AcceptedFormats} image: {e.Message}", e),
@@ -133,4 +142,12 @@ public sealed class FrameDecoder
             $"{source} needs more memory to decode than the {_options.AllocationLimitMegabytes} MB allowed: {e.Message}", e),
         _ => new ModelException(ModelErrorCodes.FrameCorrupt, $"{source} is damaged or truncated: {e.Message}", e),
     };
+
+    // Decoders wrap an allocation refusal in a content error; the cause decides the code.
+    private static Exception Innermost(Exception e)
+    {
+        for (var x = e; x is not null; x = x.InnerException)
+            if (x is InvalidMemoryOperationException or UnknownImageFormatException) return x;
+        return e;
+    }
 }
