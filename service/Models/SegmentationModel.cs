@@ -117,7 +117,8 @@ public sealed class SegmentationModel : IDisposable
                 $"Input '{d.Input.Tensor}' must have rank 4 (one image); it has shape {ModelInspector.FormatShape(input)}.");
         bool nhwc = d.Input.Layout == "nhwc";
         int channelDim = nhwc ? dims[3] : dims[1];
-        if (channelDim > 0 && channelDim != 3)
+        int otherChannelDim = nhwc ? dims[1] : dims[3];
+        if ((channelDim > 0 && channelDim != 3) || (channelDim <= 0 && otherChannelDim == 3))
             throw new ModelException(ModelErrorCodes.DescriptorInvalid,
                 $"input.layout: '{d.Input.Layout}' puts channels at axis {(nhwc ? 3 : 1)}, but the model's input {ModelInspector.FormatShape(input)} has {channelDim} there.");
         int h = nhwc ? dims[1] : dims[2], w = nhwc ? dims[2] : dims[3];
