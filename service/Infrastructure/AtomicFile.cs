@@ -8,6 +8,7 @@ public static class AtomicFile
     public static void Write(string path, Action<Stream> write)
     {
         string full = Path.GetFullPath(path);
+        Directory.CreateDirectory(Path.GetDirectoryName(full)!);
         string temp = Path.Combine(Path.GetDirectoryName(full)!, $".{Path.GetFileName(full)}.{Guid.NewGuid():N}.tmp");
         try
         {

@@ -3,23 +3,21 @@ using SixLabors.ImageSharp.PixelFormats;
 namespace Strayspot.Service.Rendering;
 
 /// <summary>
-/// Our own colours, computed rather than copied: class colours spread by the golden angle in OKLCH,
+/// Our own colours, computed rather than copied: class colours from the descriptor or generated,
 /// and a heat scale whose OKLab lightness rises linearly, so equal score steps look like equal steps.
 /// </summary>
 public static class ColorScales
 {
-    private const double GoldenAngleDegrees = 137.50776405003785;
-
-    /// <summary>Distinct colours for <paramref name="count"/> classes, deterministic.</summary>
-    public static Rgb24[] ClassColors(int count)
+    /// <summary>Display colours of a model's classes: the descriptor's where given, else generated ones.</summary>
+    public static Rgb24[] ClassColors(int count, IReadOnlyList<string?>? given = null)
     {
         var colors = new Rgb24[count];
         for (int i = 0; i < count; i++)
         {
-            double hue = (40.0 + i * GoldenAngleDegrees) % 360.0;
-            // Alternate lightness so neighbours in hue still differ when many classes share the wheel.
-            double lightness = (i % 3) switch { 0 => 0.72, 1 => 0.58, _ => 0.84 };
-            colors[i] = FromOklch(lightness, 0.13, hue);
+            string hex = given is not null && i < given.Count && given[i] is { } g && Strayspot.Service.Models.ClassColors.IsHexColor(g)
+                ? g : Strayspot.Service.Models.ClassColors.Generated(i);
+            var (r, gr, b) = Strayspot.Service.Models.ClassColors.Parse(hex);
+            colors[i] = new Rgb24(r, gr, b);
         }
         return colors;
     }
@@ -74,15 +72,5 @@ public static class ColorScales
         linear = Math.Clamp(linear, 0, 1);
         double srgb = linear <= 0.0031308 ? 12.92 * linear : 1.055 * Math.Pow(linear, 1 / 2.4) - 0.055;
         return (byte)Math.Clamp((int)Math.Round(srgb * 255), 0, 255);
-    }
-
-    /// <summary>Parses "#rrggbb".</summary>
-    public static bool TryParseHex(string? text, out Rgb24 color)
-    {
-        color = default;
-        if (text is not { Length: 7 } || text[0] != '#') return false;
-        if (!int.TryParse(text.AsSpan(1), System.Globalization.NumberStyles.HexNumber, null, out int v)) return false;
-        color = new Rgb24((byte)(v >> 16), (byte)(v >> 8), (byte)v);
-        return true;
     }
 }
