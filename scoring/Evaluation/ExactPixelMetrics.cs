@@ -23,9 +23,7 @@ public sealed class ExactPixelMetrics
     /// nothing of the batch is kept then.</exception>
     public void Add(ReadOnlySpan<float> score, ReadOnlySpan<byte> label)
     {
-        if (score.Length != label.Length)
-            throw new ScoringInputException(EvaluationErrorCodes.LengthMismatch,
-                $"Scores and labels must have the same length; got {score.Length} scores and {label.Length} labels.");
+        PixelInput.Validate(score, label);
         // Vectorized pre-counts size each class's array exactly, so the small class does not grow like the big one.
         int ones = label.Count((byte)1);
         int ignored = label.Count((byte)255);
@@ -36,15 +34,8 @@ public sealed class ExactPixelMetrics
         for (int i = 0; i < score.Length; i++)
         {
             byte l = label[i];
-            if (l > 1)
-            {
-                if (l == 255) continue;
-                throw BadLabel(l, i);
-            }
-            float s = score[i];
-            if (float.IsNaN(s)) throw NaNScore(i);
-            uint key = OrderedScoreKeys.ToKey(s);
-            if (l == 1) pos[p++] = key; else neg[n++] = key;
+            if (l == 0) neg[n++] = OrderedScoreKeys.ToKey(score[i]);
+            else if (l == 1) pos[p++] = OrderedScoreKeys.ToKey(score[i]);
         }
         if (p > _posCount || n > _negCount) _sorted = false;
         _posCount = p;
@@ -101,13 +92,6 @@ public sealed class ExactPixelMetrics
         long size = Math.Min(Math.Max(needed, (long)buffer.Length * 2), Array.MaxLength);
         Array.Resize(ref buffer, (int)size);
     }
-
-    internal static ScoringInputException BadLabel(byte value, int index) =>
-        new(EvaluationErrorCodes.LabelValue,
-            $"Anomaly labels must be 0 (in-distribution), 1 (anomaly) or 255 (ignore); got {value} at position {index}.");
-
-    internal static ScoringInputException NaNScore(int index) =>
-        new(EvaluationErrorCodes.ScoreNaN, $"Scores must not be NaN; got NaN at position {index}.");
 
     /// <summary>Walks both ascending key arrays from the top, grouping equal keys.</summary>
     private struct SortedGroups(uint[] pos, int posCount, uint[] neg, int negCount) : IScoreGroups

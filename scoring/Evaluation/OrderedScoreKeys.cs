@@ -12,16 +12,15 @@ internal static class OrderedScoreKeys
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
     public static uint ToKey(float score)
     {
-        uint bits = BitConverter.SingleToUInt32Bits(score);
-        if (bits == 0x8000_0000u) bits = 0; // −0 ties with +0
-        return (bits & 0x8000_0000u) != 0 ? ~bits : bits | 0x8000_0000u;
+        // +0f turns −0 into +0 so they tie; branch-free because score signs are random in practice.
+        uint bits = BitConverter.SingleToUInt32Bits(score + 0f);
+        return bits ^ ((uint)((int)bits >> 31) | 0x8000_0000u);
     }
 
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
     public static float ToScore(uint key)
     {
-        uint bits = (key & 0x8000_0000u) != 0 ? key & 0x7FFF_FFFFu : ~key;
-        return BitConverter.UInt32BitsToSingle(bits);
+        return BitConverter.UInt32BitsToSingle(key ^ (((key >> 31) - 1u) | 0x8000_0000u));
     }
 
     /// <summary>Ascending LSD radix sort, 8 bits per pass; passes where every key has the same digit are skipped.</summary>

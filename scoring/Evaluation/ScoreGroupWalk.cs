@@ -44,6 +44,7 @@ internal static class ScoreGroupWalk
         bool tprReached = false;
         double tprAtFpr = 0, thrAtFpr = noneThreshold;
         double fprLimit = fprTarget ?? -1;
+        bool fprOpen = fprTarget is not null;
         // A double ratio compared with the target: division is correctly rounded, so a ratio equal to the
         // decimal target (19/20 vs 0.95) compares equal.
         while (groups.Next(out double thr, out long dp, out long dn))
@@ -60,10 +61,15 @@ internal static class ScoreGroupWalk
                 fprAtTpr = (double)fp / N;
                 thrAtTpr = thr;
             }
-            if (fprTarget is not null && (double)fp / N <= fprLimit)
+            if (fprOpen)
             {
-                tprAtFpr = (double)tp / P;
-                thrAtFpr = thr;
+                // FP only grows, so once over the limit it stays over.
+                if ((double)fp / N <= fprLimit)
+                {
+                    tprAtFpr = (double)tp / P;
+                    thrAtFpr = thr;
+                }
+                else fprOpen = false;
             }
         }
         double auroc = (double)aurocTwice / (2.0 * P * N);

@@ -51,16 +51,7 @@ public sealed class StreamingPixelMetrics
     /// nothing of the batch is kept then.</exception>
     public void Add(ReadOnlySpan<float> score, ReadOnlySpan<byte> label)
     {
-        if (score.Length != label.Length)
-            throw new ScoringInputException(EvaluationErrorCodes.LengthMismatch,
-                $"Scores and labels must have the same length; got {score.Length} scores and {label.Length} labels.");
-        // Validate first so a refused batch leaves the histograms untouched.
-        for (int i = 0; i < label.Length; i++)
-        {
-            byte l = label[i];
-            if (l > 1 && l != 255) throw ExactPixelMetrics.BadLabel(l, i);
-            if (l != 255 && float.IsNaN(score[i])) throw ExactPixelMetrics.NaNScore(i);
-        }
+        PixelInput.Validate(score, label);
         long[] counts = _counts;
         float min = MinScore, max = MaxScore;
         double scale = _scale;
