@@ -10,10 +10,29 @@ namespace Strayspot.Scoring.Evaluation;
 /// </summary>
 public sealed class ExactPixelMetrics
 {
-    private uint[] _pos = new uint[1024];
-    private uint[] _neg = new uint[1024];
+    private uint[] _pos;
+    private uint[] _neg;
     private long _posCount, _negCount;
     private bool _sorted = true;
+
+    /// <param name="expectedPixels">Optional size hint: room for this many in-distribution pixels and a sixteenth as
+    /// many anomaly pixels is taken up front (both still grow), which saves the copies and fresh-page faults of growing.</param>
+    public ExactPixelMetrics(long expectedPixels = 0)
+    {
+        if (expectedPixels < 0 || expectedPixels > Array.MaxLength)
+            throw new ScoringInputException(EvaluationErrorCodes.Argument,
+                $"The expected pixel count must be between 0 and {Array.MaxLength}; got {expectedPixels}.");
+        _neg = new uint[Math.Max(1024, expectedPixels)];
+        _pos = new uint[Math.Max(1024, expectedPixels / 16)];
+    }
+
+    /// <summary>Forgets all pixels but keeps the buffers, so the next evaluation reuses the memory.</summary>
+    public void Clear()
+    {
+        _posCount = 0;
+        _negCount = 0;
+        _sorted = true;
+    }
 
     public long Positives => _posCount;
     public long Negatives => _negCount;

@@ -150,6 +150,20 @@ public class ExactPixelMetricsTests
     }
 
     [Fact]
+    public void Clear_forgets_pixels_and_a_size_hint_changes_nothing_but_memory()
+    {
+        var (s, l) = PixelReference.Random(5000, 21, decimals: 2);
+        var hinted = new ExactPixelMetrics(expectedPixels: 100);
+        hinted.Add([5f, 6f], [1, 0]);
+        hinted.Compute();
+        hinted.Clear();
+        Assert.Equal((0L, 0L), (hinted.Positives, hinted.Negatives));
+        hinted.Add(s, l);
+        Assert.Equal(Exact(s, l, 0.9, 0.1), hinted.Compute(0.9, 0.1));
+        Assert.Equal(EvaluationErrorCodes.Argument, Assert.Throws<ScoringInputException>(() => new ExactPixelMetrics(-1)).Code);
+    }
+
+    [Fact]
     public void Negative_zero_ties_with_zero_and_infinities_are_ordered()
     {
         // -0 and +0 are one tied group: one positive vs one negative tie → ½.
