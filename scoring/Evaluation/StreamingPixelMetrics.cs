@@ -43,7 +43,8 @@ public sealed class StreamingPixelMetrics
     /// <summary>Counted pixels whose score lay outside [MinScore, MaxScore] and went to an end bin.</summary>
     public long Clamped { get; private set; }
 
-    /// <summary>Lower edge of a bin: the threshold reported for it.</summary>
+    /// <summary>Lower edge of a bin: the threshold reported for it. A score within rounding of an edge may sit in
+    /// the bin below, so applying a reported threshold reproduces the reported rates to within that bin's counts.</summary>
     public double BinLowerEdge(int bin) => MinScore + bin / _scale;
 
     /// <summary>Adds one frame (or any batch). Labels: 1 anomaly, 0 in-distribution, 255 ignored.</summary>
