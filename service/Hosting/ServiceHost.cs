@@ -157,6 +157,8 @@ public static class ServiceHost
     {
         app.UseSerilogRequestLogging(o =>
         {
+            // The host's own logger: the static one is left alone (several hosts share a test process).
+            o.Logger = app.Services.GetRequiredService<Serilog.ILogger>();
             o.MessageTemplate = "HTTP {RequestMethod} {Route} responded {StatusCode} in {Elapsed:0.0} ms";
             o.EnrichDiagnosticContext = (diag, http) =>
             {
