@@ -163,7 +163,8 @@ public static class ServiceHost
             o.EnrichDiagnosticContext = (diag, http) =>
             {
                 diag.Set("RequestId", http.TraceIdentifier);
-                diag.Set("Route", (http.GetEndpoint() as RouteEndpoint)?.RoutePattern.RawText ?? "(no route)");
+                string? route = (http.GetEndpoint() as RouteEndpoint)?.RoutePattern.RawText;
+                diag.Set("Route", route is null ? "(no route)" : route.Length > 1 ? route.TrimEnd('/') : route);
                 if (http.User.Identity?.IsAuthenticated == true) diag.Set("Client", http.User.Identity.Name);
             };
         });
