@@ -28,6 +28,7 @@ public static class ErrorCodes
     public const string NotReady = "not-ready";
     public const string InternalError = "internal-error";
     public const string PathOutsideData = "path-outside-data";
+    public const string StatisticsMissing = "statistics-missing";
 
     private static readonly ErrorCode[] Rows =
     [
@@ -43,6 +44,7 @@ public static class ErrorCodes
         new(PayloadTooLarge, 413, "The request body is too large"),
         new(UnsupportedMediaType, 415, "Unsupported content type"),
         new(ModelClassMismatch, 422, "The input does not fit the model's classes"),
+        new(StatisticsMissing, 422, "The model has no class statistics for this method"),
         new(QueueFull, 429, "Too many frames are waiting; retry later"),
         new(InternalError, 500, "Internal error"),
         new(ModelUnavailable, 503, "The model could not be loaded"),

@@ -20,6 +20,7 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
             ScoringInputException e => (e.Code, e.Message),
             UnsafePathException e => (ErrorCodes.PathOutsideData, e.Message),
             FrameTimeoutException e => (ErrorCodes.Timeout, e.Message),
+            QueueFullException e => (ErrorCodes.QueueFull, e.Message),
             BadHttpRequestException e => (ErrorCodes.ForStatus(e.StatusCode), e.Message),
             _ => null,
         };
@@ -29,6 +30,8 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
         // Input errors are the client's business: one line at Information, no stack trace.
         log.LogInformation("Request refused with {Status} {Code}: {Detail}", row.Status, m.code, m.detail);
         http.Response.StatusCode = row.Status;
+        if (exception is QueueFullException full)
+            http.Response.Headers.RetryAfter = full.RetryAfterSeconds.ToString(System.Globalization.CultureInfo.InvariantCulture);
         return await problems.TryWriteAsync(new ProblemDetailsContext
         {
             HttpContext = http,

@@ -102,6 +102,7 @@ public static class ServiceHost
         services.AddHostedService<ModelCatalogLoader>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
+        services.AddSingleton<ScoringLane>();
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
 
