@@ -48,6 +48,18 @@ public static class ModelsApi
             .WithSummary("Describes one model: descriptor, class statistics summary and scoring profile.")
             .ProducesProblem(StatusCodes.Status404NotFound);
 
+        models.MapPut("/{model}/profile", PutProfile)
+            .RequireAuthorization(ApiPolicies.Admin)
+            .Accepts<ScoringProfile>("application/json")
+            .WithName("PutScoringProfile")
+            .WithSummary("Replaces the model's scoring profile (needs a key with the 'admin' scope).")
+            .WithDescription("The body is a scoring profile: options (method, stages, threshold, minimum region area), " +
+                             "optional version and note. Without a version the current UTC time becomes the version. " +
+                             "Unknown members are refused. Frames scored afterwards report the new version.")
+            .ProducesProblem(StatusCodes.Status400BadRequest)
+            .ProducesProblem(StatusCodes.Status403Forbidden)
+            .ProducesProblem(StatusCodes.Status404NotFound);
+
         models.MapPost("/reload", (ModelCatalog catalog) =>
             {
                 catalog.Reload();
@@ -57,6 +69,37 @@ public static class ModelsApi
             .WithName("ReloadModels")
             .WithSummary("Scans ModelsRoot again (needs a key with the 'admin' scope).")
             .ProducesProblem(StatusCodes.Status403Forbidden);
+    }
+
+    /// <summary>Replaces a model's scoring profile; the new version is the given one or the current UTC time.</summary>
+    private static async Task<Results<Ok<ScoringProfile>, ProblemHttpResult>> PutProfile(
+        string model, HttpRequest request, ModelCatalog catalog, TimeProvider time, CancellationToken ct)
+    {
+        if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
+        if (!request.HasJsonContentType())
+            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                $"Send the profile as application/json; got '{request.ContentType ?? "no content type"}'.");
+        using var buffer = new MemoryStream();
+        await request.Body.CopyToAsync(buffer, ct);
+        buffer.Position = 0;
+        ScoringProfile profile;
+        try
+        {
+            profile = ScoringProfile.Read(buffer, "The request body");
+        }
+        catch (Strayspot.Scoring.Logits.ScoringInputException e)
+        {
+            return ApiProblems.Create(ErrorCodes.ValidationFailed, e.Message);
+        }
+        var now = time.GetUtcNow();
+        if (profile.Version == ScoringProfile.DefaultVersion) profile = profile with { Version = ScoringProfile.VersionAt(now) };
+        profile = profile with { CreatedUtc = now };
+        if (entry.Descriptor is { } d && profile.Effective.SurfaceClasses?.FirstOrDefault(c => c >= d.Classes.Count) is int bad and > 0)
+            return ApiProblems.Create(ErrorCodes.ValidationFailed,
+                $"Surface class {bad} does not exist: model '{model}' has {d.Classes.Count} classes (0..{d.Classes.Count - 1}).");
+        profile.Save(entry.Folder);
+        catalog.Reload();
+        return TypedResults.Ok(catalog.TryGet(model, out var updated) ? updated.Profile : profile.Normalized());
     }
 
     private static ModelSummary Summarize(CatalogEntry e) => new(

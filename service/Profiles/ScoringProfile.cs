@@ -45,7 +45,14 @@ public sealed record ScoringProfile
     {
         WriteIndented = true,
         DefaultIgnoreCondition = JsonIgnoreCondition.WhenWritingNull,
+        // A misspelt option must not silently fall back to its default.
+        UnmappedMemberHandling = JsonUnmappedMemberHandling.Disallow,
+        ReadCommentHandling = JsonCommentHandling.Skip,
+        AllowTrailingCommas = true,
     };
+
+    /// <summary>A version string for a profile saved now: its UTC time, sortable.</summary>
+    public static string VersionAt(DateTimeOffset utc) => utc.UtcDateTime.ToString("yyyyMMdd'T'HHmmss'Z'", System.Globalization.CultureInfo.InvariantCulture);
 
     /// <summary>The profile in <paramref name="modelFolder"/>, or the defaults when it has none.</summary>
     public static ScoringProfile LoadOrDefault(string modelFolder)
