@@ -21,4 +21,5 @@ public static class ScoringErrorCodes
     public const string StatisticsMismatch = "statistics-mismatch";
     public const string StatisticsFormat = "statistics-format";
     public const string Options = "options-invalid";
+    public const string ClassIndexRange = "class-index-range";
 }

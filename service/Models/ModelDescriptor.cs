@@ -6,7 +6,7 @@ namespace Strayspot.Service.Models;
 /// What a user writes beside <c>model.onnx</c> (file <c>descriptor.json</c>) so the service can feed
 /// the model and read its output. Schema: models/descriptor.schema.json; guide: models/README.md.
 /// </summary>
-public sealed record ModelDescriptor
+public sealed partial record ModelDescriptor
 {
     [JsonPropertyName("name")] public string Name { get; init; } = "";
     [JsonPropertyName("description")] public string? Description { get; init; }

@@ -1,6 +1,22 @@
 namespace Strayspot.Bench;
 
+/// <summary>
+/// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
+/// one run as a Markdown table. Suites: scoring (default).
+/// </summary>
 public static class Program
 {
-    public static int Main(string[] args) => 0;
+    public static int Main(string[] args)
+    {
+        string suite = args.Length > 0 && !args[0].StartsWith("--") ? args[0] : "scoring";
+        int runs = 15;
+        int i = Array.IndexOf(args, "--runs");
+        if (i >= 0 && i + 1 < args.Length && int.TryParse(args[i + 1], out int r) && r > 0) runs = r;
+        Console.WriteLine($"# strayspot bench: {suite}, {runs} runs per case, {Environment.ProcessorCount} cores, {DateTime.UtcNow:yyyy-MM-dd}");
+        switch (suite)
+        {
+            case "scoring": ScoringBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring"); return 2;
+        }
+    }
 }

@@ -1,0 +1,166 @@
+using System.Diagnostics;
+using Strayspot.Scoring.Boundaries;
+using Strayspot.Scoring.Logits;
+using Strayspot.Scoring.Reduction;
+using Strayspot.Scoring.Regions;
+using Strayspot.Scoring.Smoothing;
+using Strayspot.Scoring.Standardization;
+
+namespace Strayspot.Scoring.Pipeline;
+
+/// <summary>
+/// Logits in, anomaly score, mask and regions out: the stages composed in their fixed order.
+/// One instance owns every buffer and reuses it from frame to frame, so it is not thread-safe:
+/// use one per worker. A <see cref="FrameScoring"/> stays valid until the next call to <see cref="Score"/>.
+/// </summary>
+public sealed class FramePipeline
+{
+    private readonly ScoringOptions _options;
+    private readonly PixelReduction _reduction;
+    private readonly StandardizedMaxLogit? _sml;
+    private readonly BoundarySuppression? _boundary;
+    private readonly DilatedSmoothing? _smoothing;
+    private readonly RegionFinder _regions = new();
+    private readonly ReducedMaps _maps = new();
+    private readonly ReductionOutputs _outputs;
+    private readonly RegionFilter _filter;
+    private float[] _score = [];
+    private byte[] _mask = [];
+
+    public FramePipeline(ScoringOptions options, ClassStatistics? statistics)
+    {
+        options.Validate();
+        _options = options;
+        _outputs = OutputsFor(options.Method);
+        _reduction = new PixelReduction(_outputs, options.EnergyTemperature);
+        if (options.Method == ScoreMethod.Sml)
+        {
+            if (statistics is null)
+                throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
+                    "The SML method needs class statistics (a calibration or statistics file); none were given.");
+            _sml = new StandardizedMaxLogit(statistics);
+        }
+        Statistics = statistics;
+        if (options.BoundarySuppression.Enabled) _boundary = new BoundarySuppression(options.BoundarySuppression);
+        if (options.Smoothing.Enabled) _smoothing = new DilatedSmoothing(options.Smoothing);
+        _filter = new RegionFilter(options.MinimumRegionArea, options.SurfaceClasses);
+    }
+
+    public ScoringOptions Options => _options;
+    public ClassStatistics? Statistics { get; }
+
+    /// <summary>The reduction outputs a method reads besides class and max logit.</summary>
+    public static ReductionOutputs OutputsFor(ScoreMethod method) => method switch
+    {
+        ScoreMethod.Msp => ReductionOutputs.Msp,
+        ScoreMethod.Entropy => ReductionOutputs.Entropy,
+        ScoreMethod.Energy => ReductionOutputs.Energy,
+        _ => ReductionOutputs.None,
+    };
+
+    /// <summary>Scores one frame's logits, resized to the frame's <paramref name="frameHeight"/>×<paramref name="frameWidth"/>.</summary>
+    public FrameScoring Score(LogitsView logits, int frameHeight, int frameWidth)
+    {
+        if (frameHeight < 1 || frameWidth < 1)
+            throw new ScoringInputException(ScoringErrorCodes.FrameSize, $"Frame size must be positive; got {frameHeight}×{frameWidth}.");
+        if (_sml is not null) Statistics!.EnsureClassCount(logits.Channels);
+        var timings = new StageTimings();
+        long t0 = Stopwatch.GetTimestamp();
+
+        LogitsValidation.EnsureFinite(logits);
+        _maps.EnsureSize(frameWidth, frameHeight, _outputs);
+        _reduction.Reduce(logits, frameHeight, frameWidth, _maps);
+        long t1 = Stopwatch.GetTimestamp();
+        timings.Reduction = Stopwatch.GetElapsedTime(t0, t1);
+
+        int n = frameWidth * frameHeight;
+        if (_score.Length < n) { _score = new float[n]; _mask = new byte[n]; }
+        var score = _score.AsSpan(0, n);
+        AnomalyScore(score);
+        long t2 = Stopwatch.GetTimestamp();
+        timings.Standardization = Stopwatch.GetElapsedTime(t1, t2);
+
+        _boundary?.Apply(score, _maps.ClassIndex, frameWidth, frameHeight);
+        long t3 = Stopwatch.GetTimestamp();
+        timings.BoundarySuppression = Stopwatch.GetElapsedTime(t2, t3);
+
+        _smoothing?.Apply(score, frameWidth, frameHeight);
+        long t4 = Stopwatch.GetTimestamp();
+        timings.Smoothing = Stopwatch.GetElapsedTime(t3, t4);
+
+        var mask = _mask.AsSpan(0, n);
+        long flagged = AnomalyMask.Threshold(score, _options.Threshold, mask);
+        var regions = _regions.Find(mask, frameWidth, frameHeight, score, _maps.ClassIndex, logits.Channels, _filter);
+        float frameScore = FrameScore.Compute(score);
+        long t5 = Stopwatch.GetTimestamp();
+        timings.Regions = Stopwatch.GetElapsedTime(t4, t5);
+        timings.Total = Stopwatch.GetElapsedTime(t0, t5);
+
+        return new FrameScoring(frameWidth, frameHeight, logits.Channels, _maps, _score, _mask, regions,
+            frameScore, flagged, timings);
+    }
+
+    // One sign convention everywhere: higher means more anomalous.
+    private void AnomalyScore(Span<float> score)
+    {
+        switch (_options.Method)
+        {
+            case ScoreMethod.Sml:
+                _sml!.Apply(_maps.MaxLogit, _maps.ClassIndex, score);
+                System.Numerics.Tensors.TensorPrimitives.Negate(score, score);
+                break;
+            case ScoreMethod.MaxLogit:
+                System.Numerics.Tensors.TensorPrimitives.Negate(_maps.MaxLogit, score);
+                break;
+            case ScoreMethod.Msp:
+                System.Numerics.Tensors.TensorPrimitives.Negate(_maps.Msp, score);
+                break;
+            case ScoreMethod.Entropy:
+                _maps.Entropy.CopyTo(score);
+                break;
+            case ScoreMethod.Energy:
+                _maps.Energy.CopyTo(score);
+                break;
+        }
+    }
+}
+
+/// <summary>Wall time of each stage for one frame.</summary>
+public sealed class StageTimings
+{
+    public TimeSpan Reduction { get; set; }
+    public TimeSpan Standardization { get; set; }
+    public TimeSpan BoundarySuppression { get; set; }
+    public TimeSpan Smoothing { get; set; }
+    public TimeSpan Regions { get; set; }
+    public TimeSpan Total { get; set; }
+}
+
+/// <summary>One frame's result. Its maps are the pipeline's buffers: read them before the next frame.</summary>
+public sealed class FrameScoring
+{
+    private readonly ReducedMaps _maps;
+    private readonly float[] _score;
+    private readonly byte[] _mask;
+
+    internal FrameScoring(int width, int height, int classCount, ReducedMaps maps, float[] score, byte[] mask,
+        RegionSet regions, float frameScore, long flaggedPixels, StageTimings timings)
+    {
+        Width = width; Height = height; ClassCount = classCount;
+        _maps = maps; _score = score; _mask = mask;
+        Regions = regions; FrameScore = frameScore; FlaggedPixels = flaggedPixels; Timings = timings;
+    }
+
+    public int Width { get; }
+    public int Height { get; }
+    public int ClassCount { get; }
+    public ReadOnlySpan<ushort> ClassIndex => _maps.ClassIndex;
+    public ReadOnlySpan<float> MaxLogit => _maps.MaxLogit;
+    public ReadOnlySpan<float> AnomalyScore => _score.AsSpan(0, Width * Height);
+    public ReadOnlySpan<byte> Mask => _mask.AsSpan(0, Width * Height);
+    public RegionSet Regions { get; }
+    public float FrameScore { get; }
+    public long FlaggedPixels { get; }
+    public double AnomalousShare => (double)FlaggedPixels / ((long)Width * Height);
+    public StageTimings Timings { get; }
+}

@@ -1,0 +1,146 @@
+using System.Numerics.Tensors;
+using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.X86;
+using Strayspot.Scoring.Logits;
+
+namespace Strayspot.Scoring.Standardization;
+
+/// <summary>
+/// Standardized max logit: (maxLogit − mean[c]) / std[c] for each pixel's predicted class c. Low values mean unknown.
+/// <para>Fallback rule (the only one): a class measured on fewer than <see cref="ClassStatistics.MinimumCount"/> pixels,
+/// or with a standard deviation below <see cref="ClassStatistics.MinimumStd"/>, is standardized with the pooled
+/// statistics of all classes that do qualify: their count-weighted mean, and the pooled standard deviation from the law
+/// of total variance (count-weighted mean of the class variances plus the count-weighted variance of the class means).
+/// If no class qualifies the statistics are refused.</para>
+/// Finite max logits always give finite results (values beyond the float range are clamped to it).
+/// </summary>
+public sealed class StandardizedMaxLogit
+{
+    private readonly float[] _mean;
+    private readonly float[] _invStd;
+    private readonly float[] _std;
+
+    public StandardizedMaxLogit(ClassStatistics statistics)
+    {
+        ArgumentNullException.ThrowIfNull(statistics);
+        Statistics = statistics;
+        var classes = statistics.Classes;
+        int n = classes.Count;
+
+        double total = 0, weightedMean = 0;
+        foreach (var c in classes)
+            if (Qualifies(c, statistics.MinimumCount))
+            {
+                total += c.Count;
+                weightedMean += (double)c.Count * c.Mean;
+            }
+        if (total == 0)
+            throw new ScoringInputException(ScoringErrorCodes.StatisticsFormat,
+                $"No class of the {n} has at least {statistics.MinimumCount} pixels and a standard deviation of at least " +
+                $"{ClassStatistics.MinimumStd}; the statistics cannot standardize anything. Calibrate on more frames.");
+        PooledMean = weightedMean / total;
+        double pooledVariance = 0;
+        foreach (var c in classes)
+            if (Qualifies(c, statistics.MinimumCount))
+            {
+                double d = c.Mean - PooledMean;
+                pooledVariance += c.Count * (c.Std * c.Std + d * d);
+            }
+        PooledStd = Math.Sqrt(pooledVariance / total);
+
+        _mean = new float[n];
+        _invStd = new float[n];
+        _std = new float[n];
+        var fallback = new List<int>();
+        for (int i = 0; i < n; i++)
+        {
+            var c = classes[i];
+            bool own = Qualifies(c, statistics.MinimumCount);
+            if (!own) fallback.Add(i);
+            double mean = own ? c.Mean : PooledMean, std = own ? c.Std : PooledStd;
+            _mean[i] = ToFloat(mean);
+            _std[i] = ToFloat(std);
+            _invStd[i] = ToFloat(1.0 / std);
+        }
+        FallbackClasses = fallback;
+    }
+
+    /// <summary>Also checks that the statistics describe as many classes as the model produces.</summary>
+    public StandardizedMaxLogit(ClassStatistics statistics, int logitsClassCount) : this(statistics)
+        => statistics.EnsureClassCount(logitsClassCount);
+
+    public ClassStatistics Statistics { get; }
+    public int ClassCount => _mean.Length;
+
+    /// <summary>Classes standardized with the pooled statistics, ascending.</summary>
+    public IReadOnlyList<int> FallbackClasses { get; }
+
+    public double PooledMean { get; }
+    public double PooledStd { get; }
+
+    /// <inheritdoc cref="ClassStatistics.EnsureClassCount"/>
+    public void EnsureClassCount(int channels) => Statistics.EnsureClassCount(channels);
+
+    private static bool Qualifies(ClassStatistic c, long minimumCount) =>
+        c.Count >= minimumCount && c.Count > 0 && c.Std >= ClassStatistics.MinimumStd;
+
+    private static float ToFloat(double v) => (float)Math.Clamp(v, float.MinValue, float.MaxValue);
+
+    public void Apply(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml)
+    {
+        CheckSpans(maxLogit.Length, classIndex, sml.Length);
+        int i = 0;
+        if (Avx2.IsSupported)
+            i = ApplyAvx2(maxLogit, classIndex, sml);
+        for (; i < maxLogit.Length; i++)
+        {
+            int c = classIndex[i];
+            sml[i] = (maxLogit[i] - _mean[c]) * _invStd[c];
+        }
+        // (x − mean)·(1/std) can exceed the float range for extreme inputs; keep the promise of finite output.
+        TensorPrimitives.Clamp(sml, float.MinValue, float.MaxValue, sml);
+    }
+
+    /// <summary>The inverse of <see cref="Apply"/>: max logit = sml·std[c] + mean[c].</summary>
+    public void Undo(ReadOnlySpan<float> sml, ReadOnlySpan<ushort> classIndex, Span<float> maxLogit)
+    {
+        CheckSpans(sml.Length, classIndex, maxLogit.Length);
+        for (int i = 0; i < sml.Length; i++)
+        {
+            int c = classIndex[i];
+            maxLogit[i] = sml[i] * _std[c] + _mean[c];
+        }
+    }
+
+    private unsafe int ApplyAvx2(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml)
+    {
+        int n = maxLogit.Length, i = 0;
+        fixed (float* x = maxLogit, mean = _mean, inv = _invStd, o = sml)
+        fixed (ushort* cls = classIndex)
+        {
+            for (; i + 8 <= n; i += 8)
+            {
+                var idx = Avx2.ConvertToVector256Int32(Vector128.Load(cls + i));
+                var m = Avx2.GatherVector256(mean, idx, 4);
+                var s = Avx2.GatherVector256(inv, idx, 4);
+                ((Vector256.Load(x + i) - m) * s).Store(o + i);
+            }
+        }
+        return i;
+    }
+
+    private void CheckSpans(int values, ReadOnlySpan<ushort> classIndex, int output)
+    {
+        if (classIndex.Length != values || output != values)
+            throw new ScoringInputException(ScoringErrorCodes.FrameSize,
+                $"SML needs equally long maps; got {values} values, {classIndex.Length} class indices and room for {output}.");
+        if (values == 0) return;
+        ushort max = TensorPrimitives.Max(classIndex);
+        if (max >= _mean.Length)
+        {
+            int at = classIndex.IndexOfAnyInRange((ushort)_mean.Length, ushort.MaxValue);
+            throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
+                $"Pixel {at} has class {classIndex[at]} but the class statistics describe {_mean.Length} classes (0–{_mean.Length - 1}).");
+        }
+    }
+}

@@ -1,0 +1,63 @@
+using System.CommandLine;
+using Strayspot.Scoring.Logits;
+
+namespace Strayspot.Service.Cli;
+
+/// <summary>The command line: one verb a file, registered here.</summary>
+public static class CliApp
+{
+    public const int ExitOk = 0;
+    public const int ExitFailure = 1;
+    public const int ExitBadInput = 2;
+
+    public static RootCommand Build()
+    {
+        var root = new RootCommand(
+            "strayspot: finds what a segmentation model was never trained on. " +
+            "A data-triage and monitoring aid, not a certified safety function.");
+        root.Subcommands.Add(ScoreLogitsVerb.Create());
+        return root;
+    }
+
+    public static int Run(string[] args)
+    {
+        var parsed = Build().Parse(args);
+        // Usage errors are bad input too: exit 2, like every other refusal.
+        if (parsed.Errors.Count > 0 && parsed.Action is not System.CommandLine.Help.HelpAction)
+        {
+            foreach (var error in parsed.Errors) Console.Error.WriteLine($"error [usage]: {error.Message}");
+            return ExitBadInput;
+        }
+        return parsed.Invoke();
+    }
+
+    /// <summary>Runs a verb body, turning refused input into a message and exit code 2 instead of a stack trace.</summary>
+    public static int Guard(Func<int> body)
+    {
+        try
+        {
+            return body();
+        }
+        catch (ScoringInputException e)
+        {
+            Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
+            return ExitBadInput;
+        }
+        catch (Exception e) when (e is FileNotFoundException or DirectoryNotFoundException or UnauthorizedAccessException)
+        {
+            Console.Error.WriteLine($"error [file]: {e.Message}");
+            return ExitBadInput;
+        }
+        catch (Exception e) when (e is IUserFacingError u)
+        {
+            Console.Error.WriteLine($"error [{u.Code}]: {e.Message}");
+            return ExitBadInput;
+        }
+    }
+}
+
+/// <summary>An exception whose message is meant for the user, with a stable code.</summary>
+public interface IUserFacingError
+{
+    string Code { get; }
+}

@@ -1,0 +1,153 @@
+using SixLabors.ImageSharp.Advanced;
+using SixLabors.ImageSharp.PixelFormats;
+using Strayspot.Service.Models;
+
+namespace Strayspot.Service.Frames;
+
+/// <summary>
+/// Resizes (bilinear, pixel centres aligned: the usual "half-pixel" convention), pads bottom/right and normalizes a
+/// frame into the model's input layout. Owns a float buffer reused from frame to frame: one instance per worker.
+/// </summary>
+public sealed class FramePreprocessor
+{
+    private readonly InputDescriptor _input;
+    private readonly bool _nhwc;
+    private readonly int[] _sourceChannel = new int[3];
+    private readonly float[] _scale = new float[3];
+    private readonly float[] _offset = new float[3];
+    private float[] _buffer = [];
+    private int[] _x0 = [], _x1 = [];
+    private float[] _wx = [];
+
+    public FramePreprocessor(InputDescriptor input)
+    {
+        _input = input;
+        _nhwc = input.Layout == "nhwc";
+        bool bgr = input.ChannelOrder == "bgr";
+        for (int c = 0; c < 3; c++)
+        {
+            // Mean and std are given in the model's channel order; folded into one multiply-add per value.
+            _sourceChannel[c] = bgr ? 2 - c : c;
+            _scale[c] = 1f / (input.ValueScale * input.Std[c]);
+            _offset[c] = -input.Mean[c] / input.Std[c];
+        }
+    }
+
+    /// <summary>The input tensor size (height, width) and content size for a frame of the given size.</summary>
+    public static ContentBox Plan(SizePolicy size, int frameHeight, int frameWidth)
+    {
+        if (frameHeight < 1 || frameWidth < 1)
+            throw new ArgumentOutOfRangeException(nameof(frameHeight), $"Frame size {frameWidth}×{frameHeight} is empty.");
+        int ch, cw;
+        if (size.Mode == "fixed")
+        {
+            ch = size.Height!.Value;
+            cw = size.Width!.Value;
+        }
+        else if (size.ResizeSide is null)
+        {
+            ch = frameHeight;
+            cw = frameWidth;
+        }
+        else
+        {
+            int side = size.ResizeSide == "longest" ? Math.Max(frameHeight, frameWidth) : Math.Min(frameHeight, frameWidth);
+            double s = (double)size.SideLength!.Value / side;
+            ch = Math.Max(1, (int)Math.Round(frameHeight * s, MidpointRounding.AwayFromZero));
+            cw = Math.Max(1, (int)Math.Round(frameWidth * s, MidpointRounding.AwayFromZero));
+        }
+        int m = Math.Max(1, size.PadMultiple);
+        int ih = (ch + m - 1) / m * m, iw = (cw + m - 1) / m * m;
+        return new ContentBox(frameHeight, frameWidth, ch, cw, ih, iw);
+    }
+
+    public PreparedInput Prepare(DecodedFrame frame)
+    {
+        var box = Plan(_input.Size, frame.Height, frame.Width);
+        int total = 3 * box.InputHeight * box.InputWidth;
+        if (_buffer.Length < total) _buffer = new float[total];
+        var data = _buffer.AsMemory(0, total);
+        // Padding is zero after normalization.
+        data.Span.Clear();
+        PrepareColumns(frame.Width, box.ContentWidth);
+        var image = frame.Image;
+        double sy = (double)frame.Height / box.ContentHeight;
+        int bands = Math.Min(Environment.ProcessorCount * 2, box.ContentHeight);
+        Parallel.For(0, bands, band =>
+        {
+            int y0 = (int)((long)box.ContentHeight * band / bands), y1 = (int)((long)box.ContentHeight * (band + 1) / bands);
+            var row = new float[box.ContentWidth * 3];
+            for (int y = y0; y < y1; y++)
+            {
+                double fy = (y + 0.5) * sy - 0.5;
+                if (fy < 0) fy = 0;
+                int r0 = Math.Min((int)fy, frame.Height - 1);
+                int r1 = Math.Min(r0 + 1, frame.Height - 1);
+                float wy = (float)(fy - r0);
+                if (r0 == frame.Height - 1) wy = 0;
+                var top = image.DangerousGetPixelRowMemory(r0).Span;
+                var bottom = image.DangerousGetPixelRowMemory(r1).Span;
+                InterpolateRow(top, bottom, wy, row);
+                Write(row, y, box, data.Span);
+            }
+        });
+        long[] shape = _nhwc ? [1, box.InputHeight, box.InputWidth, 3] : [1, 3, box.InputHeight, box.InputWidth];
+        return new PreparedInput(data, shape, box);
+    }
+
+    private void PrepareColumns(int srcWidth, int dstWidth)
+    {
+        if (_x0.Length != dstWidth) { _x0 = new int[dstWidth]; _x1 = new int[dstWidth]; _wx = new float[dstWidth]; }
+        double sx = (double)srcWidth / dstWidth;
+        for (int x = 0; x < dstWidth; x++)
+        {
+            double fx = (x + 0.5) * sx - 0.5;
+            if (fx < 0) fx = 0;
+            int c0 = Math.Min((int)fx, srcWidth - 1);
+            _x0[x] = c0;
+            _x1[x] = Math.Min(c0 + 1, srcWidth - 1);
+            _wx[x] = c0 == srcWidth - 1 ? 0f : (float)(fx - c0);
+        }
+    }
+
+    private void InterpolateRow(ReadOnlySpan<Rgb24> top, ReadOnlySpan<Rgb24> bottom, float wy, float[] row)
+    {
+        for (int x = 0; x < _x0.Length; x++)
+        {
+            Rgb24 a = top[_x0[x]], b = top[_x1[x]], c = bottom[_x0[x]], d = bottom[_x1[x]];
+            float wx = _wx[x];
+            row[3 * x] = Lerp2(a.R, b.R, c.R, d.R, wx, wy);
+            row[3 * x + 1] = Lerp2(a.G, b.G, c.G, d.G, wx, wy);
+            row[3 * x + 2] = Lerp2(a.B, b.B, c.B, d.B, wx, wy);
+        }
+    }
+
+    private static float Lerp2(byte a, byte b, byte c, byte d, float wx, float wy)
+    {
+        float t = a + (b - a) * wx, u = c + (d - c) * wx;
+        return t + (u - t) * wy;
+    }
+
+    private void Write(float[] rgbRow, int y, ContentBox box, Span<float> dst)
+    {
+        int w = box.ContentWidth;
+        if (_nhwc)
+        {
+            var line = dst.Slice(y * box.InputWidth * 3, w * 3);
+            for (int x = 0; x < w; x++)
+                for (int c = 0; c < 3; c++)
+                    line[3 * x + c] = rgbRow[3 * x + _sourceChannel[c]] * _scale[c] + _offset[c];
+        }
+        else
+        {
+            int plane = box.InputHeight * box.InputWidth;
+            for (int c = 0; c < 3; c++)
+            {
+                var line = dst.Slice(c * plane + y * box.InputWidth, w);
+                int s = _sourceChannel[c];
+                float k = _scale[c], o = _offset[c];
+                for (int x = 0; x < w; x++) line[x] = rgbRow[3 * x + s] * k + o;
+            }
+        }
+    }
+}

@@ -1,0 +1,214 @@
+using System.Diagnostics;
+using System.Security.Cryptography;
+using Microsoft.ML.OnnxRuntime;
+using SessionOptions = Microsoft.ML.OnnxRuntime.SessionOptions;
+using Microsoft.ML.OnnxRuntime.Tensors;
+using Strayspot.Service.Frames;
+
+namespace Strayspot.Service.Models;
+
+/// <summary>
+/// A user's segmentation model on the CPU: one ONNX Runtime session for the process lifetime, shared by all threads
+/// (the session's Run is thread-safe). Outputs are always read as channel-first, [1,C,h,w] or [C,h,w];
+/// a channels-last output is refused with a hint.
+/// </summary>
+public sealed class SegmentationModel : IDisposable
+{
+    public const string ModelFileName = "model.onnx";
+
+    private readonly InferenceSession _session;
+    private readonly string[] _inputNames;
+    private readonly string[] _outputNames;
+    // Never terminated, so sharing it across threads is safe; callers who cancel pass their own.
+    private readonly RunOptions _defaultRunOptions = new();
+
+    private SegmentationModel(InferenceSession session, ModelDescriptor descriptor, string modelPath, string sha256, OnnxGraphFacts facts)
+    {
+        _session = session;
+        Descriptor = descriptor;
+        ModelPath = modelPath;
+        ModelSha256 = sha256;
+        Facts = facts;
+        _inputNames = [descriptor.Input.Tensor];
+        _outputNames = [descriptor.Output.Tensor];
+    }
+
+    public ModelDescriptor Descriptor { get; }
+    public string ModelPath { get; }
+    /// <summary>Lower-case hex SHA-256 of model.onnx: ties calibrations and results to the exact weights.</summary>
+    public string ModelSha256 { get; }
+    public OnnxGraphFacts Facts { get; }
+    public int ClassCount => Descriptor.Classes.Count;
+    public TimeSpan LoadTime { get; private set; }
+
+    /// <summary>Loads <c>model.onnx</c> with <c>descriptor.json</c> from a model folder.</summary>
+    public static SegmentationModel LoadFolder(string folder, ModelRuntimeOptions? options = null)
+    {
+        if (!Directory.Exists(folder))
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+        string descriptorPath = Path.Combine(folder, ModelDescriptor.FileName);
+        if (!File.Exists(descriptorPath))
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid, $"Model folder '{folder}' has no {ModelDescriptor.FileName}.");
+        return Load(Path.Combine(folder, ModelFileName), ModelDescriptor.Load(descriptorPath), options);
+    }
+
+    public static SegmentationModel Load(string modelPath, ModelDescriptor descriptor, ModelRuntimeOptions? options = null)
+    {
+        options ??= new ModelRuntimeOptions();
+        if (options.IntraOpThreads < 1)
+            throw new ArgumentOutOfRangeException(nameof(options), $"IntraOpThreads must be at least 1; got {options.IntraOpThreads}.");
+        descriptor.EnsureValid();
+        var clock = Stopwatch.StartNew();
+        if (!File.Exists(modelPath))
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model file '{modelPath}' does not exist.");
+        byte[] bytes = File.ReadAllBytes(modelPath);
+        string sha = Convert.ToHexStringLower(SHA256.HashData(bytes));
+        var facts = OnnxGraphFacts.Parse(bytes, modelPath);
+        facts.EnsureExternalDataInside(Path.GetDirectoryName(Path.GetFullPath(modelPath))!, modelPath);
+
+        using var so = new SessionOptions
+        {
+            IntraOpNumThreads = options.IntraOpThreads,
+            InterOpNumThreads = 1,
+            GraphOptimizationLevel = options.OptimizationLevel,
+            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+        };
+        so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
+        InferenceSession session;
+        try
+        {
+            // From the path, so external data resolves against the model's own folder.
+            session = new InferenceSession(modelPath, so);
+        }
+        catch (OnnxRuntimeException e)
+        {
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
+        }
+        var model = new SegmentationModel(session, descriptor, modelPath, sha, facts);
+        try
+        {
+            model.CheckSignature();
+            if (options.WarmUp) model.WarmUpRun();
+        }
+        catch
+        {
+            model.Dispose();
+            throw;
+        }
+        model.LoadTime = clock.Elapsed;
+        return model;
+    }
+
+    private void CheckSignature()
+    {
+        var d = Descriptor;
+        if (!_session.InputMetadata.TryGetValue(d.Input.Tensor, out var input))
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"input.tensor: the model has no input '{d.Input.Tensor}'; its inputs are: {string.Join(", ", _session.InputMetadata.Keys)}.");
+        if (_session.InputMetadata.Count != 1)
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"The model takes {_session.InputMetadata.Count} inputs ({string.Join(", ", _session.InputMetadata.Keys)}); only single-image models are supported.");
+        if (!input.IsTensor || input.ElementDataType != TensorElementType.Float)
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"Input '{d.Input.Tensor}' must be a float32 tensor; it is {input.ElementDataType}.");
+        var dims = input.Dimensions;
+        if (dims.Length != 4)
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"Input '{d.Input.Tensor}' must have rank 4 (one image); it has shape {ModelInspector.FormatShape(input)}.");
+        bool nhwc = d.Input.Layout == "nhwc";
+        int channelDim = nhwc ? dims[3] : dims[1];
+        int otherChannelDim = nhwc ? dims[1] : dims[3];
+        if ((channelDim > 0 && channelDim != 3) || (channelDim <= 0 && otherChannelDim == 3))
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"input.layout: '{d.Input.Layout}' puts channels at axis {(nhwc ? 3 : 1)}, but the model's input {ModelInspector.FormatShape(input)} has {channelDim} there.");
+        int h = nhwc ? dims[1] : dims[2], w = nhwc ? dims[2] : dims[3];
+        if (h > 0 && w > 0 && (d.Input.Size.Mode != "fixed" || d.Input.Size.Height != h || d.Input.Size.Width != w))
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"input.size: the model only accepts {h}×{w} (height×width); set mode 'fixed' with height {h} and width {w}.");
+        if (!_session.OutputMetadata.TryGetValue(d.Output.Tensor, out var output))
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"output.tensor: the model has no output '{d.Output.Tensor}'; its outputs are: {string.Join(", ", _session.OutputMetadata.Keys)}.");
+        if (!output.IsTensor || output.ElementDataType != TensorElementType.Float)
+            throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                $"Output '{d.Output.Tensor}' must be a float32 tensor; it is {output.ElementDataType}.");
+        var od = output.Dimensions;
+        if (od.Length is 3 or 4)
+            CheckClassAxis(od.Select(x => (long)x).ToArray());
+        else
+            throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                $"Output '{d.Output.Tensor}' must be [1,C,h,w] or [C,h,w]; it has shape {ModelInspector.FormatShape(output)}.");
+    }
+
+    private void CheckClassAxis(long[] shape)
+    {
+        int offset = shape.Length - 3;
+        long c = shape[offset];
+        if (shape.Length == 4 && shape[0] > 1)
+            throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                $"Output '{Descriptor.Output.Tensor}' has a batch of {shape[0]}; one frame per run is expected.");
+        if (c > 0 && c != ClassCount)
+        {
+            string hint = shape[^1] == ClassCount ? " Its last axis matches the class count: export the output channels-first ([1,C,h,w])." : "";
+            throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                $"The model outputs {c} classes (shape [{string.Join(", ", shape)}]) but the descriptor lists {ClassCount}.{hint}");
+        }
+    }
+
+    private void WarmUpRun()
+    {
+        var size = Descriptor.Input.Size;
+        int h, w;
+        if (size.Mode == "fixed") (h, w) = (size.Height!.Value, size.Width!.Value);
+        else
+        {
+            int side = size.SideLength ?? 64;
+            int m = Math.Max(1, size.PadMultiple);
+            h = w = (side + m - 1) / m * m;
+        }
+        long[] shape = Descriptor.Input.Layout == "nhwc" ? [1, h, w, 3] : [1, 3, h, w];
+        var data = new float[3 * h * w];
+        using var lease = Run(data, shape);
+    }
+
+    /// <summary>Runs one prepared frame. Thread-safe. Dispose the lease after reading its view.</summary>
+    public LogitsLease Run(PreparedInput input, RunOptions? runOptions = null) => Run(input.Data, input.Shape, runOptions);
+
+    public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null)
+    {
+        using var value = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data, shape);
+        IDisposableReadOnlyCollection<OrtValue> outputs;
+        try
+        {
+            outputs = _session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
+        }
+        catch (OnnxRuntimeException e)
+        {
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"The model failed on an input of shape [{string.Join(", ", shape)}]: {e.Message}", e);
+        }
+        try
+        {
+            var output = outputs[0];
+            var info = output.GetTensorTypeAndShape();
+            if (info.ElementDataType != TensorElementType.Float)
+                throw new ModelException(ModelErrorCodes.ModelOutputMismatch, $"Output '{Descriptor.Output.Tensor}' is {info.ElementDataType}, not float32.");
+            long[] outShape = info.Shape;
+            if (outShape.Length is not (3 or 4))
+                throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                    $"Output '{Descriptor.Output.Tensor}' must be [1,C,h,w] or [C,h,w]; it has shape [{string.Join(", ", outShape)}].");
+            CheckClassAxis(outShape);
+            return new LogitsLease(outputs, output, outShape);
+        }
+        catch
+        {
+            outputs.Dispose();
+            throw;
+        }
+    }
+
+    public void Dispose()
+    {
+        _session.Dispose();
+        _defaultRunOptions.Dispose();
+    }
+}

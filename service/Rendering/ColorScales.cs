@@ -1,0 +1,88 @@
+using SixLabors.ImageSharp.PixelFormats;
+
+namespace Strayspot.Service.Rendering;
+
+/// <summary>
+/// Our own colours, computed rather than copied: class colours spread by the golden angle in OKLCH,
+/// and a heat scale whose OKLab lightness rises linearly, so equal score steps look like equal steps.
+/// </summary>
+public static class ColorScales
+{
+    private const double GoldenAngleDegrees = 137.50776405003785;
+
+    /// <summary>Distinct colours for <paramref name="count"/> classes, deterministic.</summary>
+    public static Rgb24[] ClassColors(int count)
+    {
+        var colors = new Rgb24[count];
+        for (int i = 0; i < count; i++)
+        {
+            double hue = (40.0 + i * GoldenAngleDegrees) % 360.0;
+            // Alternate lightness so neighbours in hue still differ when many classes share the wheel.
+            double lightness = (i % 3) switch { 0 => 0.72, 1 => 0.58, _ => 0.84 };
+            colors[i] = FromOklch(lightness, 0.13, hue);
+        }
+        return colors;
+    }
+
+    /// <summary>The heat scale as a 256-entry table: dark blue-violet (low) through magenta to pale yellow (high).</summary>
+    public static Rgb24[] HeatTable { get; } = BuildHeatTable();
+
+    private static Rgb24[] BuildHeatTable()
+    {
+        var table = new Rgb24[256];
+        for (int i = 0; i < 256; i++)
+        {
+            double t = i / 255.0;
+            double lightness = 0.22 + 0.72 * t;
+            double chroma = 0.09 + 0.08 * Math.Sin(Math.PI * t);
+            double hue = 285.0 - 190.0 * t; // violet → red → yellow
+            table[i] = FromOklch(lightness, chroma, hue);
+        }
+        return table;
+    }
+
+    public static Rgb24 FromOklch(double l, double c, double hueDegrees)
+    {
+        double h = hueDegrees * Math.PI / 180.0;
+        // Reduce chroma until the colour fits sRGB, so hue and lightness are kept.
+        for (int step = 0; step < 40; step++)
+        {
+            var (r, g, b) = OklabToLinearSrgb(l, c * Math.Cos(h), c * Math.Sin(h));
+            if (r >= -1e-4 && g >= -1e-4 && b >= -1e-4 && r <= 1.0001 && g <= 1.0001 && b <= 1.0001)
+                return new Rgb24(Encode(r), Encode(g), Encode(b));
+            c *= 0.9;
+        }
+        var (r0, g0, b0) = OklabToLinearSrgb(l, 0, 0);
+        return new Rgb24(Encode(r0), Encode(g0), Encode(b0));
+    }
+
+    // OKLab to linear sRGB, matrices from the published OKLab definition (an open colour-space standard).
+    private static (double R, double G, double B) OklabToLinearSrgb(double l, double a, double b)
+    {
+        double l_ = l + 0.3963377774 * a + 0.2158037573 * b;
+        double m_ = l - 0.1055613458 * a - 0.0638541728 * b;
+        double s_ = l - 0.0894841775 * a - 1.2914855480 * b;
+        double L = l_ * l_ * l_, M = m_ * m_ * m_, S = s_ * s_ * s_;
+        return (
+            +4.0767416621 * L - 3.3077115913 * M + 0.2309699292 * S,
+            -1.2684380046 * L + 2.6097574011 * M - 0.3413193965 * S,
+            -0.0041960863 * L - 0.7034186147 * M + 1.7076147010 * S);
+    }
+
+    private static byte Encode(double linear)
+    {
+        linear = Math.Clamp(linear, 0, 1);
+        double srgb = linear <= 0.0031308 ? 12.92 * linear : 1.055 * Math.Pow(linear, 1 / 2.4) - 0.055;
+        return (byte)Math.Clamp((int)Math.Round(srgb * 255), 0, 255);
+    }
+
+    /// <summary>Parses "#rrggbb".</summary>
+    public static bool TryParseHex(string? text, out Rgb24 color)
+    {
+        color = default;
+        if (text is not { Length: 7 } || text[0] != '#') return false;
+        if (!int.TryParse(text.AsSpan(1), System.Globalization.NumberStyles.HexNumber, null, out int v)) return false;
+        color = new Rgb24((byte)(v >> 16), (byte)(v >> 8), (byte)v);
+        return true;
+    }
+}

@@ -1,0 +1,132 @@
+using Strayspot.Scoring.Logits;
+using Strayspot.Scoring.Pipeline;
+using Strayspot.Scoring.Standardization;
+
+namespace Strayspot.Tests.Scoring.Pipeline;
+
+public class FramePipelineTests
+{
+    private static readonly ScoringOptions Plain = new()
+    {
+        BoundarySuppression = new BoundarySuppressionOptions { Enabled = false },
+        Smoothing = new SmoothingOptions { Enabled = false },
+        MinimumRegionArea = 1,
+    };
+
+    /// <summary>Two classes left|right, confident (max logit 10), with a 6×6 low-confidence patch (max logit 4) at (20,8).</summary>
+    private static LogitsView SceneWithPatch(out int patchX, out int patchY)
+    {
+        const int h = 24, w = 40;
+        patchX = 20; patchY = 8;
+        var data = new float[2 * h * w];
+        for (int y = 0; y < h; y++)
+            for (int x = 0; x < w; x++)
+            {
+                bool left = x < w / 2 - 8;
+                bool patch = x >= patchX && x < patchX + 6 && y >= patchY && y < patchY + 6;
+                float top = patch ? 4f : 10f;
+                data[(0 * h + y) * w + x] = left ? top : 0f;
+                data[(1 * h + y) * w + x] = left ? 0f : top;
+            }
+        return new LogitsView(data, 2, h, w);
+    }
+
+    private static ClassStatistics Stats() => new([new("left", 1000, 10, 1), new("right", 1000, 10, 2)]);
+
+    [Fact]
+    public void Max_logit_score_is_the_negated_max_logit()
+    {
+        var logits = SceneWithPatch(out _, out _);
+        var s = new FramePipeline(Plain with { Method = ScoreMethod.MaxLogit, Threshold = -7 }, null).Score(logits, 24, 40);
+        for (int i = 0; i < s.AnomalyScore.Length; i++) Assert.Equal(-s.MaxLogit[i], s.AnomalyScore[i]);
+    }
+
+    [Fact]
+    public void Sml_uses_the_predicted_class_statistics_and_finds_the_patch_as_one_region()
+    {
+        var logits = SceneWithPatch(out int px, out int py);
+        // Patch pixels are class "right": SML = (4 - 10) / 2 = -3, anomaly score 3; elsewhere 0.
+        var s = new FramePipeline(Plain with { Method = ScoreMethod.Sml, Threshold = 2.5f }, Stats()).Score(logits, 24, 40);
+        Assert.Equal(3f, s.AnomalyScore[(py + 1) * 40 + px + 1], 5);
+        Assert.Equal(0f, s.AnomalyScore[0], 5);
+        var region = Assert.Single(s.Regions.Regions);
+        Assert.Equal((px, py, 6, 6), (region.Left, region.Top, region.Width, region.Height));
+        Assert.Equal(36, s.FlaggedPixels);
+        Assert.Equal(3f, s.FrameScore, 5);
+    }
+
+    [Fact]
+    public void Upsampled_class_boundary_is_a_false_region_until_boundary_suppression_removes_it()
+    {
+        var logits = SceneWithPatch(out int px, out int py);
+        // Interpolating between two confident classes halves the max logit along the boundary.
+        var without = new FramePipeline(Plain with { Method = ScoreMethod.Sml, Threshold = 2.0f }, Stats()).Score(logits, 96, 160);
+        Assert.Equal(2, without.Regions.Regions.Count);
+
+        var options = Plain with { Method = ScoreMethod.Sml, Threshold = 2.0f, BoundarySuppression = new BoundarySuppressionOptions() };
+        var s = new FramePipeline(options, Stats()).Score(logits, 96, 160);
+        var region = Assert.Single(s.Regions.Regions);
+        // 4× upsampling: the patch centre (px+3, py+3) maps to 4·(px+3), 4·(py+3).
+        Assert.InRange(region.CentroidX, 4 * (px + 3) - 1.5, 4 * (px + 3) + 1.5);
+        Assert.InRange(region.CentroidY, 4 * (py + 3) - 1.5, 4 * (py + 3) + 1.5);
+    }
+
+    [Fact]
+    public void Full_method_runs_with_default_stages_and_reuses_buffers_across_frame_sizes()
+    {
+        var logits = SceneWithPatch(out _, out _);
+        var pipeline = new FramePipeline(new ScoringOptions { MinimumRegionArea = 1 }, Stats());
+        var big = pipeline.Score(logits, 96, 160);
+        Assert.Equal(96 * 160, big.AnomalyScore.Length);
+        var small = pipeline.Score(logits, 24, 40);
+        Assert.Equal(24 * 40, small.AnomalyScore.Length);
+        foreach (float v in small.AnomalyScore) Assert.True(float.IsFinite(v));
+    }
+
+    [Fact]
+    public void Sml_without_statistics_is_refused()
+    {
+        var e = Assert.Throws<ScoringInputException>(() => new FramePipeline(new ScoringOptions(), null));
+        Assert.Equal(ScoringErrorCodes.StatisticsMismatch, e.Code);
+    }
+
+    [Fact]
+    public void Statistics_for_another_class_count_are_refused_with_both_numbers()
+    {
+        var logits = SceneWithPatch(out _, out _);
+        var three = new ClassStatistics([new("a", 1000, 1, 1), new("b", 1000, 1, 1), new("c", 1000, 1, 1)]);
+        var e = Assert.Throws<ScoringInputException>(() => new FramePipeline(Plain, three).Score(logits, 24, 40));
+        Assert.Contains("2", e.Message);
+        Assert.Contains("3", e.Message);
+    }
+
+    [Fact]
+    public void Non_finite_logits_are_refused()
+    {
+        var data = new float[2 * 3 * 3];
+        data[7] = float.NaN;
+        var e = Assert.Throws<ScoringInputException>(() =>
+            new FramePipeline(Plain with { Method = ScoreMethod.MaxLogit }, null).Score(new LogitsView(data, 2, 3, 3), 3, 3));
+        Assert.Equal(ScoringErrorCodes.LogitsNonFinite, e.Code);
+    }
+
+    [Theory]
+    [InlineData(ScoreMethod.Msp)]
+    [InlineData(ScoreMethod.Entropy)]
+    [InlineData(ScoreMethod.Energy)]
+    public void Baselines_rank_the_patch_above_the_confident_pixels(ScoreMethod method)
+    {
+        var logits = SceneWithPatch(out int px, out int py);
+        var s = new FramePipeline(Plain with { Method = method }, null).Score(logits, 24, 40);
+        Assert.True(s.AnomalyScore[(py + 2) * 40 + px + 2] > s.AnomalyScore[2 * 40 + 2]);
+    }
+
+    [Fact]
+    public void Single_pixel_frame_works()
+    {
+        var s = new FramePipeline(new ScoringOptions { MinimumRegionArea = 1, Threshold = 100 }, new ClassStatistics([new("only", 1000, 0, 1)]))
+            .Score(new LogitsView(new float[] { 0.5f }, 1, 1, 1), 1, 1);
+        Assert.Equal(-0.5f, s.AnomalyScore[0], 5);
+        Assert.Empty(s.Regions.Regions);
+    }
+}

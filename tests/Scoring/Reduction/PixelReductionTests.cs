@@ -1,0 +1,188 @@
+using Strayspot.Scoring.Logits;
+using Strayspot.Scoring.Reduction;
+
+namespace Strayspot.Tests.Scoring.Reduction;
+
+public class PixelReductionTests
+{
+    private const ReductionOutputs All = ReductionOutputs.Msp | ReductionOutputs.Entropy | ReductionOutputs.Energy;
+
+    /// <summary>Reduces logits whose every pixel holds the same class vector (so equal sizes and resizing agree).</summary>
+    private static ReducedMaps ReduceConstant(float[] perClass, ReductionOutputs outputs, double temperature = 1.0, int h = 3, int w = 11, int outH = 3, int outW = 11)
+    {
+        int c = perClass.Length;
+        var data = new float[c * h * w];
+        for (int k = 0; k < c; k++) Array.Fill(data, perClass[k], k * h * w, h * w);
+        var maps = new ReducedMaps();
+        new PixelReduction(outputs, temperature).Reduce(new LogitsView(data, c, h, w), outH, outW, maps);
+        return maps;
+    }
+
+    private static void AllNear(float expected, Span<float> actual, float tol = 1e-6f)
+    {
+        foreach (float v in actual) Assert.True(Math.Abs(v - expected) <= tol, $"expected {expected}, got {v}");
+    }
+
+    // Worked by hand: logits [0, ln 3] give p = [1/4, 3/4].
+    [Theory]
+    [InlineData(3, 11, 3, 11)]
+    [InlineData(2, 3, 9, 20)]
+    public void Two_classes_zero_and_ln3_worked_by_hand(int h, int w, int outH, int outW)
+    {
+        var maps = ReduceConstant([0f, MathF.Log(3f)], All, 1.0, h, w, outH, outW);
+        Assert.Equal(outH * outW, maps.ClassIndex.Length);
+        foreach (var c in maps.ClassIndex) Assert.Equal(1, c);
+        AllNear(MathF.Log(3f), maps.MaxLogit);
+        AllNear(0.75f, maps.Msp);
+        AllNear((float)-(0.25 * Math.Log(0.25) + 0.75 * Math.Log(0.75)), maps.Entropy);
+        AllNear((float)-Math.Log(4), maps.Energy);
+    }
+
+    // Worked by hand: temperature 2 on [0, ln 3]: −2·ln(e^0 + e^(ln3 / 2)) = −2·ln(1 + √3).
+    [Fact]
+    public void Energy_at_temperature_two_worked_by_hand()
+    {
+        var maps = ReduceConstant([0f, MathF.Log(3f)], All, temperature: 2.0);
+        AllNear((float)(-2 * Math.Log(1 + Math.Sqrt(3))), maps.Energy);
+        AllNear(0.75f, maps.Msp); // MSP and entropy do not depend on the energy temperature
+        var energyOnly = ReduceConstant([0f, MathF.Log(3f)], ReductionOutputs.Energy, temperature: 2.0);
+        AllNear((float)(-2 * Math.Log(1 + Math.Sqrt(3))), energyOnly.Energy);
+        Assert.True(energyOnly.Msp.IsEmpty && energyOnly.Entropy.IsEmpty);
+    }
+
+    // Worked by hand: [1000, 1000] is a fair coin: MSP 1/2, entropy ln 2, energy −1000 − ln 2; nothing overflows.
+    [Fact]
+    public void Large_logits_stay_finite()
+    {
+        var maps = ReduceConstant([1000f, 1000f], All);
+        foreach (var c in maps.ClassIndex) Assert.Equal(0, c);
+        AllNear(0.5f, maps.Msp);
+        AllNear(MathF.Log(2f), maps.Entropy);
+        AllNear(-1000f - MathF.Log(2f), maps.Energy, 1e-4f);
+
+        var far = ReduceConstant([1000f, -1000f, 3e4f], All);
+        foreach (var c in far.ClassIndex) Assert.Equal(2, c);
+        AllNear(1f, far.Msp);
+        AllNear(0f, far.Entropy);
+        AllNear(-3e4f, far.Energy);
+    }
+
+    [Fact]
+    public void Ties_go_to_the_lowest_class_index()
+    {
+        var maps = ReduceConstant([1f, 5f, 2f, 5f, 5f], ReductionOutputs.Msp);
+        foreach (var c in maps.ClassIndex) Assert.Equal(1, c);
+        AllNear(5f, maps.MaxLogit);
+        var allEqual = ReduceConstant([-3f, -3f, -3f, -3f], ReductionOutputs.Entropy, 1.0, 4, 4, 9, 17);
+        foreach (var c in allEqual.ClassIndex) Assert.Equal(0, c);
+        AllNear(MathF.Log(4f), allEqual.Entropy);
+    }
+
+    [Fact]
+    public void Single_class_is_certain()
+    {
+        var maps = ReduceConstant([-7.5f], All);
+        foreach (var c in maps.ClassIndex) Assert.Equal(0, c);
+        AllNear(-7.5f, maps.MaxLogit);
+        AllNear(1f, maps.Msp);
+        AllNear(0f, maps.Entropy);
+        AllNear(7.5f, maps.Energy);
+    }
+
+    [Theory]
+    [InlineData(1, 1, 1, 1)]
+    [InlineData(4, 6, 1, 1)]
+    [InlineData(1, 1, 1, 3)]
+    public void Tiny_frames_work(int h, int w, int outH, int outW)
+    {
+        var logits = ReductionAgainstOnnxRuntimeTests.RandomLogits(3 * h * w, 5);
+        var view = new LogitsView(logits, 3, h, w);
+        var fused = new ReducedMaps();
+        var naive = new ReducedMaps();
+        new PixelReduction(All).Reduce(view, outH, outW, fused);
+        NaiveReduction.Reduce(view, outH, outW, All, 1.0, naive);
+        Assert.Equal(naive.ClassIndex.ToArray(), fused.ClassIndex.ToArray());
+        AssertClose(naive.MaxLogit, fused.MaxLogit, 1e-5f);
+    }
+
+    [Fact]
+    public void Bad_frame_size_is_refused_with_its_numbers()
+    {
+        var view = new LogitsView(new float[2 * 4 * 4], 2, 4, 4);
+        var e = Assert.Throws<ScoringInputException>(() => new PixelReduction().Reduce(view, 0, 7, new ReducedMaps()));
+        Assert.Equal(ScoringErrorCodes.FrameSize, e.Code);
+        Assert.Contains("7×0", e.Message);
+    }
+
+    [Fact]
+    public void Mismatched_logits_shape_is_refused_with_its_numbers()
+    {
+        var e = Assert.Throws<ScoringInputException>(() => new LogitsView(new float[100], 2, 4, 4));
+        Assert.Equal(ScoringErrorCodes.LogitsShape, e.Code);
+        Assert.Contains("32", e.Message);
+        Assert.Contains("100", e.Message);
+    }
+
+    [Fact]
+    public void Bad_options_are_refused()
+    {
+        Assert.Equal(ScoringErrorCodes.Options, Assert.Throws<ScoringInputException>(() => new PixelReduction(All, 0)).Code);
+        Assert.Equal(ScoringErrorCodes.Options, Assert.Throws<ScoringInputException>(() => new PixelReduction(All, double.NaN)).Code);
+        Assert.Equal(ScoringErrorCodes.Options, Assert.Throws<ScoringInputException>(() => new PixelReduction((ReductionOutputs)8)).Code);
+    }
+
+    internal static void AssertClose(Span<float> expected, Span<float> actual, float tol, string what = "")
+    {
+        Assert.Equal(expected.Length, actual.Length);
+        for (int i = 0; i < expected.Length; i++)
+            Assert.True(Math.Abs(expected[i] - actual[i]) <= tol * Math.Max(1f, Math.Abs(expected[i])),
+                $"{what}[{i}]: expected {expected[i]}, got {actual[i]}");
+    }
+
+    /// <summary>Fused against the naive oracle on random logits over many shapes, including reuse of one
+    /// <see cref="ReducedMaps"/> and one <see cref="PixelReduction"/> across frames of changing size.</summary>
+    [Fact]
+    public void Fused_equals_naive_on_random_logits_of_many_sizes()
+    {
+        var rng = new Random(11);
+        var reduction = new PixelReduction(All, 1.5);
+        var fused = new ReducedMaps();
+        for (int trial = 0; trial < 60; trial++)
+        {
+            int c = rng.Next(1, 24), h = rng.Next(1, 30), w = rng.Next(1, 40);
+            int outH = rng.Next(3) == 0 ? h : rng.Next(1, 90), outW = rng.Next(3) == 0 ? w : rng.Next(1, 120);
+            var logits = ReductionAgainstOnnxRuntimeTests.RandomLogits(c * h * w, trial, scale: 20f);
+            var view = new LogitsView(logits, c, h, w);
+            var naive = new ReducedMaps();
+            NaiveReduction.Reduce(view, outH, outW, All, 1.5, naive);
+            reduction.Reduce(view, outH, outW, fused);
+            string at = $"trial {trial} C={c} {h}×{w}→{outH}×{outW}";
+            AssertClose(naive.MaxLogit, fused.MaxLogit, 1e-5f, at + " max");
+            AssertClose(naive.Msp, fused.Msp, 1e-5f, at + " msp");
+            AssertClose(naive.Entropy, fused.Entropy, 1e-5f, at + " entropy");
+            AssertClose(naive.Energy, fused.Energy, 1e-5f, at + " energy");
+            var up = NaiveReduction.Upsample(view, outH, outW);
+            int n = outH * outW;
+            for (int p = 0; p < n; p++)
+            {
+                int k = fused.ClassIndex[p];
+                // The fused class must be a maximum of the upsampled values, up to rounding of the blend.
+                Assert.True(Math.Abs(up[k * n + p] - naive.MaxLogit[p]) <= 1e-5f * Math.Max(1f, Math.Abs(naive.MaxLogit[p])), $"{at} pixel {p} class {k}");
+            }
+        }
+    }
+
+    [Fact]
+    public void Maps_grow_only_when_needed_and_optional_maps_follow_the_request()
+    {
+        var maps = new ReducedMaps();
+        maps.EnsureSize(8, 4, ReductionOutputs.Msp);
+        Assert.Equal(32, maps.Msp.Length);
+        Assert.True(maps.Entropy.IsEmpty && maps.Energy.IsEmpty);
+        var before = maps.MaxLogitArray;
+        maps.EnsureSize(4, 4, ReductionOutputs.None);
+        Assert.Same(before, maps.MaxLogitArray);
+        Assert.Equal(16, maps.MaxLogit.Length);
+        Assert.True(maps.Msp.IsEmpty);
+    }
+}
