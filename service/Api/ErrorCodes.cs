@@ -1,0 +1,91 @@
+using Strayspot.Scoring.Logits;
+
+namespace Strayspot.Service.Api;
+
+/// <summary>One row of the error table: the stable <c>code</c> member of a problem+json answer.</summary>
+public sealed record ErrorCode(string Code, int Status, string Title);
+
+/// <summary>
+/// Every <c>code</c> the HTTP API can answer with. Codes are part of the API contract: clients switch on them,
+/// so never rename one; add new ones instead.
+/// </summary>
+public static class ErrorCodes
+{
+    public const string BadRequest = "bad-request";
+    public const string NotFound = "not-found";
+    public const string MethodNotAllowed = "method-not-allowed";
+    public const string ModelNotFound = "model-not-found";
+    public const string ModelUnavailable = "model-unavailable";
+    public const string ModelClassMismatch = "model-class-mismatch";
+    public const string ArtifactNotFound = "artifact-not-found";
+    public const string PayloadTooLarge = "payload-too-large";
+    public const string UnsupportedMediaType = "unsupported-media-type";
+    public const string ValidationFailed = "validation-failed";
+    public const string QueueFull = "queue-full";
+    public const string Timeout = "timeout";
+    public const string Unauthorized = "unauthorized";
+    public const string Forbidden = "forbidden";
+    public const string NotReady = "not-ready";
+    public const string InternalError = "internal-error";
+    public const string PathOutsideData = "path-outside-data";
+    public const string StatisticsMissing = "statistics-missing";
+
+    private static readonly ErrorCode[] Rows =
+    [
+        new(BadRequest, 400, "The request is malformed"),
+        new(ValidationFailed, 400, "A request value is invalid"),
+        new(PathOutsideData, 400, "The path leaves the data folder"),
+        new(Unauthorized, 401, "An API key is required"),
+        new(Forbidden, 403, "The API key lacks a needed scope"),
+        new(NotFound, 404, "No such resource"),
+        new(ModelNotFound, 404, "No such model"),
+        new(ArtifactNotFound, 404, "No such frame artifact"),
+        new(MethodNotAllowed, 405, "Method not allowed on this resource"),
+        new(PayloadTooLarge, 413, "The request body is too large"),
+        new(UnsupportedMediaType, 415, "Unsupported content type"),
+        new(ModelClassMismatch, 422, "The input does not fit the model's classes"),
+        new(StatisticsMissing, 422, "The model has no class statistics for this method"),
+        new(QueueFull, 429, "Too many frames are waiting; retry later"),
+        new(InternalError, 500, "Internal error"),
+        new(ModelUnavailable, 503, "The model could not be loaded"),
+        new(Timeout, 503, "The frame was not scored in time"),
+        new(NotReady, 503, "The service is not ready"),
+        // Codes raised by the scoring library (ScoringInputException.Code).
+        new(ScoringErrorCodes.NpyFormat, 400, "The NPY file is malformed or of an unsupported dtype"),
+        new(ScoringErrorCodes.LogitsShape, 400, "The logits have an unusable shape"),
+        new(ScoringErrorCodes.LogitsNonFinite, 400, "The logits contain NaN or infinite values"),
+        new(ScoringErrorCodes.FrameSize, 400, "The frame size is invalid"),
+        new(ScoringErrorCodes.Options, 400, "The scoring options are invalid"),
+        new(ScoringErrorCodes.StatisticsMismatch, 422, "The class statistics do not fit the logits"),
+        new(ScoringErrorCodes.StatisticsFormat, 422, "The class statistics are invalid"),
+    ];
+
+    private static readonly Dictionary<string, ErrorCode> ByCode = Rows.ToDictionary(r => r.Code, StringComparer.Ordinal);
+
+    public static IReadOnlyList<ErrorCode> All => Rows;
+
+    public static bool TryGet(string code, out ErrorCode row) => ByCode.TryGetValue(code, out row!);
+
+    /// <summary>The row for a code; an unknown code is a programming error, answered as a 500.</summary>
+    public static ErrorCode Get(string code) =>
+        ByCode.TryGetValue(code, out var row) ? row : new ErrorCode(code, 500, "Error");
+
+    /// <summary>The code for a bare status (404 from routing, 413 from the server, ...).</summary>
+    public static string ForStatus(int status) => status switch
+    {
+        400 => BadRequest,
+        401 => Unauthorized,
+        403 => Forbidden,
+        404 => NotFound,
+        405 => MethodNotAllowed,
+        413 => PayloadTooLarge,
+        415 => UnsupportedMediaType,
+        429 => QueueFull,
+        503 => NotReady,
+        >= 500 => InternalError,
+        _ => BadRequest,
+    };
+
+    /// <summary>A stable URI reference naming the problem type (RFC 9457 §3.1.1); not meant to be dereferenced.</summary>
+    public static string TypeUri(string code) => "urn:strayspot:problem:" + code;
+}

@@ -1,0 +1,72 @@
+namespace Strayspot.Service.Hosting;
+
+/// <summary>A path from a request that would leave the folder it must stay in.</summary>
+public sealed class UnsafePathException(string message) : Exception(message);
+
+/// <summary>
+/// Resolves a path sent by a client below a root folder and refuses anything that would leave it:
+/// <c>..</c> segments, absolute or drive-rooted paths, and symbolic links (on any component) pointing outside.
+/// </summary>
+public static class SafePath
+{
+    private const int MaxLinkHops = 40;
+
+    public static string Resolve(string root, string relative)
+    {
+        ArgumentException.ThrowIfNullOrEmpty(root);
+        if (string.IsNullOrWhiteSpace(relative))
+            throw new UnsafePathException("The path is empty.");
+        if (relative.Contains('\0'))
+            throw new UnsafePathException("The path contains a NUL character.");
+        if (Path.IsPathRooted(relative) || relative.StartsWith('/') || relative.StartsWith('\\') ||
+            (relative.Length >= 2 && relative[1] == ':'))
+            throw new UnsafePathException($"The path '{relative}' is absolute; give it relative to the data folder.");
+
+        string[] parts = relative.Split(['/', '\\'], StringSplitOptions.RemoveEmptyEntries);
+        foreach (string part in parts)
+            if (part is ".." or ".")
+                throw new UnsafePathException($"The path '{relative}' contains '{part}'; give it without relative steps.");
+
+        string realRoot = ResolveAll(Path.GetFullPath(root));
+        string current = realRoot;
+        foreach (string part in parts)
+        {
+            current = RealPath(Path.Combine(current, part));
+            if (!IsWithin(realRoot, current))
+                throw new UnsafePathException($"The path '{relative}' leads outside the data folder through a link.");
+        }
+        return current;
+    }
+
+    public static bool IsWithin(string root, string path)
+    {
+        string r = Path.TrimEndingDirectorySeparator(root);
+        return path.Equals(r, StringComparison.Ordinal) ||
+               path.StartsWith(r + Path.DirectorySeparatorChar, StringComparison.Ordinal);
+    }
+
+    /// <summary>Follows links on the last component (chains included); parent components are already real.</summary>
+    private static string RealPath(string path)
+    {
+        for (int hop = 0; hop < MaxLinkHops; hop++)
+        {
+            FileSystemInfo info = Directory.Exists(path) ? new DirectoryInfo(path) : new FileInfo(path);
+            if (!info.Exists && info.LinkTarget is null) return path; // not there yet: nothing to follow
+            string? target = info.LinkTarget;
+            if (target is null) return path;
+            string parent = Path.GetDirectoryName(path) ?? path;
+            // A link's target may itself contain links in its parents: resolve them component by component.
+            path = ResolveAll(Path.GetFullPath(target, parent));
+        }
+        throw new UnsafePathException($"Too many symbolic links while resolving '{path}'.");
+    }
+
+    private static string ResolveAll(string fullPath)
+    {
+        string? rootPart = Path.GetPathRoot(fullPath);
+        string current = rootPart ?? "/";
+        foreach (string part in fullPath[current.Length..].Split(Path.DirectorySeparatorChar, StringSplitOptions.RemoveEmptyEntries))
+            current = RealPath(Path.Combine(current, part));
+        return current;
+    }
+}

@@ -1,0 +1,211 @@
+using System.Diagnostics;
+using Microsoft.AspNetCore.Authentication;
+using Microsoft.AspNetCore.Authorization;
+using Microsoft.AspNetCore.Http.Features;
+using Microsoft.AspNetCore.Server.Kestrel.Core;
+using Microsoft.Extensions.Options;
+using Serilog;
+using Serilog.Events;
+using Serilog.Formatting.Compact;
+using Strayspot.Service.Api;
+
+namespace Strayspot.Service.Hosting;
+
+/// <summary>Builds the HTTP service: configuration, logging, limits, errors, authentication and the API routes.</summary>
+public static class ServiceHost
+{
+    public const string EnvironmentPrefix = "STRAYSPOT_";
+
+    public static WebApplication Build(ServiceHostSettings settings, Action<WebApplicationBuilder>? configure = null)
+    {
+        var builder = WebApplication.CreateBuilder(new WebApplicationOptions
+        {
+            // Many hosts share one test process: no file watchers on appsettings.json.
+            Args = ["--hostBuilder:reloadConfigOnChange=false"],
+            ContentRootPath = AppContext.BaseDirectory,
+            EnvironmentName = settings.EnvironmentName,
+        });
+        ConfigureConfiguration(builder, settings);
+        ConfigureServices(builder, settings);
+        configure?.Invoke(builder);
+
+        var app = builder.Build();
+        ConfigurePipeline(app);
+        return app;
+    }
+
+    private static void ConfigureConfiguration(WebApplicationBuilder builder, ServiceHostSettings settings)
+    {
+        builder.Configuration.AddEnvironmentVariables(EnvironmentPrefix);
+        var overrides = new Dictionary<string, string?>();
+        if (settings.ModelsRoot is not null) overrides[$"{ServiceOptions.Section}:{nameof(ServiceOptions.ModelsRoot)}"] = settings.ModelsRoot;
+        if (settings.DataRoot is not null) overrides[$"{ServiceOptions.Section}:{nameof(ServiceOptions.DataRoot)}"] = settings.DataRoot;
+        foreach (var (k, v) in settings.Configuration ?? new Dictionary<string, string?>()) overrides[k] = v;
+        builder.Configuration.AddInMemoryCollection(overrides);
+
+        var urls = settings.Urls
+                   ?? builder.Configuration["urls"]?.Split(';', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries)
+                   ?? [ServiceHostSettings.DefaultUrl];
+        // Endpoints declared under Kestrel:Endpoints bypass "urls"; count them for the loopback rule too.
+        var kestrelUrls = builder.Configuration.GetSection("Kestrel:Endpoints").GetChildren()
+            .Select(e => e["Url"]).OfType<string>();
+        builder.WebHost.UseUrls(urls.ToArray());
+        builder.Services.AddSingleton(new ListenAddresses(urls.Concat(kestrelUrls).ToList()));
+    }
+
+    private static void ConfigureServices(WebApplicationBuilder builder, ServiceHostSettings settings)
+    {
+        var services = builder.Services;
+        services.AddOptions<ServiceOptions>()
+            .Bind(builder.Configuration.GetSection(ServiceOptions.Section))
+            .PostConfigure(o =>
+            {
+                o.ModelsRoot = Path.GetFullPath(o.ModelsRoot);
+                o.DataRoot = Path.GetFullPath(o.DataRoot);
+                o.ArtifactsRoot = o.ArtifactsRoot is null ? null : Path.GetFullPath(o.ArtifactsRoot);
+            })
+            .ValidateOnStart();
+        services.AddSingleton<IValidateOptions<ServiceOptions>, ServiceOptionsValidator>();
+
+        services.Configure<HostOptions>(o => o.ShutdownTimeout = TimeSpan.FromSeconds(8)); // inside docker stop's 10 s
+        services.AddOptions<KestrelServerOptions>().Configure<IOptions<ServiceOptions>>((k, s) =>
+        {
+            k.AddServerHeader = false;
+            k.Limits.MaxRequestBodySize = s.Value.MaxRequestBytes;
+        });
+        services.AddOptions<FormOptions>().Configure<IOptions<ServiceOptions>>((f, s) =>
+        {
+            f.MultipartBodyLengthLimit = s.Value.MaxRequestBytes;
+            f.ValueCountLimit = 64;
+        });
+
+        ConfigureLogging(builder, settings);
+
+        services.AddProblemDetails(o => o.CustomizeProblemDetails = AddCodeAndTrace);
+        services.AddExceptionHandler<ApiExceptionHandler>();
+
+        services.AddAuthentication(ApiKeyAuthenticationHandler.SchemeName)
+            .AddScheme<AuthenticationSchemeOptions, ApiKeyAuthenticationHandler>(ApiKeyAuthenticationHandler.SchemeName, null);
+        services.AddSingleton<IAuthorizationHandler, ScopeHandler>();
+        services.AddAuthorization();
+        services.AddOptions<AuthorizationOptions>().Configure<IOptions<ServiceOptions>>((a, s) =>
+        {
+            if (s.Value.ApiKeys.Count > 0)
+                a.FallbackPolicy = new AuthorizationPolicyBuilder(ApiKeyAuthenticationHandler.SchemeName).RequireAuthenticatedUser().Build();
+            a.AddPolicy(ApiPolicies.Admin, p => p
+                .AddAuthenticationSchemes(ApiKeyAuthenticationHandler.SchemeName)
+                .AddRequirements(new ScopeRequirement(ApiPolicies.Admin)));
+        });
+
+        services.AddSingleton(TimeProvider.System);
+        services.AddSingleton<ModelCatalog>();
+        services.AddHostedService<ModelCatalogLoader>();
+        services.AddSingleton<Readiness>();
+        services.AddSingleton<FrameGate>();
+        services.AddSingleton<ScoringLane>();
+        services.AddSingleton<ArtifactStore>();
+        services.AddHostedService<ArtifactSweeper>();
+
+        services.AddServiceOpenApi();
+    }
+
+    private static void ConfigureLogging(WebApplicationBuilder builder, ServiceHostSettings settings)
+    {
+        builder.Logging.ClearProviders();
+        // One logger per host, not the static bootstrap logger: several hosts run side by side in tests.
+        builder.Services.AddSerilog((services, cfg) =>
+        {
+            cfg.MinimumLevel.Information()
+                .MinimumLevel.Override("Microsoft.AspNetCore", LogEventLevel.Warning)
+                .MinimumLevel.Override("Microsoft.Hosting.Lifetime", LogEventLevel.Information)
+                .ReadFrom.Configuration(builder.Configuration)
+                .Enrich.FromLogContext();
+            if (settings.ConsoleLog)
+                cfg.WriteTo.Console(new CompactJsonFormatter());
+            settings.ConfigureLogging?.Invoke(cfg);
+        }, preserveStaticLogger: true);
+    }
+
+    /// <summary>Every problem gets a stable code (from its status when the producer set none) and the trace id.</summary>
+    private static void AddCodeAndTrace(ProblemDetailsContext ctx)
+    {
+        var p = ctx.ProblemDetails;
+        int status = p.Status ?? ctx.HttpContext.Response.StatusCode;
+        p.Status = status;
+        if (!p.Extensions.TryGetValue("code", out var code) || code is null)
+        {
+            string c = ErrorCodes.ForStatus(status);
+            p.Extensions["code"] = c;
+            var row = ErrorCodes.Get(c);
+            p.Title = row.Title;
+            p.Type = ErrorCodes.TypeUri(c);
+            p.Detail ??= DefaultDetail(ctx.HttpContext, status);
+        }
+        p.Extensions["traceId"] = Activity.Current?.Id ?? ctx.HttpContext.TraceIdentifier;
+        p.Instance ??= ctx.HttpContext.Request.Path;
+    }
+
+    private static string? DefaultDetail(HttpContext http, int status) => status switch
+    {
+        404 => $"Nothing is served at {http.Request.Path}.",
+        405 => $"{http.Request.Method} is not allowed on {http.Request.Path}.",
+        413 => "The request body is larger than the service accepts (Service:MaxRequestBytes).",
+        415 => $"Content type '{http.Request.ContentType}' is not accepted here; see the API docs for the expected one.",
+        _ => null,
+    };
+
+    private static void ConfigurePipeline(WebApplication app)
+    {
+        app.UseSerilogRequestLogging(o =>
+        {
+            // The host's own logger: the static one is left alone (several hosts share a test process).
+            o.Logger = app.Services.GetRequiredService<Serilog.ILogger>();
+            o.MessageTemplate = "HTTP {RequestMethod} {Route} responded {StatusCode} in {Elapsed:0.0} ms";
+            o.EnrichDiagnosticContext = (diag, http) =>
+            {
+                diag.Set("RequestId", http.TraceIdentifier);
+                string? route = (http.GetEndpoint() as RouteEndpoint)?.RoutePattern.RawText;
+                diag.Set("Route", route is null ? "(no route)" : route.Length > 1 ? route.TrimEnd('/') : route);
+                if (http.User.Identity?.IsAuthenticated == true) diag.Set("Client", http.User.Identity.Name);
+            };
+        });
+        app.UseExceptionHandler(new ExceptionHandlerOptions { SuppressDiagnosticsCallback = _ => false });
+        app.UseStatusCodePages();
+        app.UseMiddleware<RequestSizeGuard>();
+        app.UseRouting();
+        app.UseServiceOpenApi();
+        app.UseAuthentication();
+        app.UseAuthorization();
+
+        HealthApi.Map(app);
+        var v1 = app.MapGroup("/v1");
+        ModelsApi.Map(v1);
+        FramesApi.Map(v1);
+    }
+}
+
+/// <summary>Refuses a body whose declared length is over the limit before anything reads it, on any server.</summary>
+public sealed class RequestSizeGuard(RequestDelegate next, IOptions<ServiceOptions> options, IProblemDetailsService problems)
+{
+    public async Task InvokeAsync(HttpContext http)
+    {
+        long max = options.Value.MaxRequestBytes;
+        if (http.Request.ContentLength is long length && length > max)
+        {
+            http.Response.StatusCode = StatusCodes.Status413PayloadTooLarge;
+            await problems.WriteAsync(new ProblemDetailsContext
+            {
+                HttpContext = http,
+                ProblemDetails =
+                {
+                    Status = 413, Title = ErrorCodes.Get(ErrorCodes.PayloadTooLarge).Title,
+                    Type = ErrorCodes.TypeUri(ErrorCodes.PayloadTooLarge),
+                    Detail = $"The request body has {length} bytes; the service accepts at most {max} (Service:MaxRequestBytes).",
+                    Extensions = { ["code"] = ErrorCodes.PayloadTooLarge },
+                },
+            });
+            return;
+        }
+        await next(http);
+    }
+}
