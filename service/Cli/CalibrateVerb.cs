@@ -97,69 +97,13 @@ public static class CalibrateVerb
         return command;
     }
 
-    private static CalibrationArtifact RunWithProgress(Calibrator calibrator, IReadOnlyList<string> frames, string outPath, TextWriter stdout, CancellationToken cancel)
-    {
-        bool interactive = !Console.IsOutputRedirected && stdout == Console.Out && AnsiConsole.Profile.Capabilities.Interactive;
-        if (!interactive)
-        {
-            var plain = new PlainProgress(stdout);
-            return calibrator.Run(frames, outPath, plain, cancel)!;
-        }
-        CalibrationArtifact? result = null;
-        AnsiConsole.Progress()
-            .AutoClear(false)
-            .Columns(new TaskDescriptionColumn(), new ProgressBarColumn(), new PercentageColumn(), new RemainingTimeColumn(), new SpinnerColumn())
-            .Start(ctx =>
-            {
-                var task = ctx.AddTask("calibrating", maxValue: frames.Count);
-                var rate = new RateClock();
-                result = calibrator.Run(frames, outPath, new Reporter(p =>
-                {
-                    task.Value = p.FramesDone;
-                    task.Description = string.Create(CultureInfo.InvariantCulture,
-                        $"{p.FramesDone}/{p.FramesTotal} frames  {rate.FramesPerSecond(p):F1} frames/s");
-                }), cancel);
-            });
-        return result!;
-    }
+    private static CalibrationArtifact RunWithProgress(Calibrator calibrator, IReadOnlyList<string> frames, string outPath, TextWriter stdout, CancellationToken cancel) =>
+        FrameProgress.Run("calibrating", frames.Count, stdout, progress =>
+            calibrator.Run(frames, outPath, new Progress(p => progress.Report(new FrameCount(p.FramesDone, p.FramesTotal, p.ResumedFrom))), cancel)!);
 
-    private sealed class Reporter(Action<CalibrationProgress> report) : IProgress<CalibrationProgress>
+    // Synchronous on purpose: Progress<T> would post to the thread pool and report out of order.
+    private sealed class Progress(Action<CalibrationProgress> report) : IProgress<CalibrationProgress>
     {
         public void Report(CalibrationProgress value) => report(value);
-    }
-
-    private sealed class RateClock
-    {
-        private readonly Stopwatch _clock = Stopwatch.StartNew();
-
-        /// <summary>Frames processed in this run (not the resumed ones) per second.</summary>
-        public double FramesPerSecond(CalibrationProgress p) =>
-            _clock.Elapsed.TotalSeconds > 0 ? (p.FramesDone - p.ResumedFrom) / _clock.Elapsed.TotalSeconds : 0;
-
-        public TimeSpan? Remaining(CalibrationProgress p)
-        {
-            double fps = FramesPerSecond(p);
-            return fps > 0 ? TimeSpan.FromSeconds((p.FramesTotal - p.FramesDone) / fps) : null;
-        }
-    }
-
-    /// <summary>One line per step when output goes to a file or pipe, at most every two seconds.</summary>
-    private sealed class PlainProgress(TextWriter writer) : IProgress<CalibrationProgress>
-    {
-        private readonly RateClock _rate = new();
-        private readonly Stopwatch _sinceLast = Stopwatch.StartNew();
-        private bool _first = true;
-
-        public void Report(CalibrationProgress p)
-        {
-            bool last = p.FramesDone == p.FramesTotal;
-            if (!_first && !last && _sinceLast.Elapsed < TimeSpan.FromSeconds(2)) return;
-            if (_first && p.ResumedFrom > 0) writer.WriteLine($"Resuming after {p.ResumedFrom} frames from the checkpoint.");
-            _first = false;
-            _sinceLast.Restart();
-            var eta = _rate.Remaining(p);
-            writer.WriteLine(string.Create(CultureInfo.InvariantCulture,
-                $"{p.FramesDone}/{p.FramesTotal} frames  {_rate.FramesPerSecond(p):F1} frames/s  ETA {(eta is { } t ? t.ToString(@"hh\:mm\:ss", CultureInfo.InvariantCulture) : "--:--:--")}"));
-        }
     }
 }

@@ -15,7 +15,12 @@ public static class CliApp
         var root = new RootCommand(
             "strayspot: finds what a segmentation model was never trained on. " +
             "A data-triage and monitoring aid, not a certified safety function.");
+        root.Subcommands.Add(ScoreVerb.Create());
         root.Subcommands.Add(ScoreLogitsVerb.Create());
+        root.Subcommands.Add(CalibrateVerb.Create(() => new Calibration.PixelReductionMaxLogitReducer()));
+        root.Subcommands.Add(InspectVerb.Create());
+        root.Subcommands.Add(ServeVerb.Create());
+        root.Subcommands.Add(HealthcheckVerb.Create());
         return root;
     }
 
@@ -48,16 +53,10 @@ public static class CliApp
             Console.Error.WriteLine($"error [file]: {e.Message}");
             return ExitBadInput;
         }
-        catch (Exception e) when (e is IUserFacingError u)
+        catch (Models.ModelException e)
         {
-            Console.Error.WriteLine($"error [{u.Code}]: {e.Message}");
+            Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
             return ExitBadInput;
         }
     }
-}
-
-/// <summary>An exception whose message is meant for the user, with a stable code.</summary>
-public interface IUserFacingError
-{
-    string Code { get; }
 }

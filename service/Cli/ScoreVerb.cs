@@ -1,0 +1,101 @@
+using System.CommandLine;
+using System.Text.Json;
+using Strayspot.Scoring.Pipeline;
+using Strayspot.Service.Calibration;
+using Strayspot.Service.Frames;
+using Strayspot.Service.Inference;
+using Strayspot.Service.Models;
+using Strayspot.Service.Rendering;
+using Strayspot.Service.Reports;
+
+namespace Strayspot.Service.Cli;
+
+/// <summary>
+/// Scores frames (files or a folder) through a model folder and writes, per frame, the report and PNG artifacts,
+/// plus <c>ranking.json</c>: every frame, highest frame score first.
+/// </summary>
+public static class ScoreVerb
+{
+    public static Command Create()
+    {
+        var model = new Argument<DirectoryInfo>("model") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
+        var frames = new Argument<string[]>("frames") { Description = "frame files, or folders of .png/.jpg/.jpeg/.webp", Arity = ArgumentArity.OneOrMore };
+        var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
+        var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default: cores)" };
+        var scoring = new ScoringOptionsBinding();
+        var command = new Command("score", "Score frames through a model and write reports and PNG artifacts.");
+        command.Arguments.Add(model);
+        command.Arguments.Add(frames);
+        command.Options.Add(output);
+        command.Options.Add(threads);
+        scoring.AddTo(command);
+        command.SetAction(p => CliApp.Guard(() =>
+        {
+            var files = ExpandFrames(p.GetValue(frames)!);
+            var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
+            using var bundle = ModelBundle.Load(p.GetValue(model)!.FullName, runtime);
+            if (bundle.Warning is not null) Console.Error.WriteLine($"warning: {bundle.Warning}");
+            var options = scoring.Apply(p, bundle.Scorer.Defaults);
+            string outFolder = p.GetValue(output)!.FullName;
+            var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress));
+            Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
+            foreach (var r in ranking.Take(5))
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {r.Frame}");
+            Console.WriteLine($"ranking: {Path.Combine(outFolder, "ranking.json")}");
+            return CliApp.ExitOk;
+        }));
+        return command;
+    }
+
+    public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
+
+    /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
+    public static IReadOnlyList<RankedFrame> ScoreAll(ModelBundle bundle, IReadOnlyList<string> files, ScoringOptions options,
+        string outFolder, IProgress<FrameCount>? progress = null)
+    {
+        Directory.CreateDirectory(outFolder);
+        var decoder = new FrameDecoder();
+        var colors = ColorScales.ClassColors(bundle.Model.ClassCount, bundle.Model.Descriptor.Classes.Select(c => c.Color).ToList());
+        var names = bundle.ClassNames;
+        var model = new ModelReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version);
+        var ranked = new List<RankedFrame>(files.Count);
+        var stems = new HashSet<string>(StringComparer.Ordinal);
+        for (int i = 0; i < files.Count; i++)
+        {
+            string stem = Path.GetFileNameWithoutExtension(files[i]);
+            if (!stems.Add(stem)) stem = $"{stem}-{i}";
+            string folder = Path.Combine(outFolder, stem);
+            using var frame = decoder.DecodeFile(files[i]);
+            var report = bundle.Scorer.Score(frame, (scored, timings) =>
+            {
+                var artifacts = ArtifactWriter.WriteAll(scored, colors, frame.Image, folder);
+                var r = FrameReport.From(scored, options, names, stem, model) with { Artifacts = artifacts };
+                r.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
+                r.TimingsMs["inference"] = timings.Inference.TotalMilliseconds;
+                return r;
+            }, options);
+            AtomicFile.WriteAllBytes(Path.Combine(folder, "report.json"), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
+            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, "report.json")));
+            progress?.Report(new FrameCount(i + 1, files.Count));
+        }
+        ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));
+        AtomicFile.WriteAllBytes(Path.Combine(outFolder, "ranking.json"), JsonSerializer.SerializeToUtf8Bytes(ranked, FrameReport.JsonOptions));
+        return ranked;
+    }
+
+    /// <summary>Files as given; folders expanded to their frames in name order. Fails listing every missing path at once.</summary>
+    public static IReadOnlyList<string> ExpandFrames(IEnumerable<string> paths)
+    {
+        var files = new List<string>();
+        var missing = new List<string>();
+        foreach (string path in paths)
+        {
+            if (Directory.Exists(path)) files.AddRange(Calibrator.ListFrames(path));
+            else if (File.Exists(path)) files.Add(Path.GetFullPath(path));
+            else missing.Add(path);
+        }
+        if (missing.Count > 0)
+            throw new ModelException(ModelErrorCodes.FrameFormat, $"No such frame file or folder: {string.Join(", ", missing)}.");
+        return files;
+    }
+}
