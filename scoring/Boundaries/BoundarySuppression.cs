@@ -85,8 +85,11 @@ public sealed class BoundarySuppression
         }
     }
 
-    /// <summary>Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros.</summary>
-    private static int RowScratch(int width) => 9 * width;
+    /// <summary>
+    /// Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros, and room for
+    /// the row's list of boundary chunks (w/8 + 1 ints fit in w floats).
+    /// </summary>
+    private static int RowScratch(int width) => 10 * width;
 
     private static unsafe void Round(float* values, byte* dist, byte* rowMin, int w, int h, int threshold,
         int y0, int y1, float* rows)
@@ -126,7 +129,7 @@ public sealed class BoundarySuppression
         }
 
         int chunks = w / 8;
-        int* boundaryChunks = stackalloc int[chunks + 1];
+        int* boundaryChunks = (int*)(rows + 9 * w);
         for (int y = y0; y < y1; y++)
         {
             if (rowMin[y] > threshold) continue; // no boundary pixel in this row: nothing changes
