@@ -85,8 +85,11 @@ public sealed class BoundarySuppression
         }
     }
 
-    /// <summary>Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros.</summary>
-    private static int RowScratch(int width) => 9 * width;
+    /// <summary>
+    /// Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros, and room for
+    /// the row's list of boundary chunks (w/8 + 1 ints fit in w floats).
+    /// </summary>
+    private static int RowScratch(int width) => 10 * width;
 
     private static unsafe void Round(float* values, byte* dist, byte* rowMin, int w, int h, int threshold,
         int y0, int y1, float* rows)
@@ -125,32 +128,94 @@ public sealed class BoundarySuppression
             HorizontalSum3(count, hc, w);
         }
 
+        int chunks = w / 8;
+        int* boundaryChunks = (int*)(rows + 9 * w);
         for (int y = y0; y < y1; y++)
         {
             if (rowMin[y] > threshold) continue; // no boundary pixel in this row: nothing changes
+            float* v = values + (long)y * w;
+            byte* d = dist + (long)y * w;
+
+            // Few boundary chunks: visit just those, each straight from its 3×3 neighbourhood. Many: whole-row
+            // separable sums are cheaper per pixel.
+            int found = 0;
+            for (int c = 0; c < chunks; c++)
+                if (~NonBoundaryMask(d + c * 8, thr) != Vector256<float>.Zero) boundaryChunks[found++] = c * 8;
+            if (found * 5 < chunks * 2)
+            {
+                float* up = y > 0 ? v - w : zero, dn = y < h - 1 ? v + w : zero;
+                byte* dUp = y > 0 ? d - w : (byte*)zero, dDn = y < h - 1 ? d + w : (byte*)zero;
+                for (int c = 0; c < found; c++)
+                {
+                    int x = boundaryChunks[c];
+                    if (x >= 1 && x <= w - 9) SparseChunk(v, d, up, dUp, dn, dDn, x, thr);
+                    else for (int xx = x; xx < x + 8; xx++) ScalarPixel(values, dist, w, h, xx, y, threshold);
+                }
+                for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
+                continue;
+            }
+
             Prepare(y - 1);
             Prepare(y);
             Prepare(y + 1);
             float* sa = SumRow(y - 1), sb = SumRow(y), sc = SumRow(y + 1);
             float* ca = CountRow(y - 1), cb = CountRow(y), cc = CountRow(y + 1);
-            float* v = values + (long)y * w;
-            byte* d = dist + (long)y * w;
-            int x = 0;
-            for (; x <= w - 8; x += 8)
+            int xv = 0;
+            for (; xv <= w - 8; xv += 8)
             {
-                var boundary = ~NonBoundaryMask(d + x, thr);
+                var boundary = ~NonBoundaryMask(d + xv, thr);
                 if (boundary == Vector256<float>.Zero) continue;
-                var sum = Vector256.Load(sa + x) + Vector256.Load(sb + x) + Vector256.Load(sc + x);
-                var cnt = Vector256.Load(ca + x) + Vector256.Load(cb + x) + Vector256.Load(cc + x);
+                var sum = Vector256.Load(sa + xv) + Vector256.Load(sb + xv) + Vector256.Load(sc + xv);
+                var cnt = Vector256.Load(ca + xv) + Vector256.Load(cb + xv) + Vector256.Load(cc + xv);
                 var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & boundary;
-                Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + x)), v + x);
+                Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + xv)), v + xv);
             }
-            for (; x < w; x++)
+            for (; xv < w; xv++)
             {
-                float cnt = ca[x] + cb[x] + cc[x];
-                if (d[x] <= threshold && cnt > 0) v[x] = (sa[x] + sb[x] + sc[x]) / cnt;
+                float cnt = ca[xv] + cb[xv] + cc[xv];
+                if (d[xv] <= threshold && cnt > 0) v[xv] = (sa[xv] + sb[xv] + sc[xv]) / cnt;
             }
         }
+    }
+
+    /// <summary>
+    /// Eight pixels at x (1 ≤ x ≤ w−9) from their 3×3 neighbourhoods. A missing row comes as a row of zeros:
+    /// distance 0 marks it boundary, so it adds nothing.
+    /// </summary>
+    private static unsafe void SparseChunk(float* v, byte* d, float* up, byte* dUp, float* dn, byte* dDn, int x, Vector256<int> thr)
+    {
+        var one = Vector256<float>.One;
+        var sum = Vector256<float>.Zero;
+        var cnt = Vector256<float>.Zero;
+        for (int o = -1; o <= 1; o++)
+        {
+            var m = NonBoundaryMask(dUp + x + o, thr);
+            sum += Vector256.Load(up + x + o) & m;
+            cnt += one & m;
+            m = NonBoundaryMask(d + x + o, thr);
+            sum += Vector256.Load(v + x + o) & m;
+            cnt += one & m;
+            m = NonBoundaryMask(dDn + x + o, thr);
+            sum += Vector256.Load(dn + x + o) & m;
+            cnt += one & m;
+        }
+        var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & ~NonBoundaryMask(d + x, thr);
+        Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + x)), v + x);
+    }
+
+    private static unsafe void ScalarPixel(float* values, byte* dist, int w, int h, int x, int y, int threshold)
+    {
+        long i = (long)y * w + x;
+        if (dist[i] > threshold) return;
+        float sum = 0;
+        int count = 0;
+        for (int qy = Math.Max(0, y - 1); qy <= Math.Min(h - 1, y + 1); qy++)
+            for (int qx = Math.Max(0, x - 1); qx <= Math.Min(w - 1, x + 1); qx++)
+            {
+                long q = (long)qy * w + qx;
+                if (dist[q] > threshold) { sum += values[q]; count++; }
+            }
+        if (count > 0) values[i] = sum / count;
     }
 
     /// <summary>out[x] = in[x−1] + in[x] + in[x+1], missing neighbours outside the row count as zero.</summary>

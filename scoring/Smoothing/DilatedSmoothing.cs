@@ -87,10 +87,12 @@ public sealed class DilatedSmoothing
         int xv = start;
         for (; xv <= end - 8; xv += 8)
         {
-            float* p = input + xv - reach;
-            var acc = Vector256.Create(k[0]) * Vector256.Load(p);
-            for (int i = 1; i < taps; i++)
-                acc += Vector256.Create(k[i]) * Vector256.Load(p + i * dil);
+            // The kernel is symmetric: add the mirrored taps first, then one multiply-add per pair.
+            float* p = input + xv;
+            var acc = Vector256.Create(k[half]) * Vector256.Load(p);
+            for (int j = 1; j <= half; j++)
+                acc = Vector256.FusedMultiplyAdd(Vector256.Create(k[half + j]),
+                    Vector256.Load(p - j * dil) + Vector256.Load(p + j * dil), acc);
             Vector256.Store(acc, output + xv);
         }
         for (; xv < end; xv++) output[xv] = ClampedTap(input, w, xv, k, taps, half, dil);
@@ -113,9 +115,10 @@ public sealed class DilatedSmoothing
         int x = 0;
         for (; x <= w - 8; x += 8)
         {
-            var acc = Vector256.Create(k[0]) * Vector256.Load(rows[0] + x);
-            for (int i = 1; i < taps; i++)
-                acc += Vector256.Create(k[i]) * Vector256.Load(rows[i] + x);
+            var acc = Vector256.Create(k[half]) * Vector256.Load(rows[half] + x);
+            for (int j = 1; j <= half; j++)
+                acc = Vector256.FusedMultiplyAdd(Vector256.Create(k[half + j]),
+                    Vector256.Load(rows[half - j] + x) + Vector256.Load(rows[half + j] + x), acc);
             Vector256.Store(acc, output + x);
         }
         for (; x < w; x++)

@@ -57,6 +57,31 @@ public class BoundarySuppressionTests
     }
 
     [Theory]
+    [InlineData(300, 230)]
+    [InlineData(61, 40)]
+    public void Equals_the_definition_with_few_boundaries_per_row(int w, int h)
+    {
+        // Large plain regions: a slanted border, small objects (some at the frame's left and right edges)
+        // so most rows have only a few boundary pixels, as in real class maps.
+        var cls = new ushort[w * h];
+        for (int y = 0; y < h; y++)
+            for (int x = 0; x < w; x++)
+            {
+                ushort c = (ushort)(x > y / 3 + w / 2 ? 1 : 0);
+                if (y % 50 is >= 10 and < 16 && x % 70 is >= 20 and < 31) c = 2;
+                if (y % 37 is >= 5 and < 9 && (x < 3 || x >= w - 2)) c = 3;
+                cls[y * w + x] = c;
+            }
+        var rng = new Random(w + h);
+        var o = new BoundarySuppressionOptions();
+        var score = RandomScores(rng, w * h);
+        var expected = BoundaryReference.Apply(score, cls, w, h, o);
+        new BoundarySuppression(o).Apply(score, cls, w, h);
+        for (int i = 0; i < score.Length; i++)
+            Assert.True(Math.Abs(expected[i] - score[i]) <= 1e-5f, $"at ({i % w},{i / w}): expected {expected[i]}, got {score[i]}");
+    }
+
+    [Theory]
     [MemberData(nameof(Sizes))]
     public void Distance_map_matches_brute_force_boundary_test_at_every_width(int w, int h)
     {
