@@ -45,13 +45,13 @@ public sealed class ApronSceneGenerator
         Rgb top = kind switch
         {
             0 => new Rgb(92, 142, 204),
-            1 => new Rgb(148, 168, 196),
-            _ => new Rgb(172, 176, 184),
+            1 => new Rgb(128, 160, 202),
+            _ => new Rgb(156, 170, 194),
         };
         top = top.Jitter(rng, 8);
         Rgb horizon = new Rgb(204, 212, 222).Jitter(rng, 6);
         var clouds = new ApronNoise(rng.NextUInt());
-        float cloudiness = rng.Range(0f, 0.8f);
+        float cloudiness = rng.Range(0f, 0.5f);
         int yEnd = (int)MathF.Ceiling(l.Horizon);
         for (int y = 0; y < Math.Min(yEnd, c.Height); y++)
         {
@@ -61,14 +61,14 @@ public sealed class ApronSceneGenerator
             {
                 float n = clouds.Value(x * l.Scale1024, y * 3f * l.Scale1024, 140, 140);
                 float cloud = MathF.Max(0, n - 0.35f + cloudiness * 0.3f) * 1.6f;
-                c.Set(x, y, baseColor.Lerp(new Rgb(236, 238, 242), MathF.Min(1, cloud)), ApronClasses.Sky);
+                c.Set(x, y, baseColor.Lerp(new Rgb(218, 226, 240), MathF.Min(0.8f, cloud)), ApronClasses.Sky);
             }
         }
     }
 
     private static void PaintBuildings(ApronCanvas c, ApronLayout l, ApronRandom rng)
     {
-        Rgb[] facades = [new(148, 150, 156), new(176, 166, 146), new(118, 124, 134), new(190, 186, 176), new(132, 120, 112)];
+        Rgb[] facades = [new(150, 146, 140), new(176, 164, 144), new(124, 120, 116), new(188, 180, 166), new(132, 118, 108)];
         Rgb glass = new(58, 74, 92);
         float x = -rng.Range(0, 40) * l.Scale1024;
         int terminalAt = rng.Next(3);

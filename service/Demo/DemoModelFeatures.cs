@@ -3,13 +3,15 @@ namespace Strayspot.Service.Demo;
 /// <summary>
 /// The demo model's fixed filters, computed directly (the ONNX graph computes the same with standard operators):
 /// colour means over 4×4 cells (stride 4), their 5×5 neighbourhood mean, the mean gradient magnitude of grey over each
-/// cell (texture, log scale), and its 5×5 neighbourhood mean. Output is [Count, H/4, W/4] planar.
+/// cell (texture, log scale), its 5×5 neighbourhood mean, and 15×15 neighbourhood means of colour and texture (the
+/// surroundings a larger network would see). Output is [Count, H/4, W/4] planar, channels in that order.
 /// </summary>
 public static class DemoFeatures
 {
     public const int Stride = 4;
     public const int Context = 5;
-    public const int Count = 8;
+    public const int Count = 12;
+    public const int WideContext = 15;
     public const float GradientEpsilon = 1e-6f;
     public static readonly float[] GreyWeights = [0.299f, 0.587f, 0.114f];
 
@@ -73,10 +75,14 @@ public static class DemoFeatures
         // Log scale: grain, foliage and edges differ by orders of magnitude, and lighting scales them all alike.
         for (int i = 0; i < m; i++) texture[i] = MathF.Log(texture[i]);
 
-        NeighbourhoodMean(features.AsSpan(0, m), features.AsSpan(3 * m, m), h, w);
-        NeighbourhoodMean(features.AsSpan(m, m), features.AsSpan(4 * m, m), h, w);
-        NeighbourhoodMean(features.AsSpan(2 * m, m), features.AsSpan(5 * m, m), h, w);
-        NeighbourhoodMean(features.AsSpan(6 * m, m), features.AsSpan(7 * m, m), h, w);
+        NeighbourhoodMean(features.AsSpan(0, m), features.AsSpan(3 * m, m), h, w, Context);
+        NeighbourhoodMean(features.AsSpan(m, m), features.AsSpan(4 * m, m), h, w, Context);
+        NeighbourhoodMean(features.AsSpan(2 * m, m), features.AsSpan(5 * m, m), h, w, Context);
+        NeighbourhoodMean(features.AsSpan(6 * m, m), features.AsSpan(7 * m, m), h, w, Context);
+        NeighbourhoodMean(features.AsSpan(0, m), features.AsSpan(8 * m, m), h, w, WideContext);
+        NeighbourhoodMean(features.AsSpan(m, m), features.AsSpan(9 * m, m), h, w, WideContext);
+        NeighbourhoodMean(features.AsSpan(2 * m, m), features.AsSpan(10 * m, m), h, w, WideContext);
+        NeighbourhoodMean(features.AsSpan(6 * m, m), features.AsSpan(11 * m, m), h, w, WideContext);
         return features;
     }
 
@@ -93,10 +99,10 @@ public static class DemoFeatures
             }
     }
 
-    /// <summary>Context×Context mean over the cells that exist (border cells average fewer neighbours).</summary>
-    private static void NeighbourhoodMean(ReadOnlySpan<float> plane, Span<float> output, int h, int w)
+    /// <summary>size×size mean over the cells that exist (border cells average fewer neighbours).</summary>
+    private static void NeighbourhoodMean(ReadOnlySpan<float> plane, Span<float> output, int h, int w, int size)
     {
-        int r = Context / 2;
+        int r = size / 2;
         for (int y = 0; y < h; y++)
             for (int x = 0; x < w; x++)
             {

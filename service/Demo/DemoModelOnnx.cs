@@ -51,7 +51,13 @@ public static class DemoModelOnnx
         g.Node.Add(Node("Log", ["texture_linear"], "texture_cell"));
         g.Node.Add(Node("AveragePool", ["texture_cell"], "texture_context", Ints("kernel_shape", DemoFeatures.Context, DemoFeatures.Context),
             Ints("strides", 1, 1), Ints("pads", r, r, r, r), Int("count_include_pad", 0)));
-        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context"], "features", Int("axis", 1)));
+        int wr = DemoFeatures.WideContext / 2;
+        g.Node.Add(Node("AveragePool", ["colour_cell"], "colour_wide", Ints("kernel_shape", DemoFeatures.WideContext, DemoFeatures.WideContext),
+            Ints("strides", 1, 1), Ints("pads", wr, wr, wr, wr), Int("count_include_pad", 0)));
+        g.Node.Add(Node("AveragePool", ["texture_cell"], "texture_wide", Ints("kernel_shape", DemoFeatures.WideContext, DemoFeatures.WideContext),
+            Ints("strides", 1, 1), Ints("pads", wr, wr, wr, wr), Int("count_include_pad", 0)));
+        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context", "colour_wide", "texture_wide"],
+            "features", Int("axis", 1)));
         g.Node.Add(Node("Sub", ["features", "feature_mean"], "features_centred"));
         g.Node.Add(Node("Div", ["features_centred", "feature_std"], "features_std"));
         g.Node.Add(Node("Unsqueeze", ["features_std", "axis_1"], "features_5d"));

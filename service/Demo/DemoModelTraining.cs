@@ -6,11 +6,11 @@ public sealed record DemoTrainingOptions
     /// <summary>Prototypes per class (k-means on that class's training features).</summary>
     public int CentresPerClass { get; init; } = 8;
     /// <summary>Radial-basis width in standardized feature units.</summary>
-    public float Bandwidth { get; init; } = 1.0f;
+    public float Bandwidth { get; init; } = 1.6f;
     public int Steps { get; init; } = 300;
     public double LearningRate { get; init; } = 2.0;
     public double Momentum { get; init; } = 0.9;
-    public double WeightDecay { get; init; } = 1e-3;
+    public double WeightDecay { get; init; } = 1e-4;
     /// <summary>Pixels (at logit resolution) the softmax head is fitted on.</summary>
     public int HeadSamples { get; init; } = 30000;
     /// <summary>Pixels per class the prototypes are clustered from.</summary>
