@@ -33,7 +33,7 @@ public static class ColorScales
             double t = i / 255.0;
             double lightness = 0.22 + 0.72 * t;
             double chroma = 0.09 + 0.08 * Math.Sin(Math.PI * t);
-            double hue = 285.0 - 190.0 * t; // violet → red → yellow
+            double hue = (285.0 + 170.0 * t) % 360.0; // violet → magenta → red → yellow
             table[i] = FromOklch(lightness, chroma, hue);
         }
         return table;
