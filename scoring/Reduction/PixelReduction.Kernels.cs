@@ -51,13 +51,21 @@ public sealed unsafe partial class PixelReduction
                 if (ra == rb || wb == 0f)
                 {
                     // Weights (0.5, 0.5) on one row, or (1, 0): exactly the row itself.
-                    for (int b = 0; b < tileBlocks; b++)
+                    int b = 0;
+                    if (!_needSoftmax)
+                        for (; b + 1 < tileBlocks; b += 2)
+                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, c, o, (tile + b) * lanes, blend: false);
+                    for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, null, 1f, 0f, lanes, c, o, (tile + b) * lanes, blend: false);
                 }
                 else
                 {
                     float* pb = CachedRow(job, worker, rb, ra, tile, tileBlocks);
-                    for (int b = 0; b < tileBlocks; b++)
+                    int b = 0;
+                    if (!_needSoftmax)
+                        for (; b + 1 < tileBlocks; b += 2)
+                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, c, o, (tile + b) * lanes, blend: true);
+                    for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, pb + b * blockStride, wa, wb, lanes, c, o, (tile + b) * lanes, blend: true);
                 }
                 FlushRow(job, o, y, tile * lanes, Math.Min(job.Width, (tile + tileBlocks) * lanes));
@@ -151,16 +159,20 @@ public sealed unsafe partial class PixelReduction
         var index = Vector<float>.Zero;
         var best = Vector<float>.Zero;
         Vector<float> max;
+        // ConditionalSelect on the same mask rather than Vector.Max: one blend, and max and argmax can never disagree.
         if (!blend)
         {
             max = Vector.Load(a);
             if (keep) max.Store(vals);
+            float* pa = a;
             for (int c = 1; c < classes; c++)
             {
-                var v = Vector.Load(a + c * classStride);
+                pa += classStride;
+                var v = Vector.Load(pa);
                 index += one;
-                best = Vector.ConditionalSelect(Vector.GreaterThan(v, max), index, best);
-                max = Vector.Max(max, v);
+                var greater = Vector.GreaterThan(v, max);
+                best = Vector.ConditionalSelect(greater, index, best);
+                max = Vector.ConditionalSelect(greater, v, max);
                 if (keep) v.Store(vals + c * lanes);
             }
         }
@@ -170,18 +182,82 @@ public sealed unsafe partial class PixelReduction
             var vb = new Vector<float>(wb);
             max = Vector.FusedMultiplyAdd(Vector.Load(a), va, Vector.Load(b) * vb);
             if (keep) max.Store(vals);
+            float* pa = a, pb = b;
             for (int c = 1; c < classes; c++)
             {
-                var v = Vector.FusedMultiplyAdd(Vector.Load(a + c * classStride), va, Vector.Load(b + c * classStride) * vb);
+                pa += classStride;
+                pb += classStride;
+                var v = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
                 index += one;
-                best = Vector.ConditionalSelect(Vector.GreaterThan(v, max), index, best);
-                max = Vector.Max(max, v);
+                var greater = Vector.GreaterThan(v, max);
+                best = Vector.ConditionalSelect(greater, index, best);
+                max = Vector.ConditionalSelect(greater, v, max);
                 if (keep) v.Store(vals + c * lanes);
             }
         }
         max.Store(o.Max + x);
         Vector.ConvertToInt32(best).Store(o.Class + x);
         if (keep) Softmax(max, vals, classes, o, x);
+    }
+
+    /// <summary>
+    /// Two neighbouring blocks of the cached layout at once (class and max logit only): shares the loop and the class
+    /// counter between two independent dependency chains, which keeps more loads in flight.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, int classes, in RowOut o, int x, bool blend)
+    {
+        int lanes = Lanes;
+        var one = Vector<float>.One;
+        var index = Vector<float>.Zero;
+        var best0 = Vector<float>.Zero;
+        var best1 = Vector<float>.Zero;
+        Vector<float> max0, max1;
+        if (!blend)
+        {
+            max0 = Vector.Load(a);
+            max1 = Vector.Load(a + pairOffset);
+            float* pa = a;
+            for (int c = 1; c < classes; c++)
+            {
+                pa += lanes;
+                var v0 = Vector.Load(pa);
+                var v1 = Vector.Load(pa + pairOffset);
+                index += one;
+                var g0 = Vector.GreaterThan(v0, max0);
+                var g1 = Vector.GreaterThan(v1, max1);
+                best0 = Vector.ConditionalSelect(g0, index, best0);
+                best1 = Vector.ConditionalSelect(g1, index, best1);
+                max0 = Vector.ConditionalSelect(g0, v0, max0);
+                max1 = Vector.ConditionalSelect(g1, v1, max1);
+            }
+        }
+        else
+        {
+            var va = new Vector<float>(wa);
+            var vb = new Vector<float>(wb);
+            max0 = Vector.FusedMultiplyAdd(Vector.Load(a), va, Vector.Load(b) * vb);
+            max1 = Vector.FusedMultiplyAdd(Vector.Load(a + pairOffset), va, Vector.Load(b + pairOffset) * vb);
+            float* pa = a, pb = b;
+            for (int c = 1; c < classes; c++)
+            {
+                pa += lanes;
+                pb += lanes;
+                var v0 = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
+                var v1 = Vector.FusedMultiplyAdd(Vector.Load(pa + pairOffset), va, Vector.Load(pb + pairOffset) * vb);
+                index += one;
+                var g0 = Vector.GreaterThan(v0, max0);
+                var g1 = Vector.GreaterThan(v1, max1);
+                best0 = Vector.ConditionalSelect(g0, index, best0);
+                best1 = Vector.ConditionalSelect(g1, index, best1);
+                max0 = Vector.ConditionalSelect(g0, v0, max0);
+                max1 = Vector.ConditionalSelect(g1, v1, max1);
+            }
+        }
+        max0.Store(o.Max + x);
+        max1.Store(o.Max + x + lanes);
+        Vector.ConvertToInt32(best0).Store(o.Class + x);
+        Vector.ConvertToInt32(best1).Store(o.Class + x + lanes);
     }
 
     /// <summary>
