@@ -8,10 +8,12 @@ namespace Strayspot.Scoring.Reduction;
 public sealed unsafe partial class PixelReduction
 {
     /// <summary>Equal sizes: read the logits planes directly, one vector of pixels at a time with the classes inner.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunIdentityRows(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
-        int c = job.Channels, width = job.Width, lanes = Lanes;
+        int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
         nint plane = (nint)job.InHeight * job.InWidth;
         for (int y = y0; y < y1; y++)
         {
@@ -32,11 +34,13 @@ public sealed unsafe partial class PixelReduction
     /// [block][class][lane] so the class loop reads contiguous memory) and reduce over the classes.
     /// Wide rows of many classes are split into tiles so the two cached rows stay small.
     /// </summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunResizedRows(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
         var ys = job.Ys!;
-        int c = job.Channels, lanes = Lanes;
+        int c = job.Channels, lanes = Vector<float>.Count;
         int blocks = (job.Width + lanes - 1) / lanes;
         nint blockStride = (nint)c * lanes;
         for (int tile = 0; tile < blocks; tile += job.TileBlocks)
@@ -89,10 +93,12 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>Horizontal pass of one source row, all classes, into [block][class][lane] layout.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void ResampleRow(Job job, int row, float* dst, int tile, int tileBlocks)
     {
         var xs = job.Xs!;
-        int c = job.Channels, lanes = Lanes;
+        int c = job.Channels, lanes = Vector<float>.Count;
         nint plane = (nint)job.InHeight * job.InWidth;
         float* src = job.Source + (nint)row * job.InWidth;
         int* i0 = (int*)Ptr(xs.Index0), i1 = (int*)Ptr(xs.Index1);
@@ -154,7 +160,7 @@ public sealed unsafe partial class PixelReduction
     {
         bool keep = _needSoftmax;
         float* vals = o.Values;
-        int lanes = Lanes;
+        int lanes = Vector<float>.Count;
         var one = Vector<float>.One;
         var index = Vector<float>.Zero;
         var best = Vector<float>.Zero;
@@ -207,7 +213,7 @@ public sealed unsafe partial class PixelReduction
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
     private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, int classes, in RowOut o, int x, bool blend)
     {
-        int lanes = Lanes;
+        int lanes = Vector<float>.Count;
         var one = Vector<float>.One;
         var index = Vector<float>.Zero;
         var best0 = Vector<float>.Zero;
@@ -264,10 +270,12 @@ public sealed unsafe partial class PixelReduction
     /// Max-shifted sums: s = Σexp(l−m), t = Σexp(l−m)(l−m). Then MSP = 1/s, entropy = log s − t/s (no large terms
     /// cancel, so it stays accurate for logits in the thousands) and energy = −m − T·log Σexp((l−m)/T).
     /// </summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void Softmax(Vector<float> max, float* vals, int classes, in RowOut o, int x)
     {
         var outputs = Outputs;
-        int lanes = Lanes;
+        int lanes = Vector<float>.Count;
         bool plain = (outputs & (ReductionOutputs.Msp | ReductionOutputs.Entropy)) != 0 || _temperature == 1f;
         bool tempered = (outputs & ReductionOutputs.Energy) != 0 && _temperature != 1f;
         var s = Vector<float>.Zero;
@@ -279,11 +287,11 @@ public sealed unsafe partial class PixelReduction
             var d = Vector.Load(vals + c * lanes) - max;
             if (plain)
             {
-                var e = Vector.Exp(d);
+                var e = VectorExp.Exp(d);
                 s += e;
                 t += e * d;
             }
-            if (tempered) sT += Vector.Exp(d * invT);
+            if (tempered) sT += VectorExp.Exp(d * invT);
         }
         if ((outputs & ReductionOutputs.Msp) != 0) (Vector<float>.One / s).Store(o.Msp + x);
         if ((outputs & ReductionOutputs.Entropy) != 0) (Vector.Log(s) - t / s).Store(o.Entropy + x);
@@ -292,6 +300,8 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>Copies the row scratch [x0, x1) into the frame maps, narrowing class indices to ushort.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void FlushRow(Job job, in RowOut o, int y, int x0, int x1)
     {
         var maps = job.Maps;
@@ -300,7 +310,7 @@ public sealed unsafe partial class PixelReduction
         new ReadOnlySpan<float>(o.Max + x0, n).CopyTo(new Span<float>(Ptr(maps.MaxLogitArray) + at, n));
         uint* cls = (uint*)o.Class + x0;
         ushort* dst = (ushort*)Unsafe.AsPointer(ref maps.ClassIndexArray[0]) + at;
-        int lanes = Lanes, i = 0;
+        int lanes = Vector<float>.Count, i = 0;
         for (; i + 2 * lanes <= n; i += 2 * lanes)
             Vector.Narrow(Vector.Load(cls + i), Vector.Load(cls + i + lanes)).Store(dst + i);
         for (; i < n; i++) dst[i] = (ushort)cls[i];
