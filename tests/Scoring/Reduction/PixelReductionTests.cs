@@ -217,6 +217,20 @@ public class PixelReductionTests
     }
 
     [Fact]
+    public void Steady_state_frames_allocate_nothing_per_pixel_or_row()
+    {
+        // Serial so every allocation happens on this thread; a frame may allocate its small job object, not buffers.
+        var reduction = new PixelReduction(All) { MaxDegreeOfParallelism = 1 };
+        var view = new LogitsView(ReductionAgainstOnnxRuntimeTests.RandomLogits(19 * 32 * 64, 9), 19, 32, 64);
+        var maps = new ReducedMaps();
+        reduction.Reduce(view, 128, 256, maps);
+        long before = GC.GetAllocatedBytesForCurrentThread();
+        for (int i = 0; i < 5; i++) reduction.Reduce(view, 128, 256, maps);
+        long perFrame = (GC.GetAllocatedBytesForCurrentThread() - before) / 5;
+        Assert.True(perFrame < 1024, $"{perFrame} bytes per frame");
+    }
+
+    [Fact]
     public void Maps_grow_only_when_needed_and_optional_maps_follow_the_request()
     {
         var maps = new ReducedMaps();
