@@ -8,10 +8,12 @@ namespace Strayspot.Scoring.Reduction;
 public sealed unsafe partial class PixelReduction
 {
     /// <summary>Equal sizes: read the logits planes directly, one vector of pixels at a time with the classes inner.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunIdentityRows(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
-        int c = job.Channels, width = job.Width, lanes = Lanes;
+        int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
         nint plane = (nint)job.InHeight * job.InWidth;
         for (int y = y0; y < y1; y++)
         {
@@ -32,11 +34,13 @@ public sealed unsafe partial class PixelReduction
     /// [block][class][lane] so the class loop reads contiguous memory) and reduce over the classes.
     /// Wide rows of many classes are split into tiles so the two cached rows stay small.
     /// </summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunResizedRows(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
         var ys = job.Ys!;
-        int c = job.Channels, lanes = Lanes;
+        int c = job.Channels, lanes = Vector<float>.Count;
         int blocks = (job.Width + lanes - 1) / lanes;
         nint blockStride = (nint)c * lanes;
         for (int tile = 0; tile < blocks; tile += job.TileBlocks)
@@ -51,13 +55,21 @@ public sealed unsafe partial class PixelReduction
                 if (ra == rb || wb == 0f)
                 {
                     // Weights (0.5, 0.5) on one row, or (1, 0): exactly the row itself.
-                    for (int b = 0; b < tileBlocks; b++)
+                    int b = 0;
+                    if (!_needSoftmax)
+                        for (; b + 1 < tileBlocks; b += 2)
+                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, c, o, (tile + b) * lanes, blend: false);
+                    for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, null, 1f, 0f, lanes, c, o, (tile + b) * lanes, blend: false);
                 }
                 else
                 {
                     float* pb = CachedRow(job, worker, rb, ra, tile, tileBlocks);
-                    for (int b = 0; b < tileBlocks; b++)
+                    int b = 0;
+                    if (!_needSoftmax)
+                        for (; b + 1 < tileBlocks; b += 2)
+                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, c, o, (tile + b) * lanes, blend: true);
+                    for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, pb + b * blockStride, wa, wb, lanes, c, o, (tile + b) * lanes, blend: true);
                 }
                 FlushRow(job, o, y, tile * lanes, Math.Min(job.Width, (tile + tileBlocks) * lanes));
@@ -81,10 +93,12 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>Horizontal pass of one source row, all classes, into [block][class][lane] layout.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void ResampleRow(Job job, int row, float* dst, int tile, int tileBlocks)
     {
         var xs = job.Xs!;
-        int c = job.Channels, lanes = Lanes;
+        int c = job.Channels, lanes = Vector<float>.Count;
         nint plane = (nint)job.InHeight * job.InWidth;
         float* src = job.Source + (nint)row * job.InWidth;
         int* i0 = (int*)Ptr(xs.Index0), i1 = (int*)Ptr(xs.Index1);
@@ -146,21 +160,25 @@ public sealed unsafe partial class PixelReduction
     {
         bool keep = _needSoftmax;
         float* vals = o.Values;
-        int lanes = Lanes;
+        int lanes = Vector<float>.Count;
         var one = Vector<float>.One;
         var index = Vector<float>.Zero;
         var best = Vector<float>.Zero;
         Vector<float> max;
+        // ConditionalSelect on the same mask rather than Vector.Max: one blend, and max and argmax can never disagree.
         if (!blend)
         {
             max = Vector.Load(a);
             if (keep) max.Store(vals);
+            float* pa = a;
             for (int c = 1; c < classes; c++)
             {
-                var v = Vector.Load(a + c * classStride);
+                pa += classStride;
+                var v = Vector.Load(pa);
                 index += one;
-                best = Vector.ConditionalSelect(Vector.GreaterThan(v, max), index, best);
-                max = Vector.Max(max, v);
+                var greater = Vector.GreaterThan(v, max);
+                best = Vector.ConditionalSelect(greater, index, best);
+                max = Vector.ConditionalSelect(greater, v, max);
                 if (keep) v.Store(vals + c * lanes);
             }
         }
@@ -170,12 +188,16 @@ public sealed unsafe partial class PixelReduction
             var vb = new Vector<float>(wb);
             max = Vector.FusedMultiplyAdd(Vector.Load(a), va, Vector.Load(b) * vb);
             if (keep) max.Store(vals);
+            float* pa = a, pb = b;
             for (int c = 1; c < classes; c++)
             {
-                var v = Vector.FusedMultiplyAdd(Vector.Load(a + c * classStride), va, Vector.Load(b + c * classStride) * vb);
+                pa += classStride;
+                pb += classStride;
+                var v = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
                 index += one;
-                best = Vector.ConditionalSelect(Vector.GreaterThan(v, max), index, best);
-                max = Vector.Max(max, v);
+                var greater = Vector.GreaterThan(v, max);
+                best = Vector.ConditionalSelect(greater, index, best);
+                max = Vector.ConditionalSelect(greater, v, max);
                 if (keep) v.Store(vals + c * lanes);
             }
         }
@@ -185,13 +207,75 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>
+    /// Two neighbouring blocks of the cached layout at once (class and max logit only): shares the loop and the class
+    /// counter between two independent dependency chains, which keeps more loads in flight.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, int classes, in RowOut o, int x, bool blend)
+    {
+        int lanes = Vector<float>.Count;
+        var one = Vector<float>.One;
+        var index = Vector<float>.Zero;
+        var best0 = Vector<float>.Zero;
+        var best1 = Vector<float>.Zero;
+        Vector<float> max0, max1;
+        if (!blend)
+        {
+            max0 = Vector.Load(a);
+            max1 = Vector.Load(a + pairOffset);
+            float* pa = a;
+            for (int c = 1; c < classes; c++)
+            {
+                pa += lanes;
+                var v0 = Vector.Load(pa);
+                var v1 = Vector.Load(pa + pairOffset);
+                index += one;
+                var g0 = Vector.GreaterThan(v0, max0);
+                var g1 = Vector.GreaterThan(v1, max1);
+                best0 = Vector.ConditionalSelect(g0, index, best0);
+                best1 = Vector.ConditionalSelect(g1, index, best1);
+                max0 = Vector.ConditionalSelect(g0, v0, max0);
+                max1 = Vector.ConditionalSelect(g1, v1, max1);
+            }
+        }
+        else
+        {
+            var va = new Vector<float>(wa);
+            var vb = new Vector<float>(wb);
+            max0 = Vector.FusedMultiplyAdd(Vector.Load(a), va, Vector.Load(b) * vb);
+            max1 = Vector.FusedMultiplyAdd(Vector.Load(a + pairOffset), va, Vector.Load(b + pairOffset) * vb);
+            float* pa = a, pb = b;
+            for (int c = 1; c < classes; c++)
+            {
+                pa += lanes;
+                pb += lanes;
+                var v0 = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
+                var v1 = Vector.FusedMultiplyAdd(Vector.Load(pa + pairOffset), va, Vector.Load(pb + pairOffset) * vb);
+                index += one;
+                var g0 = Vector.GreaterThan(v0, max0);
+                var g1 = Vector.GreaterThan(v1, max1);
+                best0 = Vector.ConditionalSelect(g0, index, best0);
+                best1 = Vector.ConditionalSelect(g1, index, best1);
+                max0 = Vector.ConditionalSelect(g0, v0, max0);
+                max1 = Vector.ConditionalSelect(g1, v1, max1);
+            }
+        }
+        max0.Store(o.Max + x);
+        max1.Store(o.Max + x + lanes);
+        Vector.ConvertToInt32(best0).Store(o.Class + x);
+        Vector.ConvertToInt32(best1).Store(o.Class + x + lanes);
+    }
+
+    /// <summary>
     /// Max-shifted sums: s = Σexp(l−m), t = Σexp(l−m)(l−m). Then MSP = 1/s, entropy = log s − t/s (no large terms
     /// cancel, so it stays accurate for logits in the thousands) and energy = −m − T·log Σexp((l−m)/T).
     /// </summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void Softmax(Vector<float> max, float* vals, int classes, in RowOut o, int x)
     {
         var outputs = Outputs;
-        int lanes = Lanes;
+        int lanes = Vector<float>.Count;
         bool plain = (outputs & (ReductionOutputs.Msp | ReductionOutputs.Entropy)) != 0 || _temperature == 1f;
         bool tempered = (outputs & ReductionOutputs.Energy) != 0 && _temperature != 1f;
         var s = Vector<float>.Zero;
@@ -203,11 +287,11 @@ public sealed unsafe partial class PixelReduction
             var d = Vector.Load(vals + c * lanes) - max;
             if (plain)
             {
-                var e = Vector.Exp(d);
+                var e = VectorExp.Exp(d);
                 s += e;
                 t += e * d;
             }
-            if (tempered) sT += Vector.Exp(d * invT);
+            if (tempered) sT += VectorExp.Exp(d * invT);
         }
         if ((outputs & ReductionOutputs.Msp) != 0) (Vector<float>.One / s).Store(o.Msp + x);
         if ((outputs & ReductionOutputs.Entropy) != 0) (Vector.Log(s) - t / s).Store(o.Entropy + x);
@@ -216,6 +300,8 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>Copies the row scratch [x0, x1) into the frame maps, narrowing class indices to ushort.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void FlushRow(Job job, in RowOut o, int y, int x0, int x1)
     {
         var maps = job.Maps;
@@ -224,7 +310,7 @@ public sealed unsafe partial class PixelReduction
         new ReadOnlySpan<float>(o.Max + x0, n).CopyTo(new Span<float>(Ptr(maps.MaxLogitArray) + at, n));
         uint* cls = (uint*)o.Class + x0;
         ushort* dst = (ushort*)Unsafe.AsPointer(ref maps.ClassIndexArray[0]) + at;
-        int lanes = Lanes, i = 0;
+        int lanes = Vector<float>.Count, i = 0;
         for (; i + 2 * lanes <= n; i += 2 * lanes)
             Vector.Narrow(Vector.Load(cls + i), Vector.Load(cls + i + lanes)).Store(dst + i);
         for (; i < n; i++) dst[i] = (ushort)cls[i];

@@ -11,7 +11,8 @@ namespace Strayspot.Scoring.Reduction;
 /// ONNX <c>Resize</c> operator with mode=linear, coordinate_transformation_mode=half_pixel (no antialias, also when
 /// shrinking); equal sizes copy. The C×H×W upsampled tensor is never materialized: each worker keeps two source rows
 /// resampled horizontally and blends them per output row, so memory stays O(C·W) per thread.
-/// One instance is meant for one stream of frames: it keeps its interpolation tables and per-thread scratch.
+/// Keep one instance per stream of frames: it keeps the interpolation tables of the last frame size and per-thread
+/// scratch, so steady-state frames allocate nothing. Concurrent calls are safe (each takes its own scratch).
 /// </summary>
 public sealed unsafe partial class PixelReduction
 {
@@ -71,16 +72,19 @@ public sealed unsafe partial class PixelReduction
         bool identity = logits.Height == frameHeight && logits.Width == frameWidth && frameWidth >= Lanes;
         if (!identity)
         {
-            int blocks = (frameWidth + Lanes - 1) / Lanes;
-            if (_xs is null || _xs.InLength != logits.Width || _xs.OutLength != frameWidth)
+            // Tables are immutable once built and published whole, so concurrent frames can share this instance.
+            var xs = _xs;
+            if (xs is null || xs.InLength != logits.Width || xs.OutLength != frameWidth)
             {
-                _xs = ResampleAxis.Create(logits.Width, frameWidth, blocks * Lanes);
-                _xs.BuildWindows(Lanes);
+                xs = ResampleAxis.Create(logits.Width, frameWidth, (frameWidth + Lanes - 1) / Lanes * Lanes);
+                xs.BuildWindows(Lanes);
+                _xs = xs;
             }
-            if (_ys is null || _ys.InLength != logits.Height || _ys.OutLength != frameHeight)
-                _ys = ResampleAxis.Create(logits.Height, frameHeight, frameHeight);
-            job.Xs = _xs;
-            job.Ys = _ys;
+            var ys = _ys;
+            if (ys is null || ys.InLength != logits.Height || ys.OutLength != frameHeight)
+                _ys = ys = ResampleAxis.Create(logits.Height, frameHeight, frameHeight);
+            job.Xs = xs;
+            job.Ys = ys;
         }
 
         // More bands than cores balances load when other work shares the machine; each band re-reads at most two source rows.

@@ -92,13 +92,12 @@ public sealed class StandardizedMaxLogit
         int i = 0;
         if (Avx2.IsSupported)
             i = ApplyAvx2(maxLogit, classIndex, sml);
+        // (x − mean)·(1/std) can exceed the float range for extreme inputs: clamping keeps the promise of finite output.
         for (; i < maxLogit.Length; i++)
         {
             int c = classIndex[i];
-            sml[i] = (maxLogit[i] - _mean[c]) * _invStd[c];
+            sml[i] = Math.Clamp((maxLogit[i] - _mean[c]) * _invStd[c], float.MinValue, float.MaxValue);
         }
-        // (x − mean)·(1/std) can exceed the float range for extreme inputs; keep the promise of finite output.
-        TensorPrimitives.Clamp(sml, float.MinValue, float.MaxValue, sml);
     }
 
     /// <summary>The inverse of <see cref="Apply"/>: max logit = sml·std[c] + mean[c].</summary>
@@ -118,12 +117,14 @@ public sealed class StandardizedMaxLogit
         fixed (float* x = maxLogit, mean = _mean, inv = _invStd, o = sml)
         fixed (ushort* cls = classIndex)
         {
+            var lo = Vector256.Create(float.MinValue);
+            var hi = Vector256.Create(float.MaxValue);
             for (; i + 8 <= n; i += 8)
             {
                 var idx = Avx2.ConvertToVector256Int32(Vector128.Load(cls + i));
                 var m = Avx2.GatherVector256(mean, idx, 4);
                 var s = Avx2.GatherVector256(inv, idx, 4);
-                ((Vector256.Load(x + i) - m) * s).Store(o + i);
+                Vector256.MinNative(Vector256.MaxNative((Vector256.Load(x + i) - m) * s, lo), hi).Store(o + i);
             }
         }
         return i;

@@ -67,10 +67,13 @@ public class PixelReductionTests
         AllNear(-3e4f, far.Energy);
     }
 
-    [Fact]
-    public void Ties_go_to_the_lowest_class_index()
+    [Theory]
+    [InlineData(ReductionOutputs.None, 3, 11, 3, 11)]
+    [InlineData(ReductionOutputs.None, 3, 11, 7, 40)]
+    [InlineData(ReductionOutputs.Msp, 3, 11, 7, 40)]
+    public void Ties_go_to_the_lowest_class_index(ReductionOutputs outputs, int h, int w, int outH, int outW)
     {
-        var maps = ReduceConstant([1f, 5f, 2f, 5f, 5f], ReductionOutputs.Msp);
+        var maps = ReduceConstant([1f, 5f, 2f, 5f, 5f], outputs, 1.0, h, w, outH, outW);
         foreach (var c in maps.ClassIndex) Assert.Equal(1, c);
         AllNear(5f, maps.MaxLogit);
         var allEqual = ReduceConstant([-3f, -3f, -3f, -3f], ReductionOutputs.Entropy, 1.0, 4, 4, 9, 17);
@@ -141,11 +144,13 @@ public class PixelReductionTests
 
     /// <summary>Fused against the naive oracle on random logits over many shapes, including reuse of one
     /// <see cref="ReducedMaps"/> and one <see cref="PixelReduction"/> across frames of changing size.</summary>
-    [Fact]
-    public void Fused_equals_naive_on_random_logits_of_many_sizes()
+    [Theory]
+    [InlineData(All)]
+    [InlineData(ReductionOutputs.None)] // class and max logit only take a separate two-blocks-at-once kernel
+    public void Fused_equals_naive_on_random_logits_of_many_sizes(ReductionOutputs outputs)
     {
-        var rng = new Random(11);
-        var reduction = new PixelReduction(All, 1.5);
+        var rng = new Random(11 + (int)outputs);
+        var reduction = new PixelReduction(outputs, 1.5);
         var fused = new ReducedMaps();
         for (int trial = 0; trial < 60; trial++)
         {
@@ -154,7 +159,7 @@ public class PixelReductionTests
             var logits = ReductionAgainstOnnxRuntimeTests.RandomLogits(c * h * w, trial, scale: 20f);
             var view = new LogitsView(logits, c, h, w);
             var naive = new ReducedMaps();
-            NaiveReduction.Reduce(view, outH, outW, All, 1.5, naive);
+            NaiveReduction.Reduce(view, outH, outW, outputs, 1.5, naive);
             reduction.Reduce(view, outH, outW, fused);
             string at = $"trial {trial} C={c} {h}×{w}→{outH}×{outW}";
             AssertClose(naive.MaxLogit, fused.MaxLogit, 1e-5f, at + " max");
@@ -170,6 +175,59 @@ public class PixelReductionTests
                 Assert.True(Math.Abs(up[k * n + p] - naive.MaxLogit[p]) <= 1e-5f * Math.Max(1f, Math.Abs(naive.MaxLogit[p])), $"{at} pixel {p} class {k}");
             }
         }
+    }
+
+    [Theory]
+    [InlineData(ReductionOutputs.None)]
+    [InlineData(All)]
+    public void Many_classes_split_wide_rows_into_tiles_and_still_match_naive(ReductionOutputs outputs)
+    {
+        // 600 classes × 150 columns exceeds one cached-row budget, so the row is processed in several tiles.
+        var view = new LogitsView(ReductionAgainstOnnxRuntimeTests.RandomLogits(600 * 6 * 9, 3), 600, 6, 9);
+        var naive = new ReducedMaps();
+        var fused = new ReducedMaps();
+        NaiveReduction.Reduce(view, 11, 150, outputs, 1.0, naive);
+        new PixelReduction(outputs).Reduce(view, 11, 150, fused);
+        Assert.Equal(naive.ClassIndex.ToArray(), fused.ClassIndex.ToArray());
+        AssertClose(naive.MaxLogit, fused.MaxLogit, 1e-5f);
+        AssertClose(naive.Entropy, fused.Entropy, 1e-5f);
+    }
+
+    [Fact]
+    public void One_instance_serves_concurrent_frames_of_different_sizes()
+    {
+        var reduction = new PixelReduction(ReductionOutputs.Msp);
+        var a = new LogitsView(ReductionAgainstOnnxRuntimeTests.RandomLogits(5 * 20 * 30, 1), 5, 20, 30);
+        var b = new LogitsView(ReductionAgainstOnnxRuntimeTests.RandomLogits(5 * 13 * 17, 2), 5, 13, 17);
+        var expectA = new ReducedMaps();
+        var expectB = new ReducedMaps();
+        NaiveReduction.Reduce(a, 80, 120, ReductionOutputs.Msp, 1.0, expectA);
+        NaiveReduction.Reduce(b, 50, 70, ReductionOutputs.Msp, 1.0, expectB);
+        Parallel.For(0, 16, i =>
+        {
+            var maps = new ReducedMaps();
+            var (view, h, w, expect) = i % 2 == 0 ? (a, 80, 120, expectA) : (b, 50, 70, expectB);
+            for (int k = 0; k < 5; k++)
+            {
+                reduction.Reduce(view, h, w, maps);
+                AssertClose(expect.MaxLogit, maps.MaxLogit, 1e-5f);
+                AssertClose(expect.Msp, maps.Msp, 1e-5f);
+            }
+        });
+    }
+
+    [Fact]
+    public void Steady_state_frames_allocate_nothing_per_pixel_or_row()
+    {
+        // Serial so every allocation happens on this thread; a frame may allocate its small job object, not buffers.
+        var reduction = new PixelReduction(All) { MaxDegreeOfParallelism = 1 };
+        var view = new LogitsView(ReductionAgainstOnnxRuntimeTests.RandomLogits(19 * 32 * 64, 9), 19, 32, 64);
+        var maps = new ReducedMaps();
+        reduction.Reduce(view, 128, 256, maps);
+        long before = GC.GetAllocatedBytesForCurrentThread();
+        for (int i = 0; i < 5; i++) reduction.Reduce(view, 128, 256, maps);
+        long perFrame = (GC.GetAllocatedBytesForCurrentThread() - before) / 5;
+        Assert.True(perFrame < 1024, $"{perFrame} bytes per frame");
     }
 
     [Fact]
