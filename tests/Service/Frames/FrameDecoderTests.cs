@@ -233,3 +233,21 @@ public class FrameDecoderTests
         public override void Write(byte[] buffer, int offset, int count) => throw new NotSupportedException();
     }
 }
+
+public class CmykJpegTests
+{
+    [Theory]
+    [InlineData(255, 0, 255, 255, 255, 0, 255)]
+    [InlineData(0, 255, 255, 255, 0, 255, 255)]
+    [InlineData(255, 255, 255, 0, 0, 0, 0)]
+    public void AdobeCmykJpegIsDecodedToRgb(byte c, byte m, byte y, byte k, byte r, byte g, byte b)
+    {
+        // Stored (inverted) C=255, M=0, Y=255, K=255 is magenta ink only: RGB (255, 0, 255) under the common
+        // Adobe inverted-CMYK reading R = C·K/255 (recalled from memory; what widely used decoders do).
+        byte[] jpeg = CmykJpeg.Flat8x8([c, m, y, k]);
+        using var frame = new FrameDecoder().Decode(jpeg);
+        Assert.Equal((8, 8), (frame.Width, frame.Height));
+        var p = frame.Image[4, 4];
+        Assert.True(Math.Abs(p.R - r) <= 5 && Math.Abs(p.G - g) <= 5 && Math.Abs(p.B - b) <= 5, $"got {p}");
+    }
+}
