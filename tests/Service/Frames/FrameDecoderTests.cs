@@ -61,6 +61,28 @@ public class FrameDecoderTests
     }
 
     [Fact]
+    public void TruncatedPngIsRefusedAsCorrupt()
+    {
+        using var img = TestImages.Noise(64, 48, seed: 6);
+        byte[] png = TestImages.Png(img);
+        var e = Assert.Throws<ModelException>(() => _decoder.Decode(png.AsMemory(0, png.Length / 2)));
+        Assert.Equal(ModelErrorCodes.FrameCorrupt, e.Code);
+    }
+
+    [Fact]
+    public void LosslessWebpDecodesExactly()
+    {
+        using var img = TestImages.Noise(9, 7, seed: 12);
+        using var ms = new MemoryStream();
+        img.Save(ms, new SixLabors.ImageSharp.Formats.Webp.WebpEncoder { FileFormat = SixLabors.ImageSharp.Formats.Webp.WebpFileFormatType.Lossless });
+        using var frame = _decoder.Decode(ms.ToArray());
+        Assert.Equal("Webp", frame.Format, ignoreCase: true);
+        for (int y = 0; y < 7; y++)
+            for (int x = 0; x < 9; x++)
+                Assert.Equal(img[x, y], frame.Image[x, y]);
+    }
+
+    [Fact]
     public void PngHeaderClaiming30000x30000IsRefusedBeforeDecoding()
     {
         byte[] png = CraftPngHeader(30000, 30000);
