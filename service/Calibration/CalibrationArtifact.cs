@@ -40,6 +40,14 @@ public sealed record CalibrationArtifact
                 $"The calibration describes {Classes.Count} classes but the model has {model.ClassCount}.");
     }
 
+    /// <summary>Loads a calibration and checks that it was measured with <paramref name="model"/>.</summary>
+    public static CalibrationArtifact LoadFor(SegmentationModel model, string path)
+    {
+        var artifact = Load(path);
+        artifact.EnsureMatches(model);
+        return artifact;
+    }
+
     public void Save(string path) => AtomicFile.Write(path, s => JsonSerializer.Serialize(s, this, Options));
 
     public static CalibrationArtifact Load(string path)

@@ -93,6 +93,7 @@ public sealed class Calibrator
             if (_options.StopAfterFrames is int stop) end = Math.Min(end, Math.Max(done + 1, stop));
             var perFrame = new ClassStatisticsAccumulator[end - done];
             int first = done;
+            int finishedInChunk = 0;
             try
             {
                 Parallel.For(first, end, parallel, i =>
@@ -100,6 +101,7 @@ public sealed class Calibrator
                     if (!workers.TryTake(out var w)) w = new Worker(_model, _reducerFactory());
                     try { perFrame[i - first] = w.Measure(frames[i], _decoder, classes, _options); }
                     finally { workers.Add(w); }
+                    progress?.Report(new CalibrationProgress(first + Interlocked.Increment(ref finishedInChunk), frames.Count, resumedFrom));
                 });
             }
             catch (AggregateException e) when (e.InnerExceptions.Count > 0)

@@ -57,7 +57,8 @@ public sealed class FrameDecoder
 
     public DecodedFrame Decode(ReadOnlyMemory<byte> bytes, string source = "frame")
     {
-        using var stream = new MemoryStream(bytes.ToArray(), 0, bytes.Length, writable: false, publiclyVisible: true);
+        var segment = System.Runtime.InteropServices.MemoryMarshal.TryGetArray(bytes, out ArraySegment<byte> a) ? a : new ArraySegment<byte>(bytes.ToArray());
+        using var stream = new MemoryStream(segment.Array!, segment.Offset, segment.Count, writable: false, publiclyVisible: true);
         return Decode(stream, source);
     }
 

@@ -112,10 +112,13 @@ public sealed class FramePreprocessor
 
     private void InterpolateRow(ReadOnlySpan<Rgb24> top, ReadOnlySpan<Rgb24> bottom, float wy, float[] row)
     {
-        for (int x = 0; x < _x0.Length; x++)
+        int[] x0s = _x0, x1s = _x1;
+        float[] wxs = _wx;
+        for (int x = 0; x < x0s.Length; x++)
         {
-            Rgb24 a = top[_x0[x]], b = top[_x1[x]], c = bottom[_x0[x]], d = bottom[_x1[x]];
-            float wx = _wx[x];
+            int i0 = x0s[x], i1 = x1s[x];
+            Rgb24 a = top[i0], b = top[i1], c = bottom[i0], d = bottom[i1];
+            float wx = wxs[x];
             row[3 * x] = Lerp2(a.R, b.R, c.R, d.R, wx, wy);
             row[3 * x + 1] = Lerp2(a.G, b.G, c.G, d.G, wx, wy);
             row[3 * x + 2] = Lerp2(a.B, b.B, c.B, d.B, wx, wy);

@@ -120,7 +120,7 @@ public class CalibratorTests
         var g = new TestSegmentationGraph { Classes = 3, Stride = 2 };
         g.WriteFolder(other);
         using var otherModel = SegmentationModel.LoadFolder(other, OneThread);
-        var e = Assert.Throws<ModelException>(() => CalibrationArtifact.Load(dir["cal.json"]).EnsureMatches(otherModel));
+        var e = Assert.Throws<ModelException>(() => CalibrationArtifact.LoadFor(otherModel, dir["cal.json"]));
         Assert.Equal(ModelErrorCodes.CalibrationModelMismatch, e.Code);
         Assert.Contains(artifact.ModelSha256, e.Message);
         Assert.Contains(otherModel.ModelSha256, e.Message);

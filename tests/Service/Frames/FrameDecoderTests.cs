@@ -61,6 +61,28 @@ public class FrameDecoderTests
     }
 
     [Fact]
+    public void TruncatedPngIsRefusedAsCorrupt()
+    {
+        using var img = TestImages.Noise(64, 48, seed: 6);
+        byte[] png = TestImages.Png(img);
+        var e = Assert.Throws<ModelException>(() => _decoder.Decode(png.AsMemory(0, png.Length / 2)));
+        Assert.Equal(ModelErrorCodes.FrameCorrupt, e.Code);
+    }
+
+    [Fact]
+    public void LosslessWebpDecodesExactly()
+    {
+        using var img = TestImages.Noise(9, 7, seed: 12);
+        using var ms = new MemoryStream();
+        img.Save(ms, new SixLabors.ImageSharp.Formats.Webp.WebpEncoder { FileFormat = SixLabors.ImageSharp.Formats.Webp.WebpFileFormatType.Lossless });
+        using var frame = _decoder.Decode(ms.ToArray());
+        Assert.Equal("Webp", frame.Format, ignoreCase: true);
+        for (int y = 0; y < 7; y++)
+            for (int x = 0; x < 9; x++)
+                Assert.Equal(img[x, y], frame.Image[x, y]);
+    }
+
+    [Fact]
     public void PngHeaderClaiming30000x30000IsRefusedBeforeDecoding()
     {
         byte[] png = CraftPngHeader(30000, 30000);
@@ -231,5 +253,23 @@ public class FrameDecoderTests
         public override long Seek(long offset, SeekOrigin origin) => throw new NotSupportedException();
         public override void SetLength(long value) => throw new NotSupportedException();
         public override void Write(byte[] buffer, int offset, int count) => throw new NotSupportedException();
+    }
+}
+
+public class CmykJpegTests
+{
+    [Theory]
+    [InlineData(255, 0, 255, 255, 255, 0, 255)]
+    [InlineData(0, 255, 255, 255, 0, 255, 255)]
+    [InlineData(255, 255, 255, 0, 0, 0, 0)]
+    public void AdobeCmykJpegIsDecodedToRgb(byte c, byte m, byte y, byte k, byte r, byte g, byte b)
+    {
+        // Stored (inverted) C=255, M=0, Y=255, K=255 is magenta ink only: RGB (255, 0, 255) under the common
+        // Adobe inverted-CMYK reading R = C·K/255 (recalled from memory; what widely used decoders do).
+        byte[] jpeg = CmykJpeg.Flat8x8([c, m, y, k]);
+        using var frame = new FrameDecoder().Decode(jpeg);
+        Assert.Equal((8, 8), (frame.Width, frame.Height));
+        var p = frame.Image[4, 4];
+        Assert.True(Math.Abs(p.R - r) <= 5 && Math.Abs(p.G - g) <= 5 && Math.Abs(p.B - b) <= 5, $"got {p}");
     }
 }

@@ -118,7 +118,7 @@ public class ModelDescriptorTests
     private static void AssertSameNames(Type record, JsonElement properties)
     {
         var expected = record.GetProperties(BindingFlags.Public | BindingFlags.Instance)
-            .Select(p => p.GetCustomAttribute<JsonPropertyNameAttribute>()?.Name).Where(n => n is not null).OrderBy(n => n).ToList();
+            .Select(p => p.GetCustomAttribute<JsonPropertyNameAttribute>()?.Name).OfType<string>().OrderBy(n => n).ToList();
         var actual = properties.EnumerateObject().Select(p => p.Name).OrderBy(n => n).ToList();
         Assert.Equal(expected, actual);
     }

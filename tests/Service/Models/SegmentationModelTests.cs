@@ -65,6 +65,25 @@ public class SegmentationModelTests
     }
 
     [Fact]
+    public void OneByOneFrameRunsEndToEnd()
+    {
+        var graph = new TestSegmentationGraph { Classes = 3, Stride = 4 };
+        using var dir = new TempFolder();
+        graph.WriteFolder(dir.Path, graph.Descriptor(new SizePolicy { Mode = "dynamic", PadMultiple = 4 }));
+        using var model = SegmentationModel.LoadFolder(dir.Path, TwoThreads);
+        using var frame = DecodedFrame.FromImage(TestImages.Noise(1, 1, seed: 8));
+        var input = new FramePreprocessor(model.Descriptor.Input).Prepare(frame);
+        Assert.Equal(new ContentBox(1, 1, 1, 1, 4, 4), input.Box);
+        using var lease = model.Run(input);
+        float[]? scratch = null;
+        var cropped = input.Box.CropToContent(lease.View, ref scratch);
+        Assert.Equal((3, 1, 1), (cropped.Channels, cropped.Height, cropped.Width));
+        // The one output cell averages the frame pixel with 15 zero-padded pixels.
+        var expected = graph.Reference(input.Data.Span, 4, 4);
+        for (int c = 0; c < 3; c++) Assert.Equal(expected[c], cropped.Data.Span[c], 4);
+    }
+
+    [Fact]
     public void RunIsSafeFromManyThreads()
     {
         var graph = new TestSegmentationGraph { Classes = 4, Stride = 2 };
