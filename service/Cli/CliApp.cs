@@ -15,6 +15,7 @@ public static class CliApp
         var root = new RootCommand(
             "strayspot: finds what a segmentation model was never trained on. " +
             "A data-triage and monitoring aid, not a certified safety function.");
+        root.Subcommands.Add(DemoVerb.Create());
         root.Subcommands.Add(ScoreVerb.Create());
         root.Subcommands.Add(ScoreLogitsVerb.Create());
         root.Subcommands.Add(CalibrateVerb.Create(() => new Calibration.PixelReductionMaxLogitReducer()));

@@ -1,0 +1,47 @@
+using System.CommandLine;
+using Strayspot.Service.Demo;
+using Strayspot.Service.Inference;
+
+namespace Strayspot.Service.Cli;
+
+/// <summary>
+/// <c>demo</c>: the whole job on the bundled apron demo, no model of the user's own needed.
+/// <c>demo build</c>: regenerates the demo's model, descriptor, statistics and frames from code.
+/// </summary>
+public static class DemoVerb
+{
+    public static Command Create()
+    {
+        var output = new Option<DirectoryInfo>("--out") { Description = "output folder", DefaultValueFactory = _ => new DirectoryInfo("strayspot-demo") };
+        var command = new Command("demo", "Score the bundled demo frames (synthetic airport apron with debris) end to end.");
+        command.Options.Add(output);
+        command.SetAction(p => CliApp.Guard(() =>
+        {
+            string root = p.GetValue(output)!.FullName;
+            var (modelFolder, frames) = BundledDemo.Extract(Path.Combine(root, "model"), Path.Combine(root, "frames"));
+            using var bundle = ModelBundle.Load(modelFolder);
+            string scores = Path.Combine(root, "scores");
+            var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
+                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Scorer.Defaults, scores, progress));
+            Console.WriteLine($"Demo model:  {modelFolder}");
+            Console.WriteLine($"Frames:      {Path.Combine(root, "frames")}");
+            Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");
+            Console.WriteLine("Frames by frame score, highest first:");
+            foreach (var r in ranking)
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {Path.GetFileName(r.Frame)}");
+            return CliApp.ExitOk;
+        }));
+
+        var buildOut = new Option<DirectoryInfo>("--out") { Description = "folder for the rebuilt demo", Required = true };
+        var build = new Command("build", "Regenerate the demo model folder (model, descriptor, statistics, frames, held-out set) from code.");
+        build.Options.Add(buildOut);
+        build.SetAction(p => CliApp.Guard(() =>
+        {
+            var result = DemoAssets.Build(p.GetValue(buildOut)!.FullName);
+            foreach (string f in result.Files) Console.WriteLine(f);
+            return CliApp.ExitOk;
+        }));
+        command.Subcommands.Add(build);
+        return command;
+    }
+}
