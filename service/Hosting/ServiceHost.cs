@@ -103,6 +103,10 @@ public static class ServiceHost
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
+        services.AddSingleton<PipelinePool>();
+        // Scores can be ±Infinity (e.g. SML of a class with zero spread); write them rather than fail the answer.
+        services.ConfigureHttpJsonOptions(o => o.SerializerOptions.NumberHandling =
+            System.Text.Json.Serialization.JsonNumberHandling.AllowNamedFloatingPointLiterals);
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
 
@@ -181,6 +185,7 @@ public static class ServiceHost
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
+        LogitsApi.Map(v1);
     }
 }
 
