@@ -154,7 +154,7 @@ public static class ServiceHost
         404 => $"Nothing is served at {http.Request.Path}.",
         405 => $"{http.Request.Method} is not allowed on {http.Request.Path}.",
         413 => "The request body is larger than the service accepts (Service:MaxRequestBytes).",
-        415 => $"Content type '{http.Request.ContentType}' is not accepted here; see the API docs for the expected one.",
+        415 => $"Content type '{http.Request.ContentType}' is not accepted here; the API docs at /docs name the expected one.",
         _ => null,
     };
 
