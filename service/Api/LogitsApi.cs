@@ -41,8 +41,38 @@ public static class LogitsApi
     /// <summary>Without the camera image there is nothing to overlay.</summary>
     private static readonly IReadOnlySet<string> Available = ArtifactStore.Files.Keys.Where(k => k != "overlay").ToHashSet();
 
+    /// <summary>An answer as the API docs show it: one debris region on the apron.</summary>
+    public const string Example = """
+        {
+          "frameId": "3f2b9c0e41d84b8c9a51d0c3e7a26f11",
+          "client": { "clientFrameId": "cam3-000117", "captureTime": "2026-12-01T08:30:00+00:00", "rigId": "apron-rig-7" },
+          "receivedUtc": "2026-12-01T08:30:00.412+00:00",
+          "report": {
+            "frameId": "3f2b9c0e41d84b8c9a51d0c3e7a26f11",
+            "frame": { "width": 1024, "height": 512 },
+            "logits": { "classes": 6, "height": 128, "width": 256 },
+            "model": { "name": "apron-seg", "sha256": "9e1c…", "profileVersion": "20261130T101500Z" },
+            "scoreConvention": "higher-is-more-anomalous",
+            "method": "sml",
+            "threshold": 2.0,
+            "frameScore": 4.81,
+            "flaggedPixels": 1184,
+            "anomalousShare": 0.00226,
+            "regions": [
+              { "id": 1, "box": { "x": 611, "y": 388, "width": 41, "height": 33 }, "area": 1184, "areaShare": 0.00226,
+                "centroid": [631.4, 404.9], "maxScore": 6.02, "meanScore": 3.37,
+                "classBeneath": 0, "classBeneathName": "apron-surface", "classBeneathShare": 0.91, "onSurface": true }
+            ],
+            "timingsMs": { "reduction": 6.1, "standardization": 0.4, "boundarySuppression": 3.2, "smoothing": 4.9, "regions": 1.1, "scoringTotal": 15.7 },
+            "artifacts": { "classes": "/v1/frames/3f2b9c0e41d84b8c9a51d0c3e7a26f11/classes", "mask": "/v1/frames/3f2b9c0e41d84b8c9a51d0c3e7a26f11/mask", "heat": "/v1/frames/3f2b9c0e41d84b8c9a51d0c3e7a26f11/heat" },
+            "notice": "Data-triage and monitoring aid, not a certified safety function; validate it on your own data and follow your local rules."
+          }
+        }
+        """;
+
     public static void Map(RouteGroupBuilder v1)
     {
+        SchemaExamples.Register<ScoredFrame>(() => System.Text.Json.Nodes.JsonNode.Parse(Example)!);
         v1.MapPost("/models/{model}/logits", Score)
             .WithTags("Frames")
             .WithName("ScoreLogits")
@@ -54,6 +84,7 @@ public static class LogitsApi
                 "queue get 429 with Retry-After. Scores are triage evidence, not a safety decision.")
             .DisableAntiforgery()
             .Accepts<LogitsUpload>("multipart/form-data")
+            .Produces<ScoredFrame>()
             .ProducesProblem(StatusCodes.Status400BadRequest)
             .ProducesProblem(StatusCodes.Status404NotFound)
             .ProducesProblem(StatusCodes.Status413PayloadTooLarge)
