@@ -183,7 +183,7 @@ public static class LogitsApi
         return TypedResults.Ok(new ScoredFrame(frameId, req.Metadata, received, report));
     }
 
-    private static void LogFrame(ILoggerFactory logs, FrameReport r, string model)
+    internal static void LogFrame(ILoggerFactory logs, FrameReport r, string model)
     {
         var t = r.TimingsMs;
         logs.CreateLogger("Strayspot.Frames").LogInformation(

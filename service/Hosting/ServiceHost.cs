@@ -100,6 +100,8 @@ public static class ServiceHost
         services.AddSingleton(TimeProvider.System);
         services.AddSingleton<ModelCatalog>();
         services.AddHostedService<ModelCatalogLoader>();
+        services.AddSingleton<ModelSessions>();
+        services.AddHostedService<ModelSessionLoader>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
@@ -186,6 +188,7 @@ public static class ServiceHost
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
         LogitsApi.Map(v1);
+        ImageFramesApi.Map(v1);
     }
 }
 
