@@ -93,7 +93,16 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
             if (statistics is not null && statistics.Count != descriptor.Classes.Count)
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
                     $"{calibration!.File} describes {statistics.Count} classes but {DescriptorFile} lists {descriptor.Classes.Count}.");
-            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = HashModel(folder) };
+            string? sha = HashModel(folder);
+            if (sha is not null && calibration?.File == CalibrationFile)
+            {
+                // Statistics measured through other weights would standardize with the wrong means: refuse them.
+                var artifact = Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile));
+                if (!string.Equals(artifact.ModelSha256, sha, StringComparison.OrdinalIgnoreCase))
+                    throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
+                        $"{CalibrationFile} was measured with model SHA-256 {artifact.ModelSha256}, but {SegmentationModel.ModelFileName} is {sha}; calibrate again.");
+            }
+            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha };
         }
         catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)
         {

@@ -78,7 +78,7 @@ public class HealthAndModelsApiTests
         Assert.Equal("statistics.json", cal.GetProperty("file").GetString());
         Assert.Equal(4, cal.GetProperty("classCount").GetInt32());
         // WriteModel gives the last class only 10 pixels: below minimumCount 100, so it falls back.
-        Assert.Equal(["marking"], cal.GetProperty("fallbackClasses").EnumerateArray().Select(e => e.GetString()).ToArray());
+        Assert.Equal(new[] { "marking" }, cal.GetProperty("fallbackClasses").EnumerateArray().Select(e => e.GetString()!).ToArray());
         var p = json.GetProperty("profile");
         Assert.Equal("2026-11-30T10:00:00Z", p.GetProperty("version").GetString());
         Assert.Equal("energy", p.GetProperty("method").GetString());

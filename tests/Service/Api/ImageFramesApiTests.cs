@@ -88,3 +88,27 @@ public class ImageFramesApiTests
         Assert.Contains("/logits", p.GetProperty("detail").GetString());
     }
 }
+
+public class CalibrationBindingTests
+{
+    [Fact]
+    public async Task A_calibration_made_with_other_weights_makes_the_model_unusable()
+    {
+        var graph = new TestSegmentationGraph { Classes = 3 };
+        await using var s = await TestService.StartAsync(m =>
+        {
+            string folder = graph.WriteFolder(Path.Combine(m, "tiny"));
+            File.WriteAllText(Path.Combine(folder, "calibration.json"), JsonSerializer.Serialize(new
+            {
+                classes = Enumerable.Range(0, 3).Select(i => new { name = "c" + i, count = 500, mean = 1.0, std = 0.5 }).ToArray(),
+                minimumCount = 100,
+                modelSha256 = new string('0', 64),
+                frameCount = 12,
+            }));
+        });
+        var json = JsonDocument.Parse(await s.Client.GetStringAsync("/v1/models/tiny")).RootElement;
+        Assert.False(json.GetProperty("usable").GetBoolean());
+        Assert.Contains("calibrate again", json.GetProperty("error").GetString());
+        await TestService.ProblemAsync(await s.Client.GetAsync("/readyz"), 503, "not-ready");
+    }
+}
