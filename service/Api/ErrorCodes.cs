@@ -1,4 +1,5 @@
 using Strayspot.Scoring.Logits;
+using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Api;
 
@@ -58,6 +59,17 @@ public static class ErrorCodes
         new(ScoringErrorCodes.Options, 400, "The scoring options are invalid"),
         new(ScoringErrorCodes.StatisticsMismatch, 422, "The class statistics do not fit the logits"),
         new(ScoringErrorCodes.StatisticsFormat, 422, "The class statistics are invalid"),
+        new(ScoringErrorCodes.ClassIndexRange, 422, "A class index is beyond the model's classes"),
+        // Codes raised by the model runtime (ModelException.Code).
+        new(ModelErrorCodes.DescriptorInvalid, 503, "The model's descriptor is invalid"),
+        new(ModelErrorCodes.ModelInvalid, 503, "The model file cannot be used"),
+        new(ModelErrorCodes.ModelOutputMismatch, 503, "The model's output does not match its descriptor"),
+        new(ModelErrorCodes.ModelExternalData, 503, "The model's external data is refused"),
+        new(ModelErrorCodes.FrameFormat, 415, "The frame's image format is not supported"),
+        new(ModelErrorCodes.FrameTooLarge, 413, "The frame has too many pixels"),
+        new(ModelErrorCodes.FrameCorrupt, 400, "The frame's image data is corrupt"),
+        new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
+        new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
     ];
 
     private static readonly Dictionary<string, ErrorCode> ByCode = Rows.ToDictionary(r => r.Code, StringComparer.Ordinal);

@@ -34,17 +34,20 @@ public static class LogitsForm
 
     /// <summary>The checked request, or the errors by field name.</summary>
     public static (LogitsRequest? Request, Dictionary<string, string[]> Errors) Parse(
-        IFormCollection form, ScoringOptions profile, long maxPixels, IReadOnlySet<string>? availableArtifacts = null)
+        IFormCollection form, ScoringOptions profile, long maxPixels, IReadOnlySet<string>? availableArtifacts = null,
+        string filePart = LogitsPart, string fileDescription = "float32 NPY logits")
     {
         var errors = new Dictionary<string, string[]>(StringComparer.Ordinal);
         void Fail(string field, string message) => errors[field] = [message];
 
+        // An image already has its size: the frame size fields belong to logits uploads only.
+        var fields = filePart == LogitsPart ? Fields : Fields.Where(f => f is not ("frameWidth" or "frameHeight")).ToList();
         foreach (string key in form.Keys)
-            if (!Fields.Contains(key, StringComparer.Ordinal))
-                Fail(key, $"'{key}' is not a field of this endpoint; the fields are {LogitsPart} (file), {string.Join(", ", Fields)}.");
+            if (!fields.Contains(key, StringComparer.Ordinal))
+                Fail(key, $"'{key}' is not a field of this endpoint; the fields are {filePart} (file), {string.Join(", ", fields)}.");
         foreach (var file in form.Files)
-            if (file.Name != LogitsPart)
-                Fail(file.Name, $"File part '{file.Name}' is not expected; send the logits as file part '{LogitsPart}'.");
+            if (file.Name != filePart)
+                Fail(file.Name, $"File part '{file.Name}' is not expected; send the {fileDescription} as file part '{filePart}'.");
 
         string? Single(string field)
         {

@@ -60,9 +60,10 @@ public static class ModelsApi
             .ProducesProblem(StatusCodes.Status403Forbidden)
             .ProducesProblem(StatusCodes.Status404NotFound);
 
-        models.MapPost("/reload", (ModelCatalog catalog) =>
+        models.MapPost("/reload", (ModelCatalog catalog, ModelSessions sessions) =>
             {
                 catalog.Reload();
+                sessions.Sync();
                 return TypedResults.Ok(new ModelList(catalog.Models.Select(Summarize).ToList()));
             })
             .RequireAuthorization(ApiPolicies.Admin)

@@ -18,6 +18,7 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
         (string code, string detail)? mapped = exception switch
         {
             ScoringInputException e => (e.Code, e.Message),
+            Strayspot.Service.Models.ModelException e => (e.Code, e.Message),
             UnsafePathException e => (ErrorCodes.PathOutsideData, e.Message),
             FrameTimeoutException e => (ErrorCodes.Timeout, e.Message),
             QueueFullException e => (ErrorCodes.QueueFull, e.Message),

@@ -39,9 +39,11 @@ public sealed partial class ArtifactStore
 
     public static string ContentType(string artifact) => artifact == "score" ? "application/octet-stream" : "image/png";
 
+    public static string NewFrameId() => Guid.NewGuid().ToString("N");
+
     public (string FrameId, string Folder) CreateFrameFolder()
     {
-        string id = Guid.NewGuid().ToString("N");
+        string id = NewFrameId();
         string folder = Path.Combine(Root, id);
         Directory.CreateDirectory(folder);
         return (id, folder);

@@ -28,6 +28,11 @@ public sealed record CatalogEntry(
     ScoringProfile Profile,
     string? Error)
 {
+    /// <summary>SHA-256 of model.onnx when the folder has one (logits-only folders do not).</summary>
+    public string? Sha256 { get; init; }
+    /// <summary>When this entry was read; pooled pipelines built from older statistics are not reused.</summary>
+    public DateTime LoadedUtc { get; init; } = DateTime.UtcNow;
+
     public bool IsUsable => Error is null && Descriptor is not null;
 }
 
@@ -40,8 +45,6 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
     public const string DescriptorFile = "descriptor.json";
     public const string CalibrationFile = "calibration.json";
     public const string StatisticsFile = "statistics.json";
-
-    private static readonly JsonSerializerOptions DescriptorJson = new() { ReadCommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true };
 
     private volatile Snapshot? _snapshot;
 
@@ -90,30 +93,32 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
             if (statistics is not null && statistics.Count != descriptor.Classes.Count)
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
                     $"{calibration!.File} describes {statistics.Count} classes but {DescriptorFile} lists {descriptor.Classes.Count}.");
-            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null);
+            string? sha = HashModel(folder);
+            if (sha is not null && calibration?.File == CalibrationFile)
+            {
+                // Statistics measured through other weights would standardize with the wrong means: refuse them.
+                var artifact = Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile));
+                if (!string.Equals(artifact.ModelSha256, sha, StringComparison.OrdinalIgnoreCase))
+                    throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
+                        $"{CalibrationFile} was measured with model SHA-256 {artifact.ModelSha256}, but {SegmentationModel.ModelFileName} is {sha}; calibrate again.");
+            }
+            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha };
         }
-        catch (Exception e) when (e is ScoringInputException or InvalidDataException or IOException or UnauthorizedAccessException or JsonException)
+        catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)
         {
             return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, e.Message);
         }
     }
 
-    private static ModelDescriptor ReadDescriptor(string path)
+    private static string? HashModel(string folder)
     {
-        ModelDescriptor? descriptor;
-        try
-        {
-            using var stream = File.OpenRead(path);
-            descriptor = JsonSerializer.Deserialize<ModelDescriptor>(stream, DescriptorJson);
-        }
-        catch (JsonException e)
-        {
-            throw new InvalidDataException($"{DescriptorFile} is not valid JSON: {e.Message}");
-        }
-        if (descriptor is null || descriptor.Classes.Count == 0)
-            throw new InvalidDataException($"{DescriptorFile} lists no classes.");
-        return descriptor;
+        string path = Path.Combine(folder, SegmentationModel.ModelFileName);
+        if (!File.Exists(path)) return null;
+        using var stream = File.OpenRead(path);
+        return Convert.ToHexStringLower(System.Security.Cryptography.SHA256.HashData(stream));
     }
+
+    private static ModelDescriptor ReadDescriptor(string path) => ModelDescriptor.Load(path);
 
     /// <summary>calibration.json (a superset of the statistics file) wins over a bare statistics.json.</summary>
     private static (ClassStatistics?, CalibrationSummary?) ReadStatistics(string folder)

@@ -100,9 +100,15 @@ public static class ServiceHost
         services.AddSingleton(TimeProvider.System);
         services.AddSingleton<ModelCatalog>();
         services.AddHostedService<ModelCatalogLoader>();
+        services.AddSingleton<ModelSessions>();
+        services.AddHostedService<ModelSessionLoader>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
+        services.AddSingleton<PipelinePool>();
+        // Scores can be ±Infinity (e.g. SML of a class with zero spread); write them rather than fail the answer.
+        services.ConfigureHttpJsonOptions(o => o.SerializerOptions.NumberHandling =
+            System.Text.Json.Serialization.JsonNumberHandling.AllowNamedFloatingPointLiterals);
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
 
@@ -150,7 +156,7 @@ public static class ServiceHost
         404 => $"Nothing is served at {http.Request.Path}.",
         405 => $"{http.Request.Method} is not allowed on {http.Request.Path}.",
         413 => "The request body is larger than the service accepts (Service:MaxRequestBytes).",
-        415 => $"Content type '{http.Request.ContentType}' is not accepted here; see the API docs for the expected one.",
+        415 => $"Content type '{http.Request.ContentType}' is not accepted here; the API docs at /docs name the expected one.",
         _ => null,
     };
 
@@ -181,6 +187,8 @@ public static class ServiceHost
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
+        LogitsApi.Map(v1);
+        ImageFramesApi.Map(v1);
     }
 }
 

@@ -78,7 +78,7 @@ public class HealthAndModelsApiTests
         Assert.Equal("statistics.json", cal.GetProperty("file").GetString());
         Assert.Equal(4, cal.GetProperty("classCount").GetInt32());
         // WriteModel gives the last class only 10 pixels: below minimumCount 100, so it falls back.
-        Assert.Equal(["marking"], cal.GetProperty("fallbackClasses").EnumerateArray().Select(e => e.GetString()).ToArray());
+        Assert.Equal(new[] { "marking" }, cal.GetProperty("fallbackClasses").EnumerateArray().Select(e => e.GetString()!).ToArray());
         var p = json.GetProperty("profile");
         Assert.Equal("2026-11-30T10:00:00Z", p.GetProperty("version").GetString());
         Assert.Equal("energy", p.GetProperty("method").GetString());
@@ -136,6 +136,13 @@ public class HealthAndModelsApiTests
         Assert.Contains("/v1/frames/{frameId}/{artifact}", paths);
         Assert.Contains("/healthz", paths);
         Assert.Contains("/readyz", paths);
+        Assert.Contains("/v1/models/{model}/logits", paths);
+        Assert.Contains("/v1/models/{model}/profile", paths);
+        var scored = doc.GetProperty("components").GetProperty("schemas").GetProperty("ScoredFrame");
+        var example = scored.TryGetProperty("examples", out var ex) ? ex[0] : scored.GetProperty("example");
+        Assert.Equal("sml", example.GetProperty("report").GetProperty("method").GetString());
+        var upload = doc.GetProperty("paths").GetProperty("/v1/models/{model}/logits").GetProperty("post").GetProperty("requestBody").GetProperty("content");
+        Assert.True(upload.TryGetProperty("multipart/form-data", out _));
         Assert.Contains("not a certified safety function", doc.GetProperty("info").GetProperty("description").GetString());
         var scheme = doc.GetProperty("components").GetProperty("securitySchemes").GetProperty("ApiKey");
         Assert.Equal("X-Api-Key", scheme.GetProperty("name").GetString());

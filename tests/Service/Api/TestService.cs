@@ -69,6 +69,7 @@ public sealed class TestService : IAsyncDisposable
             name,
             description = "test model " + name,
             classes = classes.Select(c => new { name = c }).ToArray(),
+            input = new { size = new { mode = "fixed", height = 64, width = 96 } },
         };
         File.WriteAllText(Path.Combine(folder, "descriptor.json"), JsonSerializer.Serialize(descriptor));
         if (statistics)

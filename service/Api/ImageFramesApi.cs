@@ -1,0 +1,149 @@
+using Microsoft.AspNetCore.Http.HttpResults;
+using Microsoft.Extensions.Options;
+using Strayspot.Scoring.Logits;
+using Strayspot.Scoring.Pipeline;
+using Strayspot.Service.Frames;
+using Strayspot.Service.Hosting;
+using Strayspot.Service.Models;
+using Strayspot.Service.Reports;
+
+namespace Strayspot.Service.Api;
+
+/// <summary>For the API description only: the multipart fields of an image upload.</summary>
+public sealed class FrameUpload
+{
+    /// <summary>The camera frame: PNG, JPEG or WebP.</summary>
+    public IFormFile? Frame { get; set; }
+    public string? Method { get; set; }
+    public float? Threshold { get; set; }
+    public int? MinArea { get; set; }
+    public string? BoundarySuppression { get; set; }
+    public string? Smoothing { get; set; }
+    public string? ClientFrameId { get; set; }
+    public DateTimeOffset? CaptureTime { get; set; }
+    public string? RigId { get; set; }
+    /// <summary>Comma list of classes, mask, heat, overlay, score (NPY), or none; default classes,mask,heat.</summary>
+    public string? Artifacts { get; set; }
+}
+
+/// <summary>Runs the model on a camera frame and scores its logits.</summary>
+public static class ImageFramesApi
+{
+    public const string FramePart = "frame";
+
+    /// <summary>One worker's reusable preprocessing buffers.</summary>
+    private sealed class FrameWorker(InputDescriptor input)
+    {
+        public FramePreprocessor Preprocessor { get; } = new(input);
+        public float[]? Crop;
+    }
+
+    private static readonly KeyedPool<FrameWorker> Workers = new(perKey: Environment.ProcessorCount, maxKeys: 32);
+
+    public static void Map(RouteGroupBuilder v1)
+    {
+        v1.MapPost("/models/{model}/frames", Score)
+            .WithTags("Frames")
+            .WithName("ScoreFrame")
+            .WithSummary("Runs the model on one camera frame and scores it.")
+            .WithDescription(
+                "Multipart form: file part `frame` (PNG, JPEG or WebP) and the optional fields of the logits endpoint " +
+                "(without frameWidth/frameHeight: the image has its size). The overlay artifact is available here. " +
+                "Scores are triage evidence, not a safety decision.")
+            .DisableAntiforgery()
+            .Accepts<FrameUpload>("multipart/form-data")
+            .Produces<ScoredFrame>()
+            .ProducesProblem(StatusCodes.Status400BadRequest)
+            .ProducesProblem(StatusCodes.Status404NotFound)
+            .ProducesProblem(StatusCodes.Status413PayloadTooLarge)
+            .ProducesProblem(StatusCodes.Status415UnsupportedMediaType)
+            .ProducesProblem(StatusCodes.Status422UnprocessableEntity)
+            .ProducesProblem(StatusCodes.Status429TooManyRequests)
+            .ProducesProblem(StatusCodes.Status503ServiceUnavailable);
+    }
+
+    private static async Task<Results<Ok<ScoredFrame>, ProblemHttpResult>> Score(
+        string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
+        ArtifactStore store, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+    {
+        var received = time.GetUtcNow();
+        if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
+        if (!entry.IsUsable)
+            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+        if (!ModelSessions.HasOnnx(entry))
+            return ApiProblems.Create(ErrorCodes.ModelUnavailable,
+                $"Model '{model}' has no {SegmentationModel.ModelFileName}; send logits to /v1/models/{model}/logits instead.");
+        var session = sessions.Get(entry);
+        if (session is null)
+            return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
+        if (!request.HasFormContentType)
+            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                $"Send multipart/form-data with the image as file part '{FramePart}'; got '{request.ContentType ?? "no content type"}'.");
+
+        IFormCollection form;
+        try
+        {
+            form = await request.ReadFormAsync(ct);
+        }
+        catch (InvalidDataException e)
+        {
+            bool tooLarge = e.Message.Contains("limit", StringComparison.OrdinalIgnoreCase);
+            return ApiProblems.Create(tooLarge ? ErrorCodes.PayloadTooLarge : ErrorCodes.BadRequest, $"The form could not be read: {e.Message}");
+        }
+        var (req, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
+        var file = form.Files.GetFile(FramePart);
+        if (file is null && !errors.ContainsKey(FramePart))
+            errors[FramePart] = [$"The form has no file part '{FramePart}' (PNG, JPEG or WebP)."];
+        if (req is null || file is null) return ApiProblems.Validation(errors);
+        if (req.Options.Method == ScoreMethod.Sml && entry.Statistics is null)
+            return ApiProblems.Create(ErrorCodes.StatisticsMissing,
+                $"Model '{model}' has no class statistics (calibration.json or statistics.json), which the sml method needs; " +
+                "calibrate the model or choose another method.");
+
+        byte[] bytes;
+        using (var buffer = new MemoryStream((int)Math.Min(file.Length, int.MaxValue)))
+        {
+            await file.CopyToAsync(buffer, ct);
+            bytes = buffer.ToArray();
+        }
+        var descriptor = entry.Descriptor!;
+        var classNames = descriptor.Classes.Select(c => c.Name).ToList();
+        var colors = FrameArtifacts.ColorsOf(descriptor);
+        string pipelineKey = PipelinePool.Key(entry, req.Options);
+        string workerKey = entry.Name + "|" + entry.Sha256;
+        var decoder = new FrameDecoder(new FrameDecoderOptions { MaxPixels = options.Value.MaxPixels });
+        var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
+
+        var report = await lane.RunAsync(token =>
+        {
+            using var frame = decoder.Decode(new MemoryStream(bytes, 0, bytes.Length, writable: false, publiclyVisible: true), FramePart);
+            var worker = Workers.Rent(workerKey, () => new FrameWorker(descriptor.Input));
+            var pipeline = pipelines.Rent(pipelineKey, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
+            try
+            {
+                var input = worker.Preprocessor.Prepare(frame);
+                token.ThrowIfCancellationRequested();
+                using var lease = session.Run(input);
+                var logits = input.Box.CropToContent(lease.View, ref worker.Crop);
+                if (logits.Channels != descriptor.Classes.Count)
+                    throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+                        $"The model produced {logits.Channels} classes but its descriptor lists {descriptor.Classes.Count}.");
+                var scored = pipeline.Score(logits, frame.Height, frame.Width);
+                token.ThrowIfCancellationRequested();
+                if (folder is not null) FrameArtifacts.Write(scored, req.Artifacts, colors, frame.Image, folder);
+                return FrameReport.From(scored, req.Options, classNames, frameId,
+                    new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
+                    new LogitsReport(logits.Channels, logits.Height, logits.Width));
+            }
+            finally
+            {
+                pipelines.Return(pipelineKey, pipeline);
+                Workers.Return(workerKey, worker);
+            }
+        }, ct);
+
+        report = report with { Artifacts = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}") };
+        LogitsApi.LogFrame(logs, report, entry.Name);
+        return TypedResults.Ok(new ScoredFrame(frameId, req.Metadata, received, report));
+    }
+}
