@@ -4,9 +4,9 @@ namespace Strayspot.Service.Demo;
 public sealed record DemoTrainingOptions
 {
     /// <summary>Prototypes per class (k-means on that class's training features).</summary>
-    public int CentresPerClass { get; init; } = 8;
+    public int CentresPerClass { get; init; } = 16;
     /// <summary>Radial-basis width in standardized feature units.</summary>
-    public float Bandwidth { get; init; } = 1.6f;
+    public float Bandwidth { get; init; } = 1.2f;
     public int Steps { get; init; } = 300;
     public double LearningRate { get; init; } = 2.0;
     public double Momentum { get; init; } = 0.9;
