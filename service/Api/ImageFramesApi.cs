@@ -1,3 +1,4 @@
+using Strayspot.Service.Rendering;
 using Microsoft.AspNetCore.Http.HttpResults;
 using Microsoft.Extensions.Options;
 using Strayspot.Scoring.Logits;
@@ -108,7 +109,7 @@ public static class ImageFramesApi
         }
         var descriptor = entry.Descriptor!;
         var classNames = descriptor.Classes.Select(c => c.Name).ToList();
-        var colors = FrameArtifacts.ColorsOf(descriptor);
+        var colors = ArtifactWriter.ColorsOf(descriptor);
         string pipelineKey = PipelinePool.Key(entry, req.Options);
         string workerKey = entry.Name + "|" + entry.Sha256;
         var decoder = new FrameDecoder(new FrameDecoderOptions { MaxPixels = options.Value.MaxPixels });
@@ -130,7 +131,7 @@ public static class ImageFramesApi
                         $"The model produced {logits.Channels} classes but its descriptor lists {descriptor.Classes.Count}.");
                 var scored = pipeline.Score(logits, frame.Height, frame.Width);
                 token.ThrowIfCancellationRequested();
-                if (folder is not null) FrameArtifacts.Write(scored, req.Artifacts, colors, frame.Image, folder);
+                if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
                 return FrameReport.From(scored, req.Options, classNames, frameId,
                     new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
                     new LogitsReport(logits.Channels, logits.Height, logits.Width));

@@ -1,3 +1,4 @@
+using Strayspot.Service.Rendering;
 using System.Diagnostics;
 using Microsoft.AspNetCore.Http.HttpResults;
 using Microsoft.Extensions.Options;
@@ -155,7 +156,7 @@ public static class LogitsApi
             });
 
         var classNames = descriptor.Classes.Select(c => c.Name).ToList();
-        var colors = FrameArtifacts.ColorsOf(descriptor);
+        var colors = ArtifactWriter.ColorsOf(descriptor);
         string key = PipelinePool.Key(entry, req.Options);
         var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
 
@@ -166,7 +167,7 @@ public static class LogitsApi
             {
                 var scored = pipeline.Score(logits, frameHeight, frameWidth);
                 token.ThrowIfCancellationRequested();
-                if (folder is not null) FrameArtifacts.Write(scored, req.Artifacts, colors, null, folder);
+                if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, null, folder);
                 return FrameReport.From(scored, req.Options, classNames, frameId,
                     new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
                     new LogitsReport(logits.Channels, logits.Height, logits.Width));

@@ -52,7 +52,7 @@ public static class ScoreLogitsVerb
 
         Directory.CreateDirectory(outputFolder);
         var names = statistics?.Classes.Select(c => c.Name).ToList();
-        var artifacts = ArtifactWriter.WriteAll(scored, classColors: null, frame: null, outputFolder);
+        var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, ColorScales.ClassColors(scored.ClassCount), frame: null, outputFolder);
         var report = FrameReport.From(scored, options, names, Path.GetFileNameWithoutExtension(logitsPath),
             logits: new LogitsReport(view.Channels, view.Height, view.Width)) with { Artifacts = artifacts };
         AtomicFile.WriteAllBytes(Path.Combine(outputFolder, "report.json"), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));

@@ -55,7 +55,7 @@ public static class ScoreVerb
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
-        var colors = ColorScales.ClassColors(bundle.Model.ClassCount, bundle.Model.Descriptor.Classes.Select(c => c.Color).ToList());
+        var colors = ArtifactWriter.ColorsOf(bundle.Model.Descriptor);
         var names = bundle.ClassNames;
         var model = new ModelReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version);
         var ranked = new List<RankedFrame>(files.Count);
@@ -68,7 +68,7 @@ public static class ScoreVerb
             using var frame = decoder.DecodeFile(files[i]);
             var report = bundle.Scorer.Score(frame, (scored, timings) =>
             {
-                var artifacts = ArtifactWriter.WriteAll(scored, colors, frame.Image, folder);
+                var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, colors, frame.Image, folder);
                 var r = FrameReport.From(scored, options, names, stem, model) with { Artifacts = artifacts };
                 r.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
                 r.TimingsMs["inference"] = timings.Inference.TotalMilliseconds;

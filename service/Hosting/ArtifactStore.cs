@@ -9,14 +9,7 @@ namespace Strayspot.Service.Hosting;
 public sealed partial class ArtifactStore
 {
     /// <summary>Artifact name in links → file name on disk (the names the renderer writes).</summary>
-    public static readonly IReadOnlyDictionary<string, string> Files = new Dictionary<string, string>(StringComparer.Ordinal)
-    {
-        ["classes"] = "classes.png",
-        ["mask"] = "mask.png",
-        ["heat"] = "heat.png",
-        ["overlay"] = "overlay.png",
-        ["score"] = "score.npy",
-    };
+    public static IReadOnlyDictionary<string, string> Files => Rendering.ArtifactWriter.Files;
 
     private readonly TimeProvider _time;
     private readonly ILogger<ArtifactStore> _log;

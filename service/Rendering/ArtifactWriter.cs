@@ -2,32 +2,68 @@ using SixLabors.ImageSharp;
 using SixLabors.ImageSharp.PixelFormats;
 using Strayspot.Scoring.Logits;
 using Strayspot.Scoring.Pipeline;
+using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Rendering;
 
-/// <summary>Writes one scored frame's artifacts into a folder and names them for the report.</summary>
+/// <summary>Writes a scored frame's artifacts into its folder: the one place that names and renders them.</summary>
 public static class ArtifactWriter
 {
-    /// <param name="classColors">display colours; generated when null.</param>
-    /// <param name="frame">the original frame, for the overlay; no overlay when null.</param>
-    public static Dictionary<string, string> WriteAll(FrameScoring s, IReadOnlyList<Rgb24>? classColors, Image<Rgb24>? frame, string folder)
+    /// <summary>Artifact name → file name inside the frame's folder.</summary>
+    public static readonly IReadOnlyDictionary<string, string> Files = new Dictionary<string, string>(StringComparer.Ordinal)
     {
-        var colors = classColors ?? ColorScales.ClassColors(s.ClassCount);
+        ["classes"] = "classes.png",
+        ["mask"] = "mask.png",
+        ["heat"] = "heat.png",
+        ["overlay"] = "overlay.png",
+        ["score"] = "score.npy",
+    };
+
+    public static readonly IReadOnlyList<string> All = ["classes", "mask", "heat", "overlay", "score"];
+
+    /// <summary>
+    /// Writes the named artifacts (each atomically) and returns artifact name → file name for those written.
+    /// The overlay needs the original <paramref name="frame"/> and is skipped without it.
+    /// </summary>
+    public static Dictionary<string, string> Write(FrameScoring s, IEnumerable<string> artifacts, IReadOnlyList<Rgb24> classColors,
+        Image<Rgb24>? frame, string folder)
+    {
+        var written = new Dictionary<string, string>(StringComparer.Ordinal);
         var (low, high) = HeatRange(s);
-        var written = new Dictionary<string, string>();
-        using (var img = ArtifactRenderer.ClassMap(s.ClassIndex, s.Width, s.Height, colors)) Save(img, folder, "classes.png", written, "classMap");
-        using (var img = ArtifactRenderer.Mask(s.Mask, s.Width, s.Height)) Save(img, folder, "mask.png", written, "mask");
-        using (var img = ArtifactRenderer.HeatMap(s.AnomalyScore, s.Width, s.Height, low, high)) Save(img, folder, "heat.png", written, "heatMap");
-        if (frame is not null)
-            using (var img = ArtifactRenderer.Overlay(frame, s.AnomalyScore, s.Mask, low, high)) Save(img, folder, "overlay.png", written, "overlay");
-        string npy = Path.Combine(folder, "score.npy");
-        var scores = s.AnomalyScore.ToArray();
-        AtomicFile.Write(npy, stream => Npy.WriteFloat32(stream, scores, [s.Height, s.Width]));
-        written["score"] = "score.npy";
+        foreach (string name in artifacts)
+        {
+            if (!Files.TryGetValue(name, out string? file)) throw new ArgumentException($"Unknown artifact '{name}'.", nameof(artifacts));
+            string path = Path.Combine(folder, file);
+            switch (name)
+            {
+                case "classes":
+                    using (var img = ArtifactRenderer.ClassMap(s.ClassIndex, s.Width, s.Height, classColors)) Save(img, path);
+                    break;
+                case "mask":
+                    using (var img = ArtifactRenderer.Mask(s.Mask, s.Width, s.Height)) Save(img, path);
+                    break;
+                case "heat":
+                    using (var img = ArtifactRenderer.HeatMap(s.AnomalyScore, s.Width, s.Height, low, high)) Save(img, path);
+                    break;
+                case "overlay":
+                    if (frame is null) continue;
+                    using (var img = ArtifactRenderer.Overlay(frame, s.AnomalyScore, s.Mask, low, high)) Save(img, path);
+                    break;
+                case "score":
+                    var scores = s.AnomalyScore.ToArray();
+                    AtomicFile.Write(path, stream => Npy.WriteFloat32(stream, scores, [s.Height, s.Width]));
+                    break;
+            }
+            written[name] = file;
+        }
         return written;
     }
 
-    /// <summary>The heat scale spans the threshold's neighbourhood so the mask edge sits mid-scale.</summary>
+    /// <summary>The descriptor's colours, generated ones for classes without a colour.</summary>
+    public static IReadOnlyList<Rgb24> ColorsOf(ModelDescriptor descriptor) =>
+        ColorScales.ClassColors(descriptor.Classes.Count, descriptor.Classes.Select(c => c.Color).ToList());
+
+    /// <summary>The heat scale spans the frame's own score range.</summary>
     public static (float Low, float High) HeatRange(FrameScoring s)
     {
         float lo = System.Numerics.Tensors.TensorPrimitives.Min(s.AnomalyScore);
@@ -35,9 +71,5 @@ public static class ArtifactWriter
         return hi > lo ? (lo, hi) : (lo, lo + 1);
     }
 
-    private static void Save(Image image, string folder, string name, Dictionary<string, string> written, string key)
-    {
-        AtomicFile.Write(Path.Combine(folder, name), stream => ArtifactRenderer.SavePng(image, stream));
-        written[key] = name;
-    }
+    private static void Save(Image image, string path) => AtomicFile.Write(path, stream => ArtifactRenderer.SavePng(image, stream));
 }
