@@ -97,7 +97,7 @@ public sealed class FramePipeline
         timings.Total = Stopwatch.GetElapsedTime(t0, t5);
 
         return new FrameScoring(frameWidth, frameHeight, logits.Channels, _maps, _score, _mask, regions,
-            frameScore, flagged, timings);
+            frameScore, flagged, timings) { LogitsHeight = logits.Height, LogitsWidth = logits.Width };
     }
 
     // One sign convention everywhere: higher means more anomalous.
@@ -154,6 +154,9 @@ public sealed class FrameScoring
     public int Width { get; }
     public int Height { get; }
     public int ClassCount { get; }
+    /// <summary>Size of the logits the frame was scored from (after any padding was cut off).</summary>
+    public int LogitsHeight { get; init; }
+    public int LogitsWidth { get; init; }
     public ReadOnlySpan<ushort> ClassIndex => _maps.ClassIndex;
     public ReadOnlySpan<float> MaxLogit => _maps.MaxLogit;
     public ReadOnlySpan<float> AnomalyScore => _score.AsSpan(0, Width * Height);

@@ -1,3 +1,4 @@
+using Strayspot.Service.Inference;
 using Strayspot.Service.Rendering;
 using Microsoft.AspNetCore.Http.HttpResults;
 using Microsoft.Extensions.Options;
@@ -122,19 +123,12 @@ public static class ImageFramesApi
             var pipeline = pipelines.Rent(pipelineKey, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
             try
             {
-                var input = worker.Preprocessor.Prepare(frame);
-                token.ThrowIfCancellationRequested();
-                using var lease = session.Run(input);
-                var logits = input.Box.CropToContent(lease.View, ref worker.Crop);
-                if (logits.Channels != descriptor.Classes.Count)
-                    throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
-                        $"The model produced {logits.Channels} classes but its descriptor lists {descriptor.Classes.Count}.");
-                var scored = pipeline.Score(logits, frame.Height, frame.Width);
+                var scored = FrameScorer.Run(session, worker.Preprocessor, ref worker.Crop, pipeline, frame, out _, token);
                 token.ThrowIfCancellationRequested();
                 if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
                 return FrameReport.From(scored, req.Options, classNames, frameId,
                     new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
-                    new LogitsReport(logits.Channels, logits.Height, logits.Width));
+                    new LogitsReport(scored.ClassCount, scored.LogitsHeight, scored.LogitsWidth));
             }
             finally
             {

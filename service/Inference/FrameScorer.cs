@@ -1,6 +1,5 @@
 using System.Collections.Concurrent;
 using System.Diagnostics;
-using Microsoft.ML.OnnxRuntime;
 using Strayspot.Scoring.Pipeline;
 using Strayspot.Scoring.Standardization;
 using Strayspot.Service.Frames;
@@ -41,29 +40,42 @@ public sealed class FrameScorer
     /// <paramref name="options"/> overrides the defaults for this frame only.
     /// </summary>
     public T Score<T>(DecodedFrame frame, Func<FrameScoring, FrameTimings, T> consume, ScoringOptions? options = null,
-        RunOptions? runOptions = null)
+        CancellationToken cancel = default)
     {
         var worker = _workers.TryTake(out var w) ? w : new Worker(Model.Descriptor.Input);
         try
         {
-            long t0 = Stopwatch.GetTimestamp();
-            var input = worker.Preprocessor.Prepare(frame);
-            long t1 = Stopwatch.GetTimestamp();
-            using var lease = Model.Run(input, runOptions);
-            long t2 = Stopwatch.GetTimestamp();
-            var logits = input.Box.CropToContent(lease.View, ref worker.CropScratch);
             var pipeline = options is null || options == Defaults
                 ? worker.Pipeline ??= new FramePipeline(Defaults, Statistics)
                 : new FramePipeline(options, Statistics);
-            var scored = pipeline.Score(logits, frame.Height, frame.Width);
-            long t3 = Stopwatch.GetTimestamp();
-            var timings = new FrameTimings(Stopwatch.GetElapsedTime(t0, t1), Stopwatch.GetElapsedTime(t1, t2), Stopwatch.GetElapsedTime(t2, t3));
+            var scored = Run(Model, worker.Preprocessor, ref worker.CropScratch, pipeline, frame, out var timings, cancel);
             return consume(scored, timings);
         }
         finally
         {
             _workers.Add(worker);
         }
+    }
+
+    /// <summary>
+    /// The frame path itself, for callers that pool their own preprocessors and pipelines: preprocess, run the model,
+    /// cut the padding off the logits and score them at the frame's own size.
+    /// </summary>
+    public static FrameScoring Run(SegmentationModel model, FramePreprocessor preprocessor, ref float[]? cropScratch,
+        FramePipeline pipeline, DecodedFrame frame, out FrameTimings timings, CancellationToken cancel = default)
+    {
+        long t0 = Stopwatch.GetTimestamp();
+        var input = preprocessor.Prepare(frame);
+        long t1 = Stopwatch.GetTimestamp();
+        cancel.ThrowIfCancellationRequested();
+        using var lease = model.Run(input);
+        long t2 = Stopwatch.GetTimestamp();
+        cancel.ThrowIfCancellationRequested();
+        var logits = input.Box.CropToContent(lease.View, ref cropScratch);
+        var scored = pipeline.Score(logits, frame.Height, frame.Width);
+        long t3 = Stopwatch.GetTimestamp();
+        timings = new FrameTimings(Stopwatch.GetElapsedTime(t0, t1), Stopwatch.GetElapsedTime(t1, t2), Stopwatch.GetElapsedTime(t2, t3));
+        return scored;
     }
 
     private sealed class Worker(InputDescriptor input)

@@ -35,7 +35,7 @@ public sealed record FrameReport
         {
             FrameId = frameId,
             Frame = new SizeReport(s.Width, s.Height),
-            Logits = logits ?? new LogitsReport(s.ClassCount, 0, 0),
+            Logits = logits ?? new LogitsReport(s.ClassCount, s.LogitsHeight, s.LogitsWidth),
             Model = model,
             Method = options.Method,
             Parameters = options,

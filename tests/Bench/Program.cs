@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default).
+/// one run as a Markdown table. Suites: scoring (default), runtime, all.
 /// </summary>
 public static class Program
 {
@@ -16,7 +16,9 @@ public static class Program
         switch (suite)
         {
             case "scoring": ScoringBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring"); return 2;
+            case "runtime": RuntimeBench.Run(runs); return 0;
+            case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, all"); return 2;
         }
     }
 }
