@@ -66,7 +66,7 @@ public static class ImageFramesApi
 
     private static async Task<Results<Ok<ScoredFrame>, ProblemHttpResult>> Score(
         string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
-        ArtifactStore store, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+        ArtifactStore store, FrameDecoder decoder, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
@@ -113,7 +113,6 @@ public static class ImageFramesApi
         var colors = ArtifactWriter.ColorsOf(descriptor);
         string pipelineKey = PipelinePool.Key(entry, req.Options);
         string workerKey = entry.Name + "|" + entry.Sha256;
-        var decoder = new FrameDecoder(new FrameDecoderOptions { MaxPixels = options.Value.MaxPixels });
         var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
 
         var report = await lane.RunAsync(token =>

@@ -106,6 +106,11 @@ public static class ServiceHost
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
         services.AddSingleton<PipelinePool>();
+        // One decoder for the process: its memory pool is reused across requests instead of one pool per request.
+        services.AddSingleton(sp => new Strayspot.Service.Frames.FrameDecoder(new Strayspot.Service.Frames.FrameDecoderOptions
+        {
+            MaxPixels = sp.GetRequiredService<IOptions<ServiceOptions>>().Value.MaxPixels,
+        }));
         // Scores can be ±Infinity (e.g. SML of a class with zero spread); write them rather than fail the answer.
         services.ConfigureHttpJsonOptions(o => o.SerializerOptions.NumberHandling =
             System.Text.Json.Serialization.JsonNumberHandling.AllowNamedFloatingPointLiterals);
