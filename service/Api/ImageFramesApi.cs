@@ -12,20 +12,10 @@ using Strayspot.Service.Reports;
 namespace Strayspot.Service.Api;
 
 /// <summary>For the API description only: the multipart fields of an image upload.</summary>
-public sealed class FrameUpload
+public sealed class FrameUpload : ScoringFields
 {
     /// <summary>The camera frame: PNG, JPEG or WebP.</summary>
     public IFormFile? Frame { get; set; }
-    public string? Method { get; set; }
-    public float? Threshold { get; set; }
-    public int? MinArea { get; set; }
-    public string? BoundarySuppression { get; set; }
-    public string? Smoothing { get; set; }
-    public string? ClientFrameId { get; set; }
-    public DateTimeOffset? CaptureTime { get; set; }
-    public string? RigId { get; set; }
-    /// <summary>Comma list of classes, mask, heat, overlay, score (NPY), or none; default classes,mask,heat.</summary>
-    public string? Artifacts { get; set; }
 }
 
 /// <summary>Runs the model on a camera frame and scores its logits.</summary>

@@ -12,14 +12,9 @@ namespace Strayspot.Service.Api;
 /// <summary>A scored frame: the service's frame id, what the client said about the frame, and the frame report.</summary>
 public sealed record ScoredFrame(string FrameId, FrameMetadata Client, DateTimeOffset ReceivedUtc, FrameReport Report);
 
-/// <summary>For the API description only: the multipart fields of a logits upload.</summary>
-public sealed class LogitsUpload
+/// <summary>For the API description only: the optional multipart fields both scoring endpoints take.</summary>
+public class ScoringFields
 {
-    /// <summary>float32 NPY, shape [C,h,w] or [1,C,h,w] (C = the model's classes).</summary>
-    public IFormFile? Logits { get; set; }
-    /// <summary>Frame width the logits are resized to; default the logits' width. Give with frameHeight.</summary>
-    public int? FrameWidth { get; set; }
-    public int? FrameHeight { get; set; }
     /// <summary>msp, maxlogit, entropy, energy or sml; default the model's scoring profile.</summary>
     public string? Method { get; set; }
     public float? Threshold { get; set; }
@@ -32,8 +27,18 @@ public sealed class LogitsUpload
     /// <summary>ISO 8601.</summary>
     public DateTimeOffset? CaptureTime { get; set; }
     public string? RigId { get; set; }
-    /// <summary>Comma list of classes, mask, heat, score (NPY), or none; default classes,mask,heat.</summary>
+    /// <summary>Comma list of classes, mask, heat, overlay (frames only), score (NPY), or none; default classes,mask,heat.</summary>
     public string? Artifacts { get; set; }
+}
+
+/// <summary>For the API description only: the multipart fields of a logits upload.</summary>
+public sealed class LogitsUpload : ScoringFields
+{
+    /// <summary>float32 NPY, shape [C,h,w] or [1,C,h,w] (C = the model's classes).</summary>
+    public IFormFile? Logits { get; set; }
+    /// <summary>Frame width the logits are resized to; default the logits' width. Give with frameHeight.</summary>
+    public int? FrameWidth { get; set; }
+    public int? FrameHeight { get; set; }
 }
 
 /// <summary>Scores logits a client computed with its own copy of the model.</summary>
