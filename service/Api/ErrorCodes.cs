@@ -30,6 +30,8 @@ public static class ErrorCodes
     public const string InternalError = "internal-error";
     public const string PathOutsideData = "path-outside-data";
     public const string StatisticsMissing = "statistics-missing";
+    public const string JobNotFound = "job-not-found";
+    public const string JobNotFinished = "job-not-finished";
 
     private static readonly ErrorCode[] Rows =
     [
@@ -41,7 +43,9 @@ public static class ErrorCodes
         new(NotFound, 404, "No such resource"),
         new(ModelNotFound, 404, "No such model"),
         new(ArtifactNotFound, 404, "No such frame artifact"),
+        new(JobNotFound, 404, "No such job"),
         new(MethodNotAllowed, 405, "Method not allowed on this resource"),
+        new(JobNotFinished, 409, "The job has not finished"),
         new(PayloadTooLarge, 413, "The request body is too large"),
         new(UnsupportedMediaType, 415, "Unsupported content type"),
         new(ModelClassMismatch, 422, "The input does not fit the model's classes"),

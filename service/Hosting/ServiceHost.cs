@@ -106,6 +106,8 @@ public static class ServiceHost
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
         services.AddSingleton<PipelinePool>();
+        services.AddSingleton<Calibration.CalibrationJobs>();
+        services.AddHostedService(sp => sp.GetRequiredService<Calibration.CalibrationJobs>());
         // One decoder for the process: its memory pool is reused across requests instead of one pool per request.
         services.AddSingleton(sp => new Strayspot.Service.Frames.FrameDecoder(new Strayspot.Service.Frames.FrameDecoderOptions
         {
@@ -192,6 +194,7 @@ public static class ServiceHost
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
+        CalibrationsApi.Map(v1);
         LogitsApi.Map(v1);
         ImageFramesApi.Map(v1);
     }

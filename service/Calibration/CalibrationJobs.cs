@@ -1,0 +1,165 @@
+using System.Collections.Concurrent;
+using System.Text.Json;
+using System.Text.Json.Serialization;
+using Microsoft.Extensions.Options;
+using Strayspot.Service.Frames;
+using Strayspot.Service.Hosting;
+using Strayspot.Service.Models;
+
+namespace Strayspot.Service.Calibration;
+
+/// <summary>One calibration run over a folder of the user's in-distribution frames, as the service keeps it.</summary>
+public sealed record CalibrationJob
+{
+    [JsonPropertyName("id")] public string Id { get; init; } = "";
+    [JsonPropertyName("model")] public string Model { get; init; } = "";
+    [JsonPropertyName("modelSha256")] public string ModelSha256 { get; init; } = "";
+    /// <summary>Relative to the data root.</summary>
+    [JsonPropertyName("folder")] public string Folder { get; init; } = "";
+    [JsonPropertyName("labelsFolder")] public string? LabelsFolder { get; init; }
+    [JsonPropertyName("ignoreLabel")] public int IgnoreLabel { get; init; } = 255;
+    /// <summary>queued, running, done, failed, activated.</summary>
+    [JsonPropertyName("state")] public string State { get; init; } = "queued";
+    [JsonPropertyName("framesDone")] public int FramesDone { get; init; }
+    [JsonPropertyName("framesTotal")] public int FramesTotal { get; init; }
+    [JsonPropertyName("error")] public string? Error { get; init; }
+    [JsonPropertyName("createdUtc")] public DateTimeOffset CreatedUtc { get; init; }
+    [JsonPropertyName("finishedUtc")] public DateTimeOffset? FinishedUtc { get; init; }
+    [JsonPropertyName("fallbackClasses")] public IReadOnlyList<string>? FallbackClasses { get; init; }
+}
+
+/// <summary>
+/// Calibration jobs: one runs at a time in the background, its state and checkpoint live under the data root, so a
+/// restarted service resumes a job where its last checkpoint left it. Activating a finished job copies its
+/// calibration into the model folder and reloads the catalog.
+/// </summary>
+public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions,
+    FrameDecoder decoder, ILogger<CalibrationJobs> log) : BackgroundService
+{
+    private static readonly JsonSerializerOptions Json = new() { WriteIndented = true };
+    private readonly ConcurrentDictionary<string, CalibrationJob> _jobs = new(StringComparer.Ordinal);
+    private readonly SemaphoreSlim _wake = new(0);
+    private readonly ConcurrentQueue<string> _queue = new();
+
+    private string Root => Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations");
+
+    public IReadOnlyList<CalibrationJob> List() => _jobs.Values.OrderByDescending(j => j.CreatedUtc).ToList();
+
+    public bool TryGet(string id, out CalibrationJob job) => _jobs.TryGetValue(id, out job!);
+
+    /// <summary>Queues a job; <paramref name="folder"/> and <paramref name="labels"/> are relative to the data root.</summary>
+    public CalibrationJob Start(CatalogEntry model, string folder, string? labels, int ignoreLabel)
+    {
+        string frames = SafePath.Resolve(options.Value.DataRoot, folder);
+        var list = Calibrator.ListFrames(frames);
+        if (labels is not null && !Directory.Exists(SafePath.Resolve(options.Value.DataRoot, labels)))
+            throw new ModelException(ModelErrorCodes.FrameFormat, $"Labels folder '{labels}' does not exist under the data root.");
+        var job = new CalibrationJob
+        {
+            Id = Guid.NewGuid().ToString("N"),
+            Model = model.Name,
+            ModelSha256 = model.Sha256 ?? "",
+            Folder = folder,
+            LabelsFolder = labels,
+            IgnoreLabel = ignoreLabel,
+            FramesTotal = list.Count,
+            CreatedUtc = DateTimeOffset.UtcNow,
+        };
+        Save(job);
+        _queue.Enqueue(job.Id);
+        _wake.Release();
+        return job;
+    }
+
+    /// <summary>Copies a finished job's calibration into its model's folder (atomically) and reloads the models.</summary>
+    public CalibrationJob Activate(CalibrationJob job)
+    {
+        if (job.State is not ("done" or "activated"))
+            throw new InvalidOperationException($"Calibration {job.Id} is {job.State}; only a finished calibration can be activated.");
+        if (!catalog.TryGet(job.Model, out var entry))
+            throw new ModelException(ModelErrorCodes.CalibrationInvalid, $"Model '{job.Model}' is no longer installed.");
+        if (entry.Sha256 != job.ModelSha256)
+            throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
+                $"Calibration {job.Id} was measured through model {job.ModelSha256}, but '{job.Model}' is now {entry.Sha256}.");
+        byte[] artifact = File.ReadAllBytes(ArtifactPath(job.Id));
+        AtomicFile.WriteAllBytes(Path.Combine(entry.Folder, CalibrationArtifact.FileName), artifact);
+        catalog.Reload();
+        sessions.Sync();
+        var activated = job with { State = "activated" };
+        Save(activated);
+        return activated;
+    }
+
+    protected override async Task ExecuteAsync(CancellationToken stop)
+    {
+        Directory.CreateDirectory(Root);
+        foreach (string file in Directory.EnumerateFiles(Root, "job.json", SearchOption.AllDirectories))
+        {
+            try
+            {
+                var job = JsonSerializer.Deserialize<CalibrationJob>(File.ReadAllBytes(file), Json)!;
+                _jobs[job.Id] = job;
+                if (job.State is "queued" or "running") _queue.Enqueue(job.Id);
+            }
+            catch (JsonException e) { log.LogWarning("Skipping unreadable calibration job {File}: {Reason}", file, e.Message); }
+        }
+        while (!stop.IsCancellationRequested)
+        {
+            while (_queue.TryDequeue(out string? id))
+                if (_jobs.TryGetValue(id, out var job)) await Task.Run(() => RunJob(job, stop), CancellationToken.None);
+            try { await _wake.WaitAsync(stop); } catch (OperationCanceledException) { break; }
+        }
+    }
+
+    private void RunJob(CalibrationJob job, CancellationToken stop)
+    {
+        try
+        {
+            if (!catalog.TryGet(job.Model, out var entry) || entry.Sha256 != job.ModelSha256)
+                throw new ModelException(ModelErrorCodes.CalibrationModelMismatch, $"Model '{job.Model}' changed or was removed before its calibration ran.");
+            var model = sessions.Get(entry) ?? throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{job.Model}' is still loading.");
+            var frames = Calibrator.ListFrames(SafePath.Resolve(options.Value.DataRoot, job.Folder));
+            Save(job = job with { State = "running", FramesTotal = frames.Count });
+            var calibrator = new Calibrator(model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions
+            {
+                CheckpointEvery = 10,
+                CheckpointPath = Path.Combine(Root, job.Id, "checkpoint.json"),
+                LabelsFolder = job.LabelsFolder is null ? null : SafePath.Resolve(options.Value.DataRoot, job.LabelsFolder),
+                IgnoreLabel = job.IgnoreLabel,
+            });
+            var running = job;
+            var artifact = calibrator.Run(frames, ArtifactPath(job.Id),
+                new Progress(p => Save(running = running with { FramesDone = p.FramesDone })), stop);
+            Save(job = running with
+            {
+                State = "done",
+                FramesDone = frames.Count,
+                FinishedUtc = DateTimeOffset.UtcNow,
+                FallbackClasses = artifact?.FallbackClasses,
+            });
+            log.LogInformation("Calibration {JobId} of {Model} done over {Frames} frames", job.Id, job.Model, frames.Count);
+        }
+        catch (OperationCanceledException)
+        {
+            // Shutting down: the checkpoint is kept and the job resumes at the next start.
+        }
+        catch (Exception e) when (e is ModelException or UnsafePathException or IOException or Strayspot.Scoring.Logits.ScoringInputException)
+        {
+            Save(job with { State = "failed", Error = e.Message, FinishedUtc = DateTimeOffset.UtcNow });
+            log.LogWarning("Calibration {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
+        }
+    }
+
+    private string ArtifactPath(string id) => Path.Combine(Root, id, CalibrationArtifact.FileName);
+
+    private void Save(CalibrationJob job)
+    {
+        _jobs[job.Id] = job;
+        AtomicFile.Write(Path.Combine(Root, job.Id, "job.json"), s => JsonSerializer.Serialize(s, job, Json));
+    }
+
+    private sealed class Progress(Action<CalibrationProgress> report) : IProgress<CalibrationProgress>
+    {
+        public void Report(CalibrationProgress value) => report(value);
+    }
+}
