@@ -60,6 +60,9 @@ public sealed record SegmentationSummary(
 
 public sealed record NamedClassIoU(int ClassId, string Name, double ClosedSet, double OpenSet);
 
+/// <summary>Pass over the model (decode, network, seven maps, accumulation, spill), threshold pass (regions, frame rows), files.</summary>
+public sealed record EvaluationTimings(TimeSpan ModelPass, TimeSpan ThresholdPass, TimeSpan Outputs);
+
 /// <summary>Everything metrics.json holds.</summary>
 public sealed record EvaluationReport(
     string Model,
@@ -76,6 +79,8 @@ public sealed record EvaluationReport(
     string? ProfileWritten,
     IReadOnlyList<string> Notes)
 {
+    /// <summary>Wall time of the run's parts (not in metrics.json, which is written before the clock stops).</summary>
+    [JsonIgnore] public EvaluationTimings? Timings { get; init; }
     [JsonIgnore] public IReadOnlyList<FrameRow> FrameRows { get; init; } = [];
     [JsonIgnore] public IReadOnlyList<(string Method, PixelCurves Curves)> Curves { get; init; } = [];
 

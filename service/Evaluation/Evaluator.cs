@@ -60,6 +60,7 @@ public static class Evaluator
         var decoder = new FrameDecoder();
         var preprocessor = new FramePreprocessor(bundle.Model.Descriptor.Input);
         float[]? crop = null;
+        long start = System.Diagnostics.Stopwatch.GetTimestamp();
         for (int i = 0; i < count; i++)
         {
             var item = dataset.Items[i];
@@ -83,6 +84,7 @@ public static class Evaluator
         }
 
         var metrics = scorer.Compute(settings.TargetTpr, settings.ReportedFpr, curves: true);
+        long firstPass = System.Diagnostics.Stopwatch.GetTimestamp();
         var rows = metrics.Select(m => Row(m, settings)).ToList();
         var primaryMetrics = metrics.Single(m => m.Method == primary).Pixels;
         double metricThreshold = settings.TargetFpr is null ? primaryMetrics.ThresholdAtTpr : primaryMetrics.ThresholdAtFpr!.Value;
@@ -91,6 +93,7 @@ public static class Evaluator
             notes.Add("Some scores fell outside a method's histogram range and were counted in its end bins (see 'clamped'); --exact avoids this.");
 
         var second = SecondPass(spill, dataset, bundle, profileOptions, profileThreshold, frameScores);
+        long secondPass = System.Diagnostics.Stopwatch.GetTimestamp();
         var operatingPoint = new OperatingPoint(EvaluatedMethods.Name(primary), settings.TargetKind, settings.TargetValue,
             metricThreshold, profileThreshold, second.Tpr, second.Fpr, second.Flagged);
 
@@ -105,7 +108,12 @@ public static class Evaluator
             Curves = metrics.Where(m => m.Pixels.Curves is not null).Select(m => (m.Name, m.Pixels.Curves!)).ToList(),
         };
         EvaluationOutputs.WriteAll(report, settings, outFolder);
-        return report;
+        long end = System.Diagnostics.Stopwatch.GetTimestamp();
+        return report with
+        {
+            Timings = new EvaluationTimings(System.Diagnostics.Stopwatch.GetElapsedTime(start, firstPass),
+                System.Diagnostics.Stopwatch.GetElapsedTime(firstPass, secondPass), System.Diagnostics.Stopwatch.GetElapsedTime(secondPass, end)),
+        };
     }
 
     private static MethodRow Row(MethodMetrics m, EvaluationSettings settings)
