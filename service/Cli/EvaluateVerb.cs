@@ -1,0 +1,76 @@
+using System.CommandLine;
+using System.Globalization;
+using Strayspot.Scoring.Evaluation;
+using Strayspot.Scoring.Logits;
+using Strayspot.Service.Evaluation;
+using Strayspot.Service.Models;
+
+namespace Strayspot.Service.Cli;
+
+/// <summary>
+/// <c>strayspot evaluate &lt;model-folder&gt; &lt;dataset-folder&gt; --out &lt;dir&gt;</c>: compares every anomaly score on a
+/// labelled dataset, recommends a threshold for a target TPR (or FPR) and optionally writes it as a new profile version.
+/// </summary>
+public static class EvaluateVerb
+{
+    public static Command Create()
+    {
+        var model = new Argument<DirectoryInfo>("model-folder") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
+        var dataset = new Argument<DirectoryInfo>("dataset-folder")
+        {
+            Description = "frames/<id>.png|jpg + masks/<id>.png [+ labels/<id>.png], or frame_<id>.png + mask_<id>.png [+ labels_<id>.png] " +
+                          "side by side; masks: 0 in-distribution, 1 anomaly, 255 ignore",
+        };
+        var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
+        var exact = new Option<bool>("--exact") { Description = "exact metrics (keeps every pixel's score) instead of fixed-memory histograms" };
+        var targetTpr = new Option<double?>("--target-tpr") { Description = "operating point: true-positive rate to reach (default 0.95)" };
+        var targetFpr = new Option<double?>("--target-fpr") { Description = "operating point: false-positive rate not to exceed (instead of --target-tpr)" };
+        var writeProfile = new Option<bool>("--write-profile") { Description = "save the recommended threshold into the model's profile.json as a new version" };
+        var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default: cores)" };
+        var command = new Command("evaluate", "Measure every anomaly score on labelled frames, recommend a threshold, write metrics and plots.");
+        command.Arguments.Add(model);
+        command.Arguments.Add(dataset);
+        foreach (var o in new Option[] { output, exact, targetTpr, targetFpr, writeProfile, threads }) command.Options.Add(o);
+        command.SetAction(p => CliApp.Guard(() =>
+        {
+            double? tpr = p.GetValue(targetTpr), fpr = p.GetValue(targetFpr);
+            if (tpr is not null && fpr is not null)
+                throw new ScoringInputException(EvaluationErrorCodes.Argument, "Give either --target-tpr or --target-fpr, not both.");
+            var settings = new EvaluationSettings
+            {
+                Exact = p.GetValue(exact),
+                TargetTpr = tpr ?? 0.95,
+                TargetFpr = fpr,
+                WriteProfile = p.GetValue(writeProfile),
+            };
+            var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
+            string modelFolder = p.GetValue(model)!.FullName, outFolder = p.GetValue(output)!.FullName;
+            string datasetFolder = p.GetValue(dataset)!.FullName;
+            Evaluator.Validate(settings);
+            if (!Directory.Exists(modelFolder))
+                throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
+            using var bundle = Inference.ModelBundle.Load(modelFolder, runtime);
+            var set = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
+            Console.WriteLine($"evaluating {bundle.Name} on {set.Items.Count} frame(s) ({set.Layout} layout{(set.HasLabels ? ", with class labels" : "")})");
+            var report = FrameProgress.Run("evaluating", set.Items.Count, Console.Out, progress => Evaluator.Run(bundle, set, outFolder, settings, progress));
+            Print(report);
+            Console.WriteLine($"wrote {EvaluationOutputs.MarkdownFile}, {EvaluationOutputs.CsvFile}, {EvaluationOutputs.JsonFile}, {EvaluationOutputs.FramesFile}, " +
+                              $"{EvaluationOutputs.RocFile}, {EvaluationOutputs.PrecisionRecallFile} into {outFolder}");
+            return CliApp.ExitOk;
+        }));
+        return command;
+    }
+
+    private static void Print(EvaluationReport r)
+    {
+        var inv = CultureInfo.InvariantCulture;
+        Console.WriteLine(string.Create(inv, $"  {"method",-24} {"AUROC",7} {"AP",7} {"FPR@TPR",8}"));
+        foreach (var m in r.Methods)
+            Console.WriteLine(string.Create(inv, $"  {m.Method,-24} {100 * m.Auroc,7:0.00} {100 * m.AveragePrecision,7:0.00} {100 * m.FprAtTpr,8:0.00}"));
+        var op = r.OperatingPoint;
+        Console.WriteLine(string.Create(inv,
+            $"recommended threshold for {op.Method} at {op.Target.ToUpperInvariant()} {op.TargetValue}: {op.ProfileThreshold:R} (TPR {100 * op.AchievedTpr:0.00}%, FPR {100 * op.AchievedFpr:0.00}%)"));
+        if (r.ProfileWritten is not null) Console.WriteLine($"profile.json: new version {r.ProfileWritten}");
+        foreach (var n in r.Notes) Console.WriteLine($"note: {n}");
+    }
+}
