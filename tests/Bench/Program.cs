@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), runtime, service, all.
+/// one run as a Markdown table. Suites: scoring (default), runtime, service, evaluation, all.
 /// </summary>
 public static class Program
 {
@@ -18,8 +18,9 @@ public static class Program
             case "scoring": ScoringBench.Run(runs); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
             case "service": ServiceBench.Run(runs); return 0;
-            case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, all"); return 2;
+            case "evaluation": EvaluationBench.Run(runs); return 0;
+            case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); EvaluationBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, evaluation, all"); return 2;
         }
     }
 }
