@@ -105,6 +105,7 @@ public static class ServiceHost
         services.AddSingleton<ScoringLane>();
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
+        BatchesApi.AddServices(services, builder.Configuration);
 
         services.AddServiceOpenApi();
     }
@@ -181,6 +182,7 @@ public static class ServiceHost
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
+        BatchesApi.Map(v1);
     }
 }
 
