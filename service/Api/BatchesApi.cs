@@ -44,7 +44,7 @@ public static class BatchesApi
             .WithName("SubmitBatch")
             .WithSummary("Queues a batch: JSON {model, folder, batchId?, callbackUrl?} for a folder under the data folder, or multipart " +
                          "(fields model, batchId?, callbackUrl?, file: .zip/.tar). Re-submitting a batch id adds only frames it lacks.")
-            .Accepts<BatchRequest>("application/json")
+            .Accepts<BatchRequest>("application/json", "multipart/form-data")
             .ProducesProblem(400).ProducesProblem(404).ProducesProblem(409).ProducesProblem(413).ProducesProblem(415);
 
         group.MapGet("", (BatchService batches, string? state, int? limit) =>
