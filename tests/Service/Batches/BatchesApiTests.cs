@@ -28,7 +28,6 @@ public class BatchesApiTests
         Assert.Equal(names.Append("cam2/side_00.png").Order(StringComparer.Ordinal), ids.Order(StringComparer.Ordinal));
         var scores = lines.Select(l => l.GetProperty("frameScore").GetSingle()).ToList();
         Assert.Equal(scores.OrderByDescending(x => x), scores);
-
         // The hash is computed here independently of the service (System.Security.Cryptography over the file bytes).
         string sha = Convert.ToHexStringLower(SHA256.HashData(File.ReadAllBytes(Path.Combine(s.ModelsRoot, Model, "model.onnx"))));
         string batchFolder = Path.Combine(s.DataRoot, "batches", "shift1-a");
