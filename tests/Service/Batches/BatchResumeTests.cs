@@ -42,9 +42,12 @@ public class BatchResumeTests
             Assert.InRange(done.Count, 2, 7);
             Assert.NotEmpty(pending);
 
+            // The graceful stop finished the frame it had started: one folder per done frame, no temporary ones.
+            string frames = Path.Combine(data, "batches", "run-1", "frames");
+            Assert.Equal(done.Select(f => f.Seq.ToString("D5")).Order(), Directory.EnumerateDirectories(frames).Select(Path.GetFileName).Order());
+
             // Leave the marks of a kill in the middle of a frame: its folder renamed into place but never marked done
             // (with a stale file), and another frame's temporary folder.
-            string frames = Path.Combine(data, "batches", "run-1", "frames");
             int interrupted = pending[0].Seq;
             string half = Path.Combine(frames, interrupted.ToString("D5"));
             Directory.CreateDirectory(half);

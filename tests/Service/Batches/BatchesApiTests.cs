@@ -131,6 +131,24 @@ public class BatchesApiTests
     }
 
     [Fact]
+    public async Task An_unreadable_frame_is_marked_failed_and_listed_last_while_the_batch_completes()
+    {
+        await using var s = await StartAsync();
+        string folder = Path.Combine(s.DataRoot, "mixed");
+        WriteFrames(folder, 2);
+        File.WriteAllText(Path.Combine(folder, "broken.png"), "not a png");
+        await PostFolderAsync(s.Client, "mixed", batchId: "mixed-1");
+        var b = await WaitForStateAsync(s.Client, "mixed-1", "done");
+        Assert.Equal(2, b.GetProperty("frames").GetProperty("done").GetInt32());
+        Assert.Equal(1, b.GetProperty("frames").GetProperty("failed").GetInt32());
+        var lines = await ManifestAsync(s.Client, "mixed-1");
+        Assert.Equal(3, lines.Count);
+        Assert.Equal("broken.png", lines[^1].GetProperty("frameId").GetString());
+        Assert.StartsWith("frame-", lines[^1].GetProperty("error").GetString());
+        Assert.False(lines[^1].TryGetProperty("artifacts", out _));
+    }
+
+    [Fact]
     public async Task Unknown_batch_is_404_batch_not_found_everywhere()
     {
         await using var s = await StartAsync();
