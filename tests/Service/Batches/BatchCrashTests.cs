@@ -27,7 +27,9 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
         {
             Dictionary<string, DateTimeOffset> doneBeforeKill;
             int port = FreePort();
-            using (var first = ServerProcess.Start(models, data, port, pause: TimeSpan.FromMilliseconds(150)))
+            // A short rest between frames keeps the batch from finishing before the kill on a fast machine; frames take
+            // longer than the rest here, so the kill usually lands inside a frame (its temporary folder is left behind).
+            using (var first = ServerProcess.Start(models, data, port, pause: TimeSpan.FromMilliseconds(50)))
             {
                 using var client = await first.ReadyClientAsync();
                 await PostFolderAsync(client, "night", batchId: "night-1");
@@ -39,14 +41,21 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
             }
 
             int doneAtKill, pendingAtKill;
+            Dictionary<string, DateTimeOffset> doneInStore;
             using (var store = new BatchStore(Path.Combine(data, ".strayspot", "batches.db")))
             {
                 var b = store.Get("night-1")!;
                 Assert.Equal(BatchStates.Running, b.State);
                 doneAtKill = b.DoneCount;
                 pendingAtKill = b.PendingCount;
+                doneInStore = store.Frames("night-1", FrameStates.Done).ToDictionary(f => f.FrameId, f => f.ScoredAt!.Value);
             }
-            output.WriteLine($"seen done before the kill: {doneBeforeKill.Count}; done in the store after the kill: {doneAtKill}; pending: {pendingAtKill}");
+            // Every done mark the client saw survived the kill.
+            Assert.All(doneBeforeKill, kv => Assert.Equal(kv.Value, doneInStore[kv.Key]));
+            string framesFolder = Path.Combine(data, "batches", "night-1", "frames");
+            var onDisk = Directory.Exists(framesFolder) ? Directory.EnumerateDirectories(framesFolder).Select(Path.GetFileName).ToList() : [];
+            output.WriteLine($"seen done before the kill: {doneBeforeKill.Count}; done in the store after the kill: {doneAtKill}; pending: {pendingAtKill}; " +
+                             $"frame folders on disk: {onDisk.Count(n => !n!.StartsWith('.'))} (+{onDisk.Count(n => n!.StartsWith('.'))} temporary)");
             Assert.True(pendingAtKill > 0, "the kill came after the batch finished; nothing was tested");
 
             port = FreePort();
@@ -66,7 +75,7 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
                 Assert.Equal(scores.OrderByDescending(x => x), scores);
 
                 var after = await FramesAsync(client, "night-1");
-                foreach (var (id, at) in doneBeforeKill)
+                foreach (var (id, at) in doneInStore)
                 {
                     Assert.Equal(at, after[id].GetProperty("scoredAt").GetDateTimeOffset());
                     Assert.Equal(1, after[id].GetProperty("attempts").GetInt32());
