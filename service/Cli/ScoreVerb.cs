@@ -5,7 +5,6 @@ using Strayspot.Service.Calibration;
 using Strayspot.Service.Frames;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
-using Strayspot.Service.Rendering;
 using Strayspot.Service.Reports;
 
 namespace Strayspot.Service.Cli;
