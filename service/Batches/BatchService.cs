@@ -31,8 +31,18 @@ public sealed partial class BatchService : IDisposable
         _catalog = catalog;
         DataRoot = Path.GetFullPath(service.Value.DataRoot);
         Root = _options.ResolveRoot(DataRoot);
-        Directory.CreateDirectory(Root);
-        Store = new BatchStore(_options.ResolveDatabase(DataRoot));
+        string database = _options.ResolveDatabase(DataRoot);
+        try
+        {
+            Directory.CreateDirectory(Root);
+            Store = new BatchStore(database);
+        }
+        catch (Exception e) when (e is Microsoft.Data.Sqlite.SqliteException or IOException or UnauthorizedAccessException)
+        {
+            // Refused like a bad setting: the serve verb prints it and exits, instead of a stack trace.
+            throw new OptionsValidationException(BatchOptions.Section, typeof(BatchOptions),
+                [$"The batch folder '{Root}' or database '{database}' cannot be used (Service:Batches:Root, Service:Batches:DatabasePath): {e.Message}"]);
+        }
     }
 
     public BatchStore Store { get; }

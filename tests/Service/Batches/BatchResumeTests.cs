@@ -135,3 +135,25 @@ public class BatchResumeTests
         Assert.All(kept, p => Assert.Contains(p, circle));
     }
 }
+
+public class BatchStartupTests
+{
+    [Fact]
+    public async Task A_batch_database_that_is_not_sqlite_stops_startup_with_the_setting_named()
+    {
+        string root = Path.Combine(Path.GetTempPath(), "strayspot-baddb-" + Guid.NewGuid().ToString("N"));
+        try
+        {
+            Directory.CreateDirectory(Path.Combine(root, "data", ".strayspot"));
+            File.WriteAllText(Path.Combine(root, "data", ".strayspot", "batches.db"), new string('x', 4096));
+            var app = TestService.BuildOnly(root, BatchTestKit.Config());
+            var e = await Assert.ThrowsAsync<Microsoft.Extensions.Options.OptionsValidationException>(() => app.StartAsync());
+            Assert.Contains("Service:Batches:DatabasePath", e.Message);
+            await app.DisposeAsync();
+        }
+        finally
+        {
+            try { Directory.Delete(root, recursive: true); } catch (IOException) { }
+        }
+    }
+}
