@@ -32,21 +32,37 @@ public static class ErrorCodes
     public const string StatisticsMissing = "statistics-missing";
     public const string JobNotFound = "job-not-found";
     public const string JobNotFinished = "job-not-finished";
+    public const string BatchNotFound = "batch-not-found";
+    public const string BatchConflict = "batch-conflict";
+    public const string BatchEmpty = "batch-empty";
+    public const string FolderNotFound = "folder-not-found";
+    public const string ArchiveInvalid = "archive-invalid";
+    public const string ArchiveEscape = "archive-escape";
+    public const string ArchiveTooLarge = "archive-too-large";
+    public const string CallbackNotAllowed = "callback-not-allowed";
 
     private static readonly ErrorCode[] Rows =
     [
         new(BadRequest, 400, "The request is malformed"),
         new(ValidationFailed, 400, "A request value is invalid"),
         new(PathOutsideData, 400, "The path leaves the data folder"),
+        new(BatchEmpty, 400, "The batch holds no frames"),
+        new(ArchiveInvalid, 400, "The archive cannot be read"),
+        new(ArchiveEscape, 400, "An archive entry would land outside its folder"),
+        new(CallbackNotAllowed, 400, "The callback URL is not allowed"),
         new(Unauthorized, 401, "An API key is required"),
         new(Forbidden, 403, "The API key lacks a needed scope"),
         new(NotFound, 404, "No such resource"),
         new(ModelNotFound, 404, "No such model"),
         new(ArtifactNotFound, 404, "No such frame artifact"),
         new(JobNotFound, 404, "No such job"),
+        new(BatchNotFound, 404, "No such batch"),
+        new(FolderNotFound, 404, "No such folder in the data folder"),
+        new(BatchConflict, 409, "The batch exists with other settings or is finished"),
         new(MethodNotAllowed, 405, "Method not allowed on this resource"),
         new(JobNotFinished, 409, "The job has not finished"),
         new(PayloadTooLarge, 413, "The request body is too large"),
+        new(ArchiveTooLarge, 413, "The archive holds too many entries or bytes"),
         new(UnsupportedMediaType, 415, "Unsupported content type"),
         new(ModelClassMismatch, 422, "The input does not fit the model's classes"),
         new(StatisticsMissing, 422, "The model has no class statistics for this method"),

@@ -5,7 +5,6 @@ using Strayspot.Service.Calibration;
 using Strayspot.Service.Frames;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
-using Strayspot.Service.Rendering;
 using Strayspot.Service.Reports;
 
 namespace Strayspot.Service.Cli;
@@ -55,9 +54,7 @@ public static class ScoreVerb
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
-        var colors = ArtifactWriter.ColorsOf(bundle.Model.Descriptor);
-        var names = bundle.ClassNames;
-        var model = new ModelReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version);
+        var output = new FrameOutput(bundle);
         var ranked = new List<RankedFrame>(files.Count);
         var stems = new HashSet<string>(StringComparer.Ordinal);
         for (int i = 0; i < files.Count; i++)
@@ -66,16 +63,8 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = decoder.DecodeFile(files[i]);
-            var report = bundle.Scorer.Score(frame, (scored, timings) =>
-            {
-                var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, colors, frame.Image, folder);
-                var r = FrameReport.From(scored, options, names, stem, model) with { Artifacts = artifacts };
-                r.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
-                r.TimingsMs["inference"] = timings.Inference.TotalMilliseconds;
-                return r;
-            }, options);
-            AtomicFile.WriteAllBytes(Path.Combine(folder, "report.json"), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
-            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, "report.json")));
+            var report = output.Write(frame, stem, folder, options);
+            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, FrameOutput.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
         ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));

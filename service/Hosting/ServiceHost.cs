@@ -118,6 +118,7 @@ public static class ServiceHost
             System.Text.Json.Serialization.JsonNumberHandling.AllowNamedFloatingPointLiterals);
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
+        BatchesApi.AddServices(services, builder.Configuration);
 
         services.AddServiceOpenApi();
     }
@@ -197,6 +198,7 @@ public static class ServiceHost
         CalibrationsApi.Map(v1);
         LogitsApi.Map(v1);
         ImageFramesApi.Map(v1);
+        BatchesApi.Map(v1);
     }
 }
 

@@ -1,0 +1,154 @@
+using System.Text.Json;
+using System.Text.Json.Serialization;
+using Microsoft.AspNetCore.Http.HttpResults;
+using Strayspot.Service.Batches;
+using Strayspot.Service.Hosting;
+
+namespace Strayspot.Service.Api;
+
+/// <summary>Body of <c>POST /v1/batches</c> as JSON: frames from a folder under the data folder.</summary>
+public sealed record BatchRequest(
+    [property: JsonPropertyName("model")] string? Model,
+    [property: JsonPropertyName("folder")] string? Folder,
+    [property: JsonPropertyName("batchId")] string? BatchId,
+    [property: JsonPropertyName("callbackUrl")] string? CallbackUrl);
+
+public sealed record BatchSubmitted(
+    [property: JsonPropertyName("batch")] BatchView Batch,
+    [property: JsonPropertyName("created")] bool Created,
+    [property: JsonPropertyName("framesAdded")] int FramesAdded);
+
+public sealed record BatchList([property: JsonPropertyName("batches")] IReadOnlyList<BatchView> Batches);
+
+public sealed record BatchFrameList([property: JsonPropertyName("frames")] IReadOnlyList<FrameView> Frames);
+
+/// <summary>Durable batches: submit a folder or an archive of frames, follow progress, fetch the ranked manifest, cancel.</summary>
+public static class BatchesApi
+{
+    private static readonly JsonSerializerOptions RequestJson = new(JsonSerializerDefaults.Web);
+
+    /// <summary>The batch store, worker and callback sender (settings: section Service:Batches).</summary>
+    public static void AddServices(IServiceCollection services, IConfiguration configuration)
+    {
+        services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section));
+        services.AddSingleton<BatchService>();
+        services.AddSingleton<BatchCallbacks>();
+        services.AddHostedService<BatchWorker>();
+    }
+
+    public static void Map(RouteGroupBuilder v1)
+    {
+        var group = v1.MapGroup("/batches").WithTags("Batches");
+
+        group.MapPost("", SubmitAsync)
+            .WithName("SubmitBatch")
+            .WithSummary("Queues a batch: JSON {model, folder, batchId?, callbackUrl?} for a folder under the data folder, or multipart " +
+                         "(fields model, batchId?, callbackUrl?, file: .zip/.tar). Re-submitting a batch id adds only frames it lacks.")
+            .Accepts<BatchRequest>("application/json", "multipart/form-data")
+            .ProducesProblem(400).ProducesProblem(404).ProducesProblem(409).ProducesProblem(413).ProducesProblem(415);
+
+        group.MapGet("", (BatchService batches, string? state, int? limit) =>
+                TypedResults.Ok(new BatchList(batches.Store.List(Math.Clamp(limit ?? 100, 1, 1000), state).Select(BatchView.From).ToList())))
+            .WithName("ListBatches")
+            .WithSummary("Lists batches, newest first (optional ?state=queued|running|done|cancelled|failed&limit=N).");
+
+        group.MapGet("/{id}", Results<Ok<BatchView>, ProblemHttpResult> (string id, BatchService batches) =>
+                Find(batches, id) is { } b ? TypedResults.Ok(BatchView.From(b)) : NotFound(id))
+            .WithName("GetBatch")
+            .WithSummary("State, frame counts and progress of a batch.")
+            .ProducesProblem(404);
+
+        group.MapGet("/{id}/frames", Results<Ok<BatchFrameList>, ProblemHttpResult> (string id, BatchService batches) =>
+                Find(batches, id) is null ? NotFound(id) : TypedResults.Ok(new BatchFrameList(batches.Store.Frames(id).Select(FrameView.From).ToList())))
+            .WithName("GetBatchFrames")
+            .WithSummary("Every frame of a batch: state, score, when it was scored and how many times scoring started.")
+            .ProducesProblem(404);
+
+        group.MapGet("/{id}/manifest", Results<PhysicalFileHttpResult, ProblemHttpResult> (string id, BatchService batches) =>
+            {
+                if (Find(batches, id) is not { } b) return NotFound(id);
+                // Written on demand too, so an unfinished batch's manifest shows the frames done so far.
+                string path = Manifest.Write(batches.BatchFolder(id), b, batches.Store.Frames(id));
+                return TypedResults.PhysicalFile(path, Manifest.ContentType);
+            })
+            .WithName("GetBatchManifest")
+            .WithSummary("JSON lines, one per frame, highest frame score first (regions with outlines, artifact paths relative to the batch folder).")
+            .Produces(200, contentType: Manifest.ContentType)
+            .ProducesProblem(404);
+
+        group.MapPost("/{id}/cancel", Results<Ok<BatchView>, ProblemHttpResult> (string id, BatchService batches) =>
+            {
+                if (Find(batches, id) is null) return NotFound(id);
+                try
+                {
+                    return TypedResults.Ok(BatchView.From(batches.Cancel(id)!));
+                }
+                catch (BatchException e)
+                {
+                    return ApiProblems.Create(e.Code, e.Message);
+                }
+            })
+            .WithName("CancelBatch")
+            .WithSummary("Cancels a queued or running batch; the frame being scored finishes, the rest stay pending.")
+            .ProducesProblem(404).ProducesProblem(409);
+    }
+
+    private static async Task<IResult> SubmitAsync(HttpRequest request, BatchService batches, CancellationToken ct)
+    {
+        try
+        {
+            (BatchRecord batch, bool created, int added) result;
+            if (request.HasJsonContentType())
+            {
+                BatchRequest? body;
+                try { body = await request.ReadFromJsonAsync<BatchRequest>(RequestJson, ct); }
+                catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
+                if (body is null || string.IsNullOrWhiteSpace(body.Folder))
+                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
+                result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
+            }
+            else if (request.HasFormContentType)
+            {
+                var form = await request.ReadFormAsync(ct);
+                var file = form.Files.Count > 0 ? form.Files[0] : null;
+                if (file is null)
+                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "The multipart upload has no file part; send the .zip or .tar as 'file'.");
+                string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
+                Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
+                try
+                {
+                    await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
+                    result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
+                        Blank(form["callbackUrl"].ToString()));
+                }
+                finally
+                {
+                    File.Delete(upload);
+                }
+            }
+            else
+            {
+                return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                    $"Content type '{request.ContentType}' is not accepted: send application/json (a folder) or multipart/form-data (an archive).");
+            }
+            var view = BatchView.From(result.batch);
+            var answer = new BatchSubmitted(view, result.created, result.added);
+            return result.created ? TypedResults.Created($"/v1/batches/{view.Id}", answer) : TypedResults.Ok(answer);
+        }
+        catch (BatchException e)
+        {
+            return ApiProblems.Create(e.Code, e.Message);
+        }
+        catch (UnsafePathException e)
+        {
+            return ApiProblems.Create(ErrorCodes.PathOutsideData, e.Message);
+        }
+    }
+
+    private static BatchRecord? Find(BatchService batches, string id) => BatchService.IsBatchId(id) ? batches.Store.Get(id) : null;
+
+    private static ProblemHttpResult NotFound(string id) =>
+        ApiProblems.Create(ErrorCodes.BatchNotFound, $"There is no batch '{id}'; GET /v1/batches lists them.");
+
+    private static string? Blank(string? s) => string.IsNullOrWhiteSpace(s) ? null : s;
+}

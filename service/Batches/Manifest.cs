@@ -1,0 +1,135 @@
+using System.Text.Json;
+using System.Text.Json.Serialization;
+using Strayspot.Scoring.Pipeline;
+using Strayspot.Scoring.Regions;
+using Strayspot.Service.Reports;
+
+namespace Strayspot.Service.Batches;
+
+/// <summary>One region in a manifest line; <see cref="Outline"/> is the outer boundary, at most <see cref="Manifest.MaxOutlinePoints"/> points.</summary>
+public sealed record ManifestRegion(
+    [property: JsonPropertyName("id")] int Id,
+    [property: JsonPropertyName("box")] BoxReport Box,
+    [property: JsonPropertyName("area")] long Area,
+    [property: JsonPropertyName("meanScore")] float MeanScore,
+    [property: JsonPropertyName("maxScore")] float MaxScore,
+    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("onSurface")] bool OnSurface,
+    [property: JsonPropertyName("outline")] int[][] Outline);
+
+/// <summary>One line of the manifest: a frame, its score, regions and output files (relative to the batch folder).</summary>
+public sealed record ManifestLine(
+    [property: JsonPropertyName("frameId")] string FrameId,
+    [property: JsonPropertyName("source")] string Source,
+    [property: JsonPropertyName("frameScore")] float? FrameScore,
+    [property: JsonPropertyName("regions")] IReadOnlyList<ManifestRegion> Regions,
+    [property: JsonPropertyName("artifacts")] IReadOnlyDictionary<string, string>? Artifacts,
+    [property: JsonPropertyName("model")] string Model,
+    [property: JsonPropertyName("modelSha256")] string? ModelSha256,
+    [property: JsonPropertyName("profileVersion")] string? ProfileVersion,
+    [property: JsonPropertyName("error")] string? Error = null);
+
+/// <summary>
+/// The batch manifest: JSON lines, one per frame, highest frame score first; frames that failed come last with
+/// their error. Built from the store alone, so it can be rewritten at any time.
+/// </summary>
+public static class Manifest
+{
+    public const string FileName = "manifest.jsonl";
+    public const string ContentType = "application/x-ndjson";
+    public const int MaxOutlinePoints = 64;
+
+    /// <summary>Report artifact keys → manifest artifact names.</summary>
+    private static readonly (string Key, string File)[] ArtifactFiles =
+    [
+        ("classMap", "classes.png"), ("mask", "mask.png"), ("heatMap", "heat.png"), ("overlay", "overlay.png"), ("report", "report.json"),
+    ];
+
+    private static readonly JsonSerializerOptions LineJson = new()
+    {
+        WriteIndented = false,
+        DefaultIgnoreCondition = JsonIgnoreCondition.WhenWritingNull,
+        NumberHandling = JsonNumberHandling.AllowNamedFloatingPointLiterals,
+    };
+
+    /// <summary>The regions of a scored frame with their outlines, while its maps are valid.</summary>
+    public static List<ManifestRegion> Regions(FrameScoring scored, IReadOnlyList<string> classNames)
+    {
+        var set = scored.Regions;
+        var list = new List<ManifestRegion>(set.Regions.Count);
+        foreach (var r in set.Regions)
+        {
+            var outline = Simplify(RegionOutline.Outline(set, r.Id), MaxOutlinePoints);
+            var points = new int[outline.Count][];
+            for (int i = 0; i < outline.Count; i++) points[i] = [outline[i].X, outline[i].Y];
+            string beneath = r.MajorityClass < classNames.Count ? classNames[r.MajorityClass] : r.MajorityClass.ToString(System.Globalization.CultureInfo.InvariantCulture);
+            list.Add(new ManifestRegion(r.Id, new BoxReport(r.Left, r.Top, r.Width, r.Height), r.Area, r.MeanScore, r.MaxScore,
+                beneath, r.OnSurface, points));
+        }
+        return list;
+    }
+
+    /// <summary>
+    /// Drops points where the boundary runs straight on (same step as before), then, if still too many, keeps evenly
+    /// spaced ones: the first point is always kept and the order stays clockwise.
+    /// </summary>
+    public static List<(int X, int Y)> Simplify(IReadOnlyList<(int X, int Y)> outline, int maxPoints)
+    {
+        ArgumentOutOfRangeException.ThrowIfLessThan(maxPoints, 3);
+        int n = outline.Count;
+        if (n <= 3) return outline.ToList();
+        var corners = new List<(int X, int Y)>(n) { outline[0] };
+        for (int i = 1; i < n; i++)
+        {
+            var prev = outline[i - 1];
+            var cur = outline[i];
+            var next = outline[(i + 1) % n];
+            bool straight = cur.X - prev.X == next.X - cur.X && cur.Y - prev.Y == next.Y - cur.Y;
+            if (!straight) corners.Add(cur);
+        }
+        if (corners.Count <= maxPoints) return corners;
+        var kept = new List<(int X, int Y)>(maxPoints);
+        for (int i = 0; i < maxPoints; i++) kept.Add(corners[(int)((long)i * corners.Count / maxPoints)]);
+        return kept;
+    }
+
+    public static string RegionsJson(IReadOnlyList<ManifestRegion> regions) => JsonSerializer.Serialize(regions, LineJson);
+
+    /// <summary>The lines of a batch in manifest order: done frames by score (highest first, then seq), failed frames after.</summary>
+    public static List<ManifestLine> Lines(BatchRecord batch, IReadOnlyList<FrameRecord> frames)
+    {
+        var done = frames.Where(f => f.State == FrameStates.Done)
+            .OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq);
+        var failed = frames.Where(f => f.State == FrameStates.Failed).OrderBy(f => f.Seq);
+        var lines = new List<ManifestLine>(frames.Count);
+        foreach (var f in done)
+        {
+            var regions = f.RegionsJson is null ? [] : JsonSerializer.Deserialize<List<ManifestRegion>>(f.RegionsJson, LineJson) ?? [];
+            string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
+            var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
+            foreach (var (key, file) in ArtifactFiles) artifacts[key] = folder + "/" + file;
+            lines.Add(new ManifestLine(f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256, batch.ProfileVersion));
+        }
+        foreach (var f in failed)
+            lines.Add(new ManifestLine(f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error));
+        return lines;
+    }
+
+    public static void WriteTo(Stream stream, IEnumerable<ManifestLine> lines)
+    {
+        foreach (var line in lines)
+        {
+            JsonSerializer.Serialize(stream, line, LineJson);
+            stream.WriteByte((byte)'\n');
+        }
+    }
+
+    /// <summary>Writes the manifest of a batch atomically into its folder; returns the path.</summary>
+    public static string Write(string batchFolder, BatchRecord batch, IReadOnlyList<FrameRecord> frames)
+    {
+        string path = Path.Combine(batchFolder, FileName);
+        var lines = Lines(batch, frames);
+        AtomicFile.Write(path, s => WriteTo(s, lines));
+        return path;
+    }
+}
