@@ -1,0 +1,79 @@
+using System.Net;
+using System.Net.Http.Json;
+using System.Text.Json;
+using Strayspot.Scoring.Standardization;
+using Strayspot.Service.Calibration;
+using Strayspot.Service.Demo;
+
+namespace Strayspot.Tests.Service.Api;
+
+public class CalibrationsApiTests
+{
+    private static async Task WaitReady(TestService s)
+    {
+        var until = DateTime.UtcNow.AddSeconds(60);
+        while ((await s.Client.GetAsync("/readyz")).StatusCode != HttpStatusCode.OK)
+        {
+            Assert.True(DateTime.UtcNow < until, "service never became ready");
+            await Task.Delay(100);
+        }
+    }
+
+    private static async Task<JsonElement> WaitState(TestService s, string id, params string[] states)
+    {
+        var until = DateTime.UtcNow.AddSeconds(90);
+        while (true)
+        {
+            var job = await s.Client.GetFromJsonAsync<JsonElement>($"/v1/calibrations/{id}");
+            if (states.Contains(job.GetProperty("state").GetString())) return job;
+            Assert.True(DateTime.UtcNow < until, $"job stuck in {job}");
+            await Task.Delay(100);
+        }
+    }
+
+    [Fact]
+    public async Task A_calibration_runs_over_a_data_folder_and_activation_makes_it_the_models_own()
+    {
+        await using var s = await TestService.StartAsync(models => BundledDemo.Extract(Path.Combine(models, "demo"), Path.Combine(models, "..", "demo-frames")));
+        await WaitReady(s);
+        string frames = Path.Combine(s.DataRoot, "ordinary");
+        Directory.CreateDirectory(frames);
+        foreach (string f in Directory.GetFiles(Path.Combine(s.Root, "demo-frames")).Where(f => !f.Contains("debris")))
+            File.Copy(f, Path.Combine(frames, Path.GetFileName(f)));
+
+        var start = await s.Client.PostAsJsonAsync("/v1/models/demo/calibrations", new { folder = "ordinary" });
+        Assert.Equal(HttpStatusCode.Accepted, start.StatusCode);
+        string id = (await start.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        var done = await WaitState(s, id, "done", "failed");
+        Assert.Equal("done", done.GetProperty("state").GetString());
+        Assert.Equal(done.GetProperty("framesTotal").GetInt32(), done.GetProperty("framesDone").GetInt32());
+
+        var activated = await s.Client.PostAsync($"/v1/calibrations/{id}/activate", null);
+        Assert.Equal(HttpStatusCode.OK, activated.StatusCode);
+        var artifact = CalibrationArtifact.Load(Path.Combine(s.ModelsRoot, "demo", CalibrationArtifact.FileName));
+        Assert.Equal(6, artifact.Classes.Count);
+        Assert.Equal(done.GetProperty("framesTotal").GetInt32(), artifact.FrameCount);
+        var details = await s.Client.GetFromJsonAsync<JsonElement>("/v1/models/demo");
+        Assert.Contains("calibration.json", details.ToString());
+    }
+
+    [Theory]
+    [InlineData("../outside", "path-outside-data", 400)]
+    [InlineData("missing", "frame-format", 415)]
+    public async Task Folders_outside_the_data_root_or_missing_are_refused(string folder, string code, int status)
+    {
+        await using var s = await TestService.StartAsync(models => TestService.WriteModel(models, "apron-a"));
+        var r = await s.Client.PostAsJsonAsync("/v1/models/apron-a/calibrations", new { folder });
+        await TestService.ProblemAsync(r, status, code);
+    }
+
+    [Fact]
+    public async Task Unknown_job_and_unknown_model_are_404_problems()
+    {
+        await using var s = await TestService.StartAsync(models => TestService.WriteModel(models, "apron-a"));
+        await TestService.ProblemAsync(await s.Client.GetAsync("/v1/calibrations/nope"), 404, "job-not-found");
+        await TestService.ProblemAsync(await s.Client.PostAsync("/v1/calibrations/nope/activate", null), 404, "job-not-found");
+        await TestService.ProblemAsync(await s.Client.PostAsJsonAsync("/v1/models/none/calibrations", new { folder = "x" }), 404, "model-not-found");
+        await TestService.ProblemAsync(await s.Client.PostAsJsonAsync("/v1/models/apron-a/calibrations", new { folder = "" }), 400, "validation-failed");
+    }
+}
