@@ -6,7 +6,7 @@ public sealed record DemoTrainingOptions
     /// <summary>Prototypes per class (k-means on that class's training features).</summary>
     public int CentresPerClass { get; init; } = 16;
     /// <summary>Radial-basis width in standardized feature units.</summary>
-    public float Bandwidth { get; init; } = 1.2f;
+    public float Bandwidth { get; init; } = 1.6f;
     public int Steps { get; init; } = 250;
     public double LearningRate { get; init; } = 2.0;
     public double Momentum { get; init; } = 0.9;
