@@ -1,6 +1,8 @@
 using System.Text.Json;
 using System.Text.Json.Serialization;
 using Strayspot.Scoring.Standardization;
+using Strayspot.Service.Calibration;
+using Strayspot.Service.Frames;
 using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Demo;
@@ -10,7 +12,7 @@ public sealed record DemoBuildOptions
 {
     public int Width { get; init; } = ApronSceneGenerator.DefaultWidth;
     public int Height { get; init; } = ApronSceneGenerator.DefaultHeight;
-    public int TrainingFrames { get; init; } = 16;
+    public int TrainingFrames { get; init; } = 10;
     public int TrainingSeed { get; init; } = 1;
     /// <summary>Demo frames under frames/: the first <see cref="DemoDebrisFrames"/> of them carry debris.</summary>
     public int DemoFrames { get; init; } = 4;
@@ -22,17 +24,20 @@ public sealed record DemoBuildOptions
     public DemoTrainingOptions Training { get; init; } = new();
 }
 
-public sealed record DemoBuildResult(DemoModel Model, ClassStatistics Statistics, IReadOnlyList<string> Files);
+public sealed record DemoBuildResult(DemoModel Model, CalibrationArtifact Calibration, IReadOnlyList<string> Files)
+{
+    public ClassStatistics Statistics => Calibration.ToStatistics();
+}
 
 /// <summary>
-/// Regenerates the bundled demo (model, descriptor, statistics, frames, held-out debris set) from code alone; the
-/// same options always give the same files.
+/// Regenerates the bundled demo (model, descriptor, calibration, frames, held-out debris set) from code alone; the
+/// same options always give the same files (calibration.json up to its creation time and tool version).
 /// </summary>
 public static class DemoAssets
 {
     public const string ModelFile = "model.onnx";
     public const string DescriptorFile = "descriptor.json";
-    public const string StatisticsFile = "statistics.json";
+    public const string CalibrationFile = CalibrationArtifact.FileName;
     public const string FramesFolder = "frames";
     public const string HeldOutFolder = "heldout";
 
@@ -54,10 +59,8 @@ public static class DemoAssets
         var model = DemoModelTrainer.Train(training, options.Training);
         files.Add(Write(folder, ModelFile, DemoModelOnnx.ToBytes(model)));
         files.Add(Write(folder, DescriptorFile, JsonSerializer.SerializeToUtf8Bytes(Descriptor(), DescriptorJson)));
-        var statistics = MeasureStatistics(model, training);
-        string statisticsPath = Path.Combine(folder, StatisticsFile);
-        statistics.Save(statisticsPath);
-        files.Add(statisticsPath);
+        var calibration = Calibrate(folder, training);
+        files.Add(Path.Combine(folder, CalibrationFile));
 
         string frames = Path.Combine(folder, FramesFolder);
         Directory.CreateDirectory(frames);
@@ -87,7 +90,7 @@ public static class DemoAssets
             files.Add(framePath);
             files.Add(maskPath);
         }
-        return new DemoBuildResult(model, statistics, files);
+        return new DemoBuildResult(model, calibration, files);
     }
 
     /// <summary>The held-out debris set: the first frames are the ones written under heldout/, any count can be regenerated.</summary>
@@ -125,38 +128,33 @@ public static class DemoAssets
     };
 
     /// <summary>
-    /// Max-logit mean and std per predicted class over normal frames. Measured at logit resolution (1/4 of the frame) for
-    /// now; once the scoring pipeline upsamples logits to frame size, this should be measured through it.
+    /// Per-class max-logit statistics over the training frames, measured the way a user calibrates: the frames as PNG
+    /// files through the command line's calibrator (decoder, ONNX Runtime, logits resized to frame size).
     /// </summary>
-    public static ClassStatistics MeasureStatistics(DemoModel model, IReadOnlyList<ApronFrame> frames)
+    public static CalibrationArtifact Calibrate(string modelFolder, IReadOnlyList<ApronFrame> frames)
     {
-        int classes = model.ClassCount;
-        var n = new long[classes];
-        var sum = new double[classes];
-        var sumSq = new double[classes];
-        foreach (var f in frames)
+        string framesFolder = Path.Combine(Path.GetTempPath(), "strayspot-demo-calibration-" + Guid.NewGuid().ToString("N"));
+        Directory.CreateDirectory(framesFolder);
+        try
         {
-            var logits = model.Logits(f, out int h, out int w);
-            int m = h * w;
-            for (int p = 0; p < m; p++)
+            var paths = new List<string>(frames.Count);
+            for (int i = 0; i < frames.Count; i++)
             {
-                int best = 0;
-                float max = logits[p];
-                for (int c = 1; c < classes; c++)
-                    if (logits[c * m + p] > max) { max = logits[c * m + p]; best = c; }
-                n[best]++;
-                sum[best] += max;
-                sumSq[best] += (double)max * max;
+                string path = Path.Combine(framesFolder, $"train_{i:D3}.png");
+                DemoPng.SaveRgb(path, frames[i].Rgb, frames[i].Width, frames[i].Height);
+                paths.Add(path);
             }
+            // One thread per session: the same sums on any machine size.
+            using var model = SegmentationModel.LoadFolder(modelFolder, new ModelRuntimeOptions { IntraOpThreads = 1, WarmUp = false });
+            var calibrator = new Calibrator(model, new FrameDecoder(), () => new PixelReductionMaxLogitReducer(),
+                new CalibrationOptions { CheckpointEvery = 0, Workers = Math.Min(2, Environment.ProcessorCount) });
+            return calibrator.Run(paths, Path.Combine(modelFolder, CalibrationFile))
+                   ?? throw new InvalidOperationException("Demo calibration stopped before the last frame.");
         }
-        var list = new List<ClassStatistic>(classes);
-        for (int c = 0; c < classes; c++)
+        finally
         {
-            double mean = n[c] == 0 ? 0 : sum[c] / n[c];
-            double variance = n[c] < 2 ? 0 : Math.Max(0, (sumSq[c] - n[c] * mean * mean) / (n[c] - 1));
-            list.Add(new ClassStatistic(ApronClasses.Names[c], n[c], Math.Round(mean, 6), Math.Round(Math.Sqrt(variance), 6)));
+            try { Directory.Delete(framesFolder, recursive: true); } catch (IOException) { }
         }
-        return new ClassStatistics(list);
     }
 
     private static string Write(string folder, string name, byte[] bytes)

@@ -2,28 +2,28 @@ namespace Strayspot.Service.Demo;
 
 /// <summary>
 /// The bundled demo segmentation network: fixed filters (<see cref="DemoFeatures"/>), standardized, then radial-basis
-/// units around prototypes of the training features, then a linear softmax head. Far from every prototype all units
-/// fade and the logits fall back to the bias, so unfamiliar inputs get low max logits, as in a trained network, while
-/// each class reaches its own typical max-logit level.
+/// units around prototypes of the training features, then a linear softmax head without bias. Far from every prototype
+/// all units fade and every logit tends to 0, a neutral "nothing recognized" output far below each class's typical max
+/// logit, while partly familiar inputs (debris on pavement keeps the pavement context) lean to the surrounding class
+/// with a low max logit, as in a trained network.
 /// </summary>
 public sealed class DemoModel
 {
-    public DemoModel(float[] featureMean, float[] featureStd, float[] centres, float bandwidth, float[] weights, float[] bias)
+    public DemoModel(float[] featureMean, float[] featureStd, float[] centres, float bandwidth, float[] weights, int classCount)
     {
         int d = DemoFeatures.Count;
         if (featureMean.Length != d || featureStd.Length != d) throw new ArgumentException($"Feature mean/std need {d} values.");
         if (centres.Length == 0 || centres.Length % d != 0) throw new ArgumentException($"Centres must be a multiple of {d} values, got {centres.Length}.");
         if (!(bandwidth > 0)) throw new ArgumentOutOfRangeException(nameof(bandwidth), $"Bandwidth must be positive, got {bandwidth}.");
         CentreCount = centres.Length / d;
-        if (bias.Length == 0 || weights.Length != bias.Length * CentreCount)
-            throw new ArgumentException($"Weights have {weights.Length} values; expected {bias.Length}x{CentreCount}.");
-        ClassCount = bias.Length;
+        if (classCount < 1 || weights.Length != classCount * CentreCount)
+            throw new ArgumentException($"Weights have {weights.Length} values; expected {classCount}x{CentreCount}.");
+        ClassCount = classCount;
         FeatureMean = featureMean;
         FeatureStd = featureStd;
         Centres = centres;
         Bandwidth = bandwidth;
         Weights = weights;
-        Bias = bias;
     }
 
     public int ClassCount { get; }
@@ -35,7 +35,6 @@ public sealed class DemoModel
     public float Bandwidth { get; }
     /// <summary>[ClassCount, CentreCount].</summary>
     public float[] Weights { get; }
-    public float[] Bias { get; }
 
     /// <summary>Radial-basis activations of one standardized feature vector.</summary>
     public void Activations(ReadOnlySpan<float> standardized, Span<double> activations)
@@ -72,7 +71,7 @@ public sealed class DemoModel
             Activations(z, a);
             for (int c = 0; c < ClassCount; c++)
             {
-                double sum = Bias[c];
+                double sum = 0;
                 for (int k = 0; k < CentreCount; k++) sum += Weights[c * CentreCount + k] * a[k];
                 logits[c * pixels + p] = (float)sum;
             }

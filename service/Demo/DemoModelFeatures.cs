@@ -3,14 +3,16 @@ namespace Strayspot.Service.Demo;
 /// <summary>
 /// The demo model's fixed filters, computed directly (the ONNX graph computes the same with standard operators):
 /// colour means over 4×4 cells (stride 4), their 5×5 neighbourhood mean, the mean gradient magnitude of grey over each
-/// cell (texture, log scale), its 5×5 neighbourhood mean, and 15×15 neighbourhood means of colour and texture (the
-/// surroundings a larger network would see). Output is [Count, H/4, W/4] planar, channels in that order.
+/// cell (texture, log scale), its 5×5 neighbourhood mean, 15×15 neighbourhood means of colour and texture (the
+/// surroundings a larger network would see), and the cell row's height in the frame, (row + 0.5) / rows (the prior a
+/// convolutional network learns from padding: sky above, ground below). Output is [Count, H/4, W/4] planar, channels
+/// in that order.
 /// </summary>
 public static class DemoFeatures
 {
     public const int Stride = 4;
     public const int Context = 5;
-    public const int Count = 12;
+    public const int Count = 13;
     public const int WideContext = 15;
     public const float GradientEpsilon = 1e-6f;
     public static readonly float[] GreyWeights = [0.299f, 0.587f, 0.114f];
@@ -83,6 +85,8 @@ public static class DemoFeatures
         NeighbourhoodMean(features.AsSpan(m, m), features.AsSpan(9 * m, m), h, w, WideContext);
         NeighbourhoodMean(features.AsSpan(2 * m, m), features.AsSpan(10 * m, m), h, w, WideContext);
         NeighbourhoodMean(features.AsSpan(6 * m, m), features.AsSpan(11 * m, m), h, w, WideContext);
+        var row = features.AsSpan(12 * m, m);
+        for (int y = 0; y < h; y++) row.Slice(y * w, w).Fill((y + 0.5f) / h);
         return features;
     }
 

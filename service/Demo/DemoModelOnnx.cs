@@ -34,9 +34,12 @@ public static class DemoModelOnnx
         g.Initializer.Add(Floats("centres", model.Centres, 1, k, d, 1, 1));
         g.Initializer.Add(Floats("neg_inv_two_s2", [(float)(-1.0 / (2.0 * model.Bandwidth * model.Bandwidth))]));
         g.Initializer.Add(Floats("head_w", model.Weights, c, k, 1, 1));
-        g.Initializer.Add(Floats("head_b", model.Bias, c));
         g.Initializer.Add(Longs("axis_1", [1L], 1));
         g.Initializer.Add(Longs("axis_2", [2L], 1));
+        g.Initializer.Add(Longs("rows_dim", [2L]));
+        g.Initializer.Add(Floats("half", [0.5f]));
+        g.Initializer.Add(Floats("one", [1f]));
+        g.Initializer.Add(Longs("row_column_shape", [1L, 1L, -1L, 1L], 4));
 
         int s = DemoFeatures.Stride, r = DemoFeatures.Context / 2;
         g.Node.Add(Node("AveragePool", [InputName], "colour_cell", Ints("kernel_shape", s, s), Ints("strides", s, s)));
@@ -56,7 +59,15 @@ public static class DemoModelOnnx
             Ints("strides", 1, 1), Ints("pads", wr, wr, wr, wr), Int("count_include_pad", 0)));
         g.Node.Add(Node("AveragePool", ["texture_cell"], "texture_wide", Ints("kernel_shape", DemoFeatures.WideContext, DemoFeatures.WideContext),
             Ints("strides", 1, 1), Ints("pads", wr, wr, wr, wr), Int("count_include_pad", 0)));
-        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context", "colour_wide", "texture_wide"],
+        // Row position from the tensor's own shape: (row + 0.5) / rows, broadcast over the columns.
+        g.Node.Add(Node("Shape", ["texture_cell"], "cell_shape"));
+        g.Node.Add(Node("Gather", ["cell_shape", "rows_dim"], "cell_rows", Int("axis", 0)));
+        g.Node.Add(Node("Cast", ["cell_rows"], "cell_rows_f", Int("to", (int)TensorProto.Types.DataType.Float)));
+        g.Node.Add(Node("Range", ["half", "cell_rows_f", "one"], "row_centres"));
+        g.Node.Add(Node("Div", ["row_centres", "cell_rows_f"], "row_fraction"));
+        g.Node.Add(Node("Reshape", ["row_fraction", "row_column_shape"], "row_column"));
+        g.Node.Add(Node("Expand", ["row_column", "cell_shape"], "row_position"));
+        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context", "colour_wide", "texture_wide", "row_position"],
             "features", Int("axis", 1)));
         g.Node.Add(Node("Sub", ["features", "feature_mean"], "features_centred"));
         g.Node.Add(Node("Div", ["features_centred", "feature_std"], "features_std"));
@@ -66,7 +77,7 @@ public static class DemoModelOnnx
         g.Node.Add(Node("ReduceSum", ["offsets_sq", "axis_2"], "distance_sq", Int("keepdims", 0)));
         g.Node.Add(Node("Mul", ["distance_sq", "neg_inv_two_s2"], "exponent"));
         g.Node.Add(Node("Exp", ["exponent"], "activations"));
-        g.Node.Add(Node("Conv", ["activations", "head_w", "head_b"], OutputName));
+        g.Node.Add(Node("Conv", ["activations", "head_w"], OutputName));
 
         var modelProto = new ModelProto
         {

@@ -6,13 +6,13 @@ public sealed record DemoTrainingOptions
     /// <summary>Prototypes per class (k-means on that class's training features).</summary>
     public int CentresPerClass { get; init; } = 16;
     /// <summary>Radial-basis width in standardized feature units.</summary>
-    public float Bandwidth { get; init; } = 1.2f;
-    public int Steps { get; init; } = 300;
+    public float Bandwidth { get; init; } = 1.6f;
+    public int Steps { get; init; } = 250;
     public double LearningRate { get; init; } = 2.0;
     public double Momentum { get; init; } = 0.9;
     public double WeightDecay { get; init; } = 1e-4;
     /// <summary>Pixels (at logit resolution) the softmax head is fitted on.</summary>
-    public int HeadSamples { get; init; } = 30000;
+    public int HeadSamples { get; init; } = 20000;
     /// <summary>Pixels per class the prototypes are clustered from.</summary>
     public int ClusterSamplesPerClass { get; init; } = 4000;
     public int KMeansIterations { get; init; } = 15;
@@ -78,7 +78,7 @@ public static class DemoModelTrainer
         var all = new List<int>(n);
         for (int i = 0; i < n; i++) all.Add(i);
         var head = Subsample(all, options.HeadSamples, rng);
-        var probe = new DemoModel(mean, std, centreArray, options.Bandwidth, new float[classes * k], new float[classes]);
+        var probe = new DemoModel(mean, std, centreArray, options.Bandwidth, new float[classes * k], classes);
         int ns = head.Count;
         var phi = new double[ns * k];
         var target = new byte[ns];
@@ -87,8 +87,8 @@ public static class DemoModelTrainer
             probe.Activations(x.AsSpan(head[s] * d, d), phi.AsSpan(s * k, k));
             target[s] = y[head[s]];
         }
-        var (weights, bias) = FitSoftmax(phi, target, ns, k, classes, options);
-        return new DemoModel(mean, std, centreArray, options.Bandwidth, weights, bias);
+        var weights = FitSoftmax(phi, target, ns, k, classes, options);
+        return new DemoModel(mean, std, centreArray, options.Bandwidth, weights, classes);
     }
 
     private static List<int> Subsample(List<int> items, int count, ApronRandom rng)
@@ -158,26 +158,25 @@ public static class DemoModelTrainer
         return s;
     }
 
-    /// <summary>Full-batch gradient descent with momentum on mean cross-entropy plus L2 decay on the weights.</summary>
-    private static (float[] Weights, float[] Bias) FitSoftmax(double[] phi, byte[] target, int n, int k, int classes, DemoTrainingOptions o)
+    /// <summary>
+    /// Full-batch gradient descent with momentum on mean cross-entropy plus L2 decay on the weights. No bias: a learned
+    /// bias becomes the answer wherever no unit fires, and would hand unfamiliar inputs to whichever class it favours.
+    /// </summary>
+    private static float[] FitSoftmax(double[] phi, byte[] target, int n, int k, int classes, DemoTrainingOptions o)
     {
         var w = new double[classes * k];
-        var b = new double[classes];
         var vw = new double[classes * k];
-        var vb = new double[classes];
         var gw = new double[classes * k];
-        var gb = new double[classes];
         var z = new double[classes];
         for (int step = 0; step < o.Steps; step++)
         {
             Array.Clear(gw);
-            Array.Clear(gb);
             for (int i = 0; i < n; i++)
             {
                 double max = double.NegativeInfinity;
                 for (int c = 0; c < classes; c++)
                 {
-                    double s = b[c];
+                    double s = 0;
                     for (int j = 0; j < k; j++) s += w[c * k + j] * phi[i * k + j];
                     z[c] = s;
                     if (s > max) max = s;
@@ -187,14 +186,11 @@ public static class DemoModelTrainer
                 for (int c = 0; c < classes; c++)
                 {
                     double g = z[c] / total - (target[i] == c ? 1 : 0);
-                    gb[c] += g;
                     for (int j = 0; j < k; j++) gw[c * k + j] += g * phi[i * k + j];
                 }
             }
             for (int c = 0; c < classes; c++)
             {
-                vb[c] = o.Momentum * vb[c] - o.LearningRate * gb[c] / n;
-                b[c] += vb[c];
                 for (int j = 0; j < k; j++)
                 {
                     int idx = c * k + j;
@@ -205,8 +201,6 @@ public static class DemoModelTrainer
         }
         var wf = new float[w.Length];
         for (int i = 0; i < w.Length; i++) wf[i] = (float)w[i];
-        var bf = new float[b.Length];
-        for (int i = 0; i < b.Length; i++) bf[i] = (float)b[i];
-        return (wf, bf);
+        return wf;
     }
 }

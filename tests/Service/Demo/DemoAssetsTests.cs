@@ -1,6 +1,8 @@
 using System.Text.Json;
 using Strayspot.Scoring.Standardization;
+using Strayspot.Service.Calibration;
 using Strayspot.Service.Demo;
+using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 
 namespace Strayspot.Tests.Service.Demo;
@@ -26,6 +28,22 @@ public sealed class DemoAssetsTests(DemoFixture fixture)
                     Assert.Equal(DemoPng.LoadGray(committed).Values, DemoPng.LoadGray(built).Values);
                 else
                     Assert.Equal(DemoPng.LoadRgb(committed).Rgb, DemoPng.LoadRgb(built).Rgb);
+            }
+            else if (relative == DemoAssets.CalibrationFile)
+            {
+                // Creation time and tool version vary; the statistics may differ in the last bits between CPUs.
+                var a = CalibrationArtifact.Load(committed);
+                var b = CalibrationArtifact.Load(built);
+                Assert.Equal(a.ModelSha256, b.ModelSha256);
+                Assert.Equal(a.DescriptorSha256, b.DescriptorSha256);
+                Assert.Equal(a.FrameCount, b.FrameCount);
+                Assert.Equal(a.FallbackClasses, b.FallbackClasses);
+                Assert.Equal(a.Classes.Select(c => (c.Name, c.Count)), b.Classes.Select(c => (c.Name, c.Count)));
+                for (int i = 0; i < a.Classes.Count; i++)
+                {
+                    Assert.Equal(a.Classes[i].Mean, b.Classes[i].Mean, 1e-6);
+                    Assert.Equal(a.Classes[i].Std, b.Classes[i].Std, 1e-6);
+                }
             }
             else
             {
@@ -58,11 +76,18 @@ public sealed class DemoAssetsTests(DemoFixture fixture)
     }
 
     [Fact]
-    public void StatisticsFileLoadsWithOneEntryPerClass()
+    public void CommittedFolderLoadsWithItsCalibrationBoundToTheModel()
     {
-        var stats = ClassStatistics.Load(Path.Combine(Committed, DemoAssets.StatisticsFile));
+        using var bundle = ModelBundle.Load(Committed, new ModelRuntimeOptions { IntraOpThreads = 1, WarmUp = false });
+        Assert.Equal(DemoAssets.CalibrationFile, bundle.StatisticsSource);
+        Assert.Null(bundle.Warning);
+        var stats = bundle.Statistics!;
         Assert.Equal(ApronClasses.Names, stats.Classes.Select(c => c.Name));
         Assert.All(stats.Classes, c => Assert.True(c.Count >= stats.MinimumCount && c.Std > 0, $"{c.Name}: {c.Count} / {c.Std}"));
+        var artifact = CalibrationArtifact.Load(Path.Combine(Committed, DemoAssets.CalibrationFile));
+        Assert.Equal(new DemoBuildOptions().TrainingFrames, artifact.FrameCount);
+        Assert.Empty(artifact.FallbackClasses);
+        Assert.False(File.Exists(Path.Combine(Committed, "statistics.json")), "calibration.json replaces statistics.json");
     }
 
     [Fact]

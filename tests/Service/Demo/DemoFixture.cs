@@ -8,8 +8,12 @@ public sealed class DemoFixture : IDisposable
     public DemoFixture()
     {
         Folder = Path.Combine(Path.GetTempPath(), "strayspot-demo-" + Guid.NewGuid().ToString("N"));
+        var clock = System.Diagnostics.Stopwatch.StartNew();
         Result = DemoAssets.Build(Folder);
+        BuildTime = clock.Elapsed;
     }
+
+    public TimeSpan BuildTime { get; }
 
     public string Folder { get; }
     public DemoBuildResult Result { get; }

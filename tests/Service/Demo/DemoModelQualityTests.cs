@@ -14,7 +14,7 @@ public sealed class DemoModelQualityTests(DemoFixture fixture, ITestOutputHelper
     public void LabelsHeldOutNormalFramesWell()
     {
         double accuracy = DemoEvaluation.Accuracy(fixture.Model, NormalHeldOut);
-        output.WriteLine($"pixel accuracy at logit resolution on 6 held-out normal frames: {accuracy:P2}");
+        output.WriteLine($"pixel accuracy at logit resolution on 6 held-out normal frames: {accuracy:P2} (demo rebuilt in {fixture.BuildTime.TotalSeconds:F1} s)");
         Assert.True(accuracy > 0.9, $"accuracy {accuracy:P2}");
     }
 
@@ -53,20 +53,41 @@ public sealed class DemoModelQualityTests(DemoFixture fixture, ITestOutputHelper
     }
 
     [Fact]
-    public void AnomalyScoresFindDebrisBetterThanChance()
+    public void FrameResolutionMetricsOnHeldOutDebris()
     {
-        var frames = DemoAssets.HeldOut(8);
-        var stats = fixture.Result.Statistics.Classes.Select(s => (s.Mean, s.Std)).ToList();
-        long positives = 0, total = 0;
-        foreach (var f in frames)
-            foreach (var m in f.AnomalyMask) { if (m == 1) positives++; if (m <= 1) total++; }
-        double baseRate = (double)positives / total;
-        double msp = DemoEvaluation.AveragePrecision(fixture.Model, frames, DemoEvaluation.Score.Msp, stats);
-        double ml = DemoEvaluation.AveragePrecision(fixture.Model, frames, DemoEvaluation.Score.MaxLogit, stats);
-        double sml = DemoEvaluation.AveragePrecision(fixture.Model, frames, DemoEvaluation.Score.Sml, stats);
-        output.WriteLine($"pixel AP on 8 held-out debris frames (debris = {baseRate:P2} of pixels): -MSP {msp:F4}, -max logit {ml:F4}, -SML {sml:F4}");
-        // The hoped-for order is SML > max logit > MSP; only "clearly better than chance" is asserted.
-        Assert.True(msp > 3 * baseRate && ml > 3 * baseRate && sml > 3 * baseRate, $"AP {msp:F4}/{ml:F4}/{sml:F4} vs base rate {baseRate:F4}");
+        var frames = DemoAssets.HeldOut(20);
+        var results = DemoFrameMetrics.Measure(fixture.Model, frames, fixture.Result.Statistics);
+        var first = results[DemoFrameMetrics.Method.Msp];
+        double baseRate = (double)first.Positives / (first.Positives + first.Negatives);
+        output.WriteLine($"20 held-out debris frames at 1024x512, debris = {baseRate:P2} of scored pixels");
+        foreach (var (method, r) in results)
+            output.WriteLine($"{method,-14} AP {r.AveragePrecision:F4}  AUROC {r.Auroc:F4}  FPR95 {r.FprAtTpr:F4}");
+        Assert.True(baseRate > 0.001, $"debris covers {baseRate:P3} of pixels");
+        Assert.All(results, r => Assert.True(r.Value.AveragePrecision > 20 * baseRate, $"{r.Key}: AP {r.Value.AveragePrecision:F4} vs base rate {baseRate:F4}"));
+        // Standardizing per class is what lets one threshold fit every class: at 95% of debris found, SML flags clearly
+        // fewer normal pixels than the raw max logit, which flags fewer than MSP. In AP, SML leads max logit only by ~0.01
+        // here (reported, not asserted); the full method and max logit lead by clear margins.
+        double msp = results[DemoFrameMetrics.Method.Msp].FprAtTpr, ml = results[DemoFrameMetrics.Method.MaxLogit].FprAtTpr;
+        double sml = results[DemoFrameMetrics.Method.Sml].FprAtTpr;
+        double apMsp = results[DemoFrameMetrics.Method.Msp].AveragePrecision, apMl = results[DemoFrameMetrics.Method.MaxLogit].AveragePrecision;
+        double apSml = results[DemoFrameMetrics.Method.Sml].AveragePrecision, apFull = results[DemoFrameMetrics.Method.SmlFullNarrow].AveragePrecision;
+        Assert.True(apFull > apMl + 0.01 && apMl > apMsp + 0.02,
+            $"AP: full {apFull:F4}, SML {apSml:F4}, max logit {apMl:F4}, MSP {apMsp:F4}");
+        Assert.True(sml < 0.75 * ml && ml < 0.85 * msp, $"FPR at 95% TPR: SML {sml:F4}, max logit {ml:F4}, MSP {msp:F4}");
+    }
+
+    [Fact]
+    public void UnfamiliarInputGetsNeutralLogitsFarBelowEveryClassLevel()
+    {
+        // A flat colour no scene contains: every radial unit fades, so without a bias every logit is near 0.
+        var frame = new ApronFrame(256, 128, new byte[256 * 128 * 3], new byte[256 * 128]);
+        for (int i = 0; i < 256 * 128; i++) { frame.Rgb[3 * i] = 230; frame.Rgb[3 * i + 1] = 20; frame.Rgb[3 * i + 2] = 230; }
+        var logits = fixture.Model.Logits(frame, out _, out _);
+        float worst = 0;
+        foreach (float v in logits) worst = Math.Max(worst, Math.Abs(v));
+        double lowestMean = fixture.Result.Statistics.Classes.Min(c => c.Mean);
+        output.WriteLine($"largest |logit| on a flat magenta frame: {worst:F4}; lowest class mean max logit {lowestMean:F3}");
+        Assert.True(worst < 0.25 * lowestMean, $"|logit| up to {worst:F4} vs lowest class mean {lowestMean:F3}");
     }
 
     [Fact]
