@@ -6,7 +6,7 @@ namespace Strayspot.Service.Cli;
 
 /// <summary>
 /// <c>demo</c>: the whole job on the bundled apron demo, no model of the user's own needed.
-/// <c>demo build</c>: regenerates the demo's model, descriptor, statistics and frames from code.
+/// <c>demo build</c>: regenerates the demo's model, descriptor, calibration and frames from code.
 /// </summary>
 public static class DemoVerb
 {
@@ -33,7 +33,7 @@ public static class DemoVerb
         }));
 
         var buildOut = new Option<DirectoryInfo>("--out") { Description = "folder for the rebuilt demo", Required = true };
-        var build = new Command("build", "Regenerate the demo model folder (model, descriptor, statistics, frames, held-out set) from code.");
+        var build = new Command("build", "Regenerate the demo model folder (model, descriptor, calibration, frames, held-out set) from code.");
         build.Options.Add(buildOut);
         build.SetAction(p => CliApp.Guard(() =>
         {
@@ -42,6 +42,22 @@ public static class DemoVerb
             return CliApp.ExitOk;
         }));
         command.Subcommands.Add(build);
+
+        var heldOutOut = new Option<DirectoryInfo>("--out") { Description = "folder for the frames and masks", Required = true };
+        var count = new Option<int>("--count") { Description = "how many frames (1..1000)", DefaultValueFactory = _ => 40 };
+        var heldOut = new Command("heldout", "Write the demo's held-out debris frames with ground-truth masks, a dataset for `evaluate`.");
+        heldOut.Options.Add(heldOutOut);
+        heldOut.Options.Add(count);
+        heldOut.SetAction(p => CliApp.Guard(() =>
+        {
+            int n = p.GetValue(count);
+            if (n is < 1 or > 1000)
+                throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options, $"--count must be 1..1000; got {n}.");
+            var files = DemoAssets.WriteHeldOut(p.GetValue(heldOutOut)!.FullName, n);
+            Console.WriteLine($"wrote {files.Count / 2} frames with masks to {p.GetValue(heldOutOut)!.FullName}");
+            return CliApp.ExitOk;
+        }));
+        command.Subcommands.Add(heldOut);
         return command;
     }
 }

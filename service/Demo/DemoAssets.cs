@@ -79,18 +79,26 @@ public static class DemoAssets
             files.Add(path);
         }
 
-        string heldOut = Path.Combine(folder, HeldOutFolder);
-        Directory.CreateDirectory(heldOut);
-        var set = HeldOut(options.HeldOutFrames, options);
+        files.AddRange(WriteHeldOut(Path.Combine(folder, HeldOutFolder), options.HeldOutFrames, options));
+        return new DemoBuildResult(model, calibration, files);
+    }
+
+    /// <summary>Writes the first <paramref name="count"/> held-out debris frames and masks as frame_NNN.png / mask_NNN.png.</summary>
+    public static IReadOnlyList<string> WriteHeldOut(string folder, int count, DemoBuildOptions? options = null)
+    {
+        options ??= new DemoBuildOptions();
+        Directory.CreateDirectory(folder);
+        var files = new List<string>();
+        var set = HeldOut(count, options);
         for (int i = 0; i < set.Count; i++)
         {
-            string framePath = Path.Combine(heldOut, $"frame_{i:D3}.png"), maskPath = Path.Combine(heldOut, $"mask_{i:D3}.png");
+            string framePath = Path.Combine(folder, $"frame_{i:D3}.png"), maskPath = Path.Combine(folder, $"mask_{i:D3}.png");
             DemoPng.SaveRgb(framePath, set[i].Frame.Rgb, options.Width, options.Height);
             DemoPng.SaveGray(maskPath, set[i].AnomalyMask, options.Width, options.Height);
             files.Add(framePath);
             files.Add(maskPath);
         }
-        return new DemoBuildResult(model, calibration, files);
+        return files;
     }
 
     /// <summary>The held-out debris set: the first frames are the ones written under heldout/, any count can be regenerated.</summary>

@@ -18,13 +18,8 @@ public static class BatchTestKit
     /// <summary>Copies the committed demo model (model, descriptor, statistics; not its frames) into a models root.</summary>
     public static void CopyDemoModel(string modelsRoot) => CopyDemoModel(modelsRoot, Model);
 
-    public static void CopyDemoModel(string modelsRoot, string name)
-    {
-        string target = Path.Combine(modelsRoot, name);
-        Directory.CreateDirectory(target);
-        foreach (string f in new[] { DemoAssets.ModelFile, DemoAssets.DescriptorFile, DemoAssets.StatisticsFile })
-            File.Copy(Path.Combine(DemoFixture.CommittedFolder, f), Path.Combine(target, f));
-    }
+    public static void CopyDemoModel(string modelsRoot, string name) =>
+        Evaluation.EvaluationFixtures.CopyDemoModel(Path.Combine(modelsRoot, name));
 
     /// <summary>
     /// Writes <paramref name="count"/> apron frames of 256×128 into <paramref name="folder"/>; the first <paramref name="debris"/>

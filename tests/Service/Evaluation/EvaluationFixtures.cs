@@ -17,12 +17,12 @@ internal static class EvaluationFixtures
         }
     }
 
-    /// <summary>model.onnx, descriptor.json and statistics.json of models/demo, copied so a test may add a profile.</summary>
+    /// <summary>model.onnx, descriptor.json and calibration.json of models/demo, copied so a test may add a profile.</summary>
     public static string CopyDemoModel(string into)
     {
         string source = Path.Combine(RepositoryRoot, "models", "demo");
         Directory.CreateDirectory(into);
-        foreach (string f in new[] { DemoAssets.ModelFile, DemoAssets.DescriptorFile, DemoAssets.StatisticsFile })
+        foreach (string f in new[] { DemoAssets.ModelFile, DemoAssets.DescriptorFile, DemoAssets.CalibrationFile })
             File.Copy(Path.Combine(source, f), Path.Combine(into, f));
         return into;
     }
