@@ -90,6 +90,13 @@ public static class ErrorCodes
         new(ModelErrorCodes.FrameCorrupt, 400, "The frame's image data is corrupt"),
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
+        // Codes raised by evaluation (datasets and metrics).
+        new(Evaluation.DatasetErrorCodes.Missing, 404, "No such dataset folder"),
+        new(Evaluation.DatasetErrorCodes.Empty, 400, "The dataset holds no frame with a mask"),
+        new(Evaluation.DatasetErrorCodes.Invalid, 400, "The dataset's files are missing, unreadable or do not fit together"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.Argument, 400, "An evaluation setting is invalid"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.LabelValue, 400, "A mask holds a value other than 0, 1 or 255"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.OneClass, 422, "The dataset has anomaly pixels of only one kind"),
     ];
 
     private static readonly Dictionary<string, ErrorCode> ByCode = Rows.ToDictionary(r => r.Code, StringComparer.Ordinal);

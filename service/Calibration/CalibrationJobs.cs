@@ -36,16 +36,14 @@ public sealed record CalibrationJob
 public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions,
     FrameDecoder decoder, ILogger<CalibrationJobs> log) : BackgroundService
 {
-    private static readonly JsonSerializerOptions Json = new() { WriteIndented = true };
-    private readonly ConcurrentDictionary<string, CalibrationJob> _jobs = new(StringComparer.Ordinal);
+    private readonly JobFolder<CalibrationJob> _jobs =
+        new(Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations"), j => j.Id);
     private readonly SemaphoreSlim _wake = new(0);
     private readonly ConcurrentQueue<string> _queue = new();
 
-    private string Root => Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations");
+    public IReadOnlyList<CalibrationJob> List() => _jobs.All.OrderByDescending(j => j.CreatedUtc).ToList();
 
-    public IReadOnlyList<CalibrationJob> List() => _jobs.Values.OrderByDescending(j => j.CreatedUtc).ToList();
-
-    public bool TryGet(string id, out CalibrationJob job) => _jobs.TryGetValue(id, out job!);
+    public bool TryGet(string id, out CalibrationJob job) => _jobs.TryGet(id, out job);
 
     /// <summary>Queues a job; <paramref name="folder"/> and <paramref name="labels"/> are relative to the data root.</summary>
     public CalibrationJob Start(CatalogEntry model, string folder, string? labels, int ignoreLabel)
@@ -92,21 +90,12 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
 
     protected override async Task ExecuteAsync(CancellationToken stop)
     {
-        Directory.CreateDirectory(Root);
-        foreach (string file in Directory.EnumerateFiles(Root, "job.json", SearchOption.AllDirectories))
-        {
-            try
-            {
-                var job = JsonSerializer.Deserialize<CalibrationJob>(File.ReadAllBytes(file), Json)!;
-                _jobs[job.Id] = job;
-                if (job.State is "queued" or "running") _queue.Enqueue(job.Id);
-            }
-            catch (JsonException e) { log.LogWarning("Skipping unreadable calibration job {File}: {Reason}", file, e.Message); }
-        }
+        foreach (var job in _jobs.Load((file, reason) => log.LogWarning("Skipping unreadable calibration job {File}: {Reason}", file, reason)))
+            if (job.State is "queued" or "running") _queue.Enqueue(job.Id);
         while (!stop.IsCancellationRequested)
         {
             while (_queue.TryDequeue(out string? id))
-                if (_jobs.TryGetValue(id, out var job)) await Task.Run(() => RunJob(job, stop), CancellationToken.None);
+                if (_jobs.TryGet(id, out var job)) await Task.Run(() => RunJob(job, stop), CancellationToken.None);
             try { await _wake.WaitAsync(stop); } catch (OperationCanceledException) { break; }
         }
     }
@@ -123,7 +112,7 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
             var calibrator = new Calibrator(model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions
             {
                 CheckpointEvery = 10,
-                CheckpointPath = Path.Combine(Root, job.Id, "checkpoint.json"),
+                CheckpointPath = Path.Combine(_jobs.FolderOf(job.Id), "checkpoint.json"),
                 LabelsFolder = job.LabelsFolder is null ? null : SafePath.Resolve(options.Value.DataRoot, job.LabelsFolder),
                 IgnoreLabel = job.IgnoreLabel,
             });
@@ -150,13 +139,9 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         }
     }
 
-    private string ArtifactPath(string id) => Path.Combine(Root, id, CalibrationArtifact.FileName);
+    private string ArtifactPath(string id) => Path.Combine(_jobs.FolderOf(id), CalibrationArtifact.FileName);
 
-    private void Save(CalibrationJob job)
-    {
-        _jobs[job.Id] = job;
-        AtomicFile.Write(Path.Combine(Root, job.Id, "job.json"), s => JsonSerializer.Serialize(s, job, Json));
-    }
+    private void Save(CalibrationJob job) => _jobs.Save(job);
 
     private sealed class Progress(Action<CalibrationProgress> report) : IProgress<CalibrationProgress>
     {

@@ -108,6 +108,8 @@ public static class ServiceHost
         services.AddSingleton<PipelinePool>();
         services.AddSingleton<Calibration.CalibrationJobs>();
         services.AddHostedService(sp => sp.GetRequiredService<Calibration.CalibrationJobs>());
+        services.AddSingleton<Evaluation.EvaluationJobs>();
+        services.AddHostedService(sp => sp.GetRequiredService<Evaluation.EvaluationJobs>());
         // One decoder for the process: its memory pool is reused across requests instead of one pool per request.
         services.AddSingleton(sp => new Strayspot.Service.Frames.FrameDecoder(new Strayspot.Service.Frames.FrameDecoderOptions
         {
@@ -196,6 +198,7 @@ public static class ServiceHost
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
         CalibrationsApi.Map(v1);
+        EvaluationsApi.Map(v1);
         LogitsApi.Map(v1);
         ImageFramesApi.Map(v1);
         BatchesApi.Map(v1);
