@@ -54,7 +54,7 @@ public static class ImageFramesApi
             .ProducesProblem(StatusCodes.Status503ServiceUnavailable);
     }
 
-    private static async Task<Results<Ok<ScoredFrame>, ProblemHttpResult>> Score(
+    private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
         string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
         ArtifactStore store, FrameDecoder decoder, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
@@ -128,6 +128,8 @@ public static class ImageFramesApi
 
         report = report with { Artifacts = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}") };
         LogitsApi.LogFrame(logs, report, entry.Name);
-        return TypedResults.Ok(new ScoredFrame(frameId, req.Metadata, received, report));
+        var answer = new ScoredFrame(frameId, req.Metadata, received, report);
+        if (req.Inline) return new InlineArtifactsResult(answer, folder);
+        return TypedResults.Ok(answer);
     }
 }

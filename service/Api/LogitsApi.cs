@@ -100,7 +100,7 @@ public static class LogitsApi
             .ProducesProblem(StatusCodes.Status503ServiceUnavailable);
     }
 
-    private static async Task<Results<Ok<ScoredFrame>, ProblemHttpResult>> Score(
+    private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
         string model, HttpRequest request, ModelCatalog catalog, ScoringLane lane, PipelinePool pipelines,
         ArtifactStore store, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
@@ -186,7 +186,9 @@ public static class LogitsApi
         var links = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}");
         report = report with { Artifacts = links };
         LogFrame(logs, report, entry.Name);
-        return TypedResults.Ok(new ScoredFrame(frameId, req.Metadata, received, report));
+        var answer = new ScoredFrame(frameId, req.Metadata, received, report);
+        if (req.Inline) return new InlineArtifactsResult(answer, folder);
+        return TypedResults.Ok(answer);
     }
 
     internal static void LogFrame(ILoggerFactory logs, FrameReport r, string model)

@@ -14,7 +14,8 @@ public sealed record LogitsRequest(
     int? FrameWidth,
     int? FrameHeight,
     FrameMetadata Metadata,
-    IReadOnlyList<string> Artifacts);
+    IReadOnlyList<string> Artifacts,
+    bool Inline = false);
 
 /// <summary>
 /// Reads the text fields of a logits upload. Every field is checked and every problem is reported at once;
@@ -29,7 +30,7 @@ public static class LogitsForm
     public static readonly IReadOnlyList<string> Fields =
     [
         "frameWidth", "frameHeight", "method", "threshold", "minArea", "boundarySuppression", "smoothing",
-        "clientFrameId", "captureTime", "rigId", "artifacts",
+        "clientFrameId", "captureTime", "rigId", "artifacts", "response",
     ];
 
     /// <summary>The checked request, or the errors by field name.</summary>
@@ -105,13 +106,20 @@ public static class LogitsForm
                 Fail("artifacts", $"Artifact(s) {string.Join(", ", unknown)} cannot be made here; choose from {string.Join(", ", allowed.Order())}, or 'none'.");
         }
 
+        bool inline = false;
+        if (Single("response") is string response)
+        {
+            if (response is "inline") inline = true;
+            else if (response is not "links") Fail("response", $"response '{response}' must be 'links' (artifacts as URLs, the default) or 'inline' (one multipart/mixed answer).");
+        }
+
         if (errors.Count == 0)
         {
             try { options.Validate(); }
             catch (Strayspot.Scoring.Logits.ScoringInputException e) { Fail("options", e.Message); }
         }
         if (errors.Count > 0) return (null, errors);
-        return (new LogitsRequest(options, width, height, new FrameMetadata(clientFrameId, captureTime, rigId), artifacts), errors);
+        return (new LogitsRequest(options, width, height, new FrameMetadata(clientFrameId, captureTime, rigId), artifacts, inline), errors);
     }
 
     public static ScoreMethod? ParseMethod(string s) => s.ToLowerInvariant() switch

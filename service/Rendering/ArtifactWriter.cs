@@ -17,9 +17,10 @@ public static class ArtifactWriter
         ["heat"] = "heat.png",
         ["overlay"] = "overlay.png",
         ["score"] = "score.npy",
+        ["score16"] = "score16.png",
     };
 
-    public static readonly IReadOnlyList<string> All = ["classes", "mask", "heat", "overlay", "score"];
+    public static readonly IReadOnlyList<string> All = ["classes", "mask", "heat", "overlay", "score", "score16"];
 
     /// <summary>
     /// Writes the named artifacts (each atomically) and returns artifact name → file name for those written.
@@ -48,6 +49,10 @@ public static class ArtifactWriter
                 case "overlay":
                     if (frame is null) continue;
                     using (var img = ArtifactRenderer.Overlay(frame, s.AnomalyScore, s.Mask, low, high)) Save(img, path);
+                    break;
+                case "score16":
+                    // Its scale is the report's scoreRange: value v stands for min + v·(max − min)/65535.
+                    using (var img = ArtifactRenderer.Score16(s.AnomalyScore, s.Width, s.Height, out _, out _)) Save(img, path);
                     break;
                 case "score":
                     var scores = s.AnomalyScore.ToArray();

@@ -18,6 +18,8 @@ public sealed record FrameReport
     [JsonPropertyName("parameters")] public ScoringOptions Parameters { get; init; } = new();
     [JsonPropertyName("threshold")] public float Threshold { get; init; }
     [JsonPropertyName("frameScore")] public float FrameScore { get; init; }
+    /// <summary>Lowest and highest anomaly score in the frame; also the scale of the 16-bit score PNG.</summary>
+    [JsonPropertyName("scoreRange")] public ScoreRange? ScoreRange { get; init; }
     [JsonPropertyName("flaggedPixels")] public long FlaggedPixels { get; init; }
     [JsonPropertyName("anomalousShare")] public double AnomalousShare { get; init; }
     [JsonPropertyName("regions")] public IReadOnlyList<RegionReport> Regions { get; init; } = [];
@@ -41,6 +43,7 @@ public sealed record FrameReport
             Parameters = options,
             Threshold = options.Threshold,
             FrameScore = s.FrameScore,
+            ScoreRange = new ScoreRange(System.Numerics.Tensors.TensorPrimitives.Min(s.AnomalyScore), System.Numerics.Tensors.TensorPrimitives.Max(s.AnomalyScore)),
             FlaggedPixels = s.FlaggedPixels,
             AnomalousShare = s.AnomalousShare,
             Regions = regions,
@@ -64,6 +67,9 @@ public sealed record FrameReport
         NumberHandling = JsonNumberHandling.AllowNamedFloatingPointLiterals,
     };
 }
+
+/// <summary>A 16-bit score PNG value v stands for Min + v·(Max − Min)/65535.</summary>
+public sealed record ScoreRange([property: JsonPropertyName("min")] float Min, [property: JsonPropertyName("max")] float Max);
 
 public sealed record SizeReport([property: JsonPropertyName("width")] int Width, [property: JsonPropertyName("height")] int Height);
 

@@ -90,6 +90,48 @@ public class LogitsApiTests
     }
 
     [Fact]
+    public async Task Inline_answer_is_one_multipart_with_the_report_and_a_16_bit_score_png_scaled_by_its_range()
+    {
+        await using var s = await TestService.StartAsync(m => TestService.WriteModel(m, "apron-a"));
+        var r = await s.Client.PostAsync("/v1/models/apron-a/logits", Upload(NpyBytes(ApronLogits(), [C, H, W]),
+            [.. Plain, ("artifacts", "score,score16"), ("response", "inline")]));
+        Assert.Equal(HttpStatusCode.OK, r.StatusCode);
+        Assert.Equal("multipart/mixed", r.Content.Headers.ContentType?.MediaType);
+        string boundary = r.Content.Headers.ContentType!.Parameters.Single(p => p.Name == "boundary").Value!.Trim('"');
+        var reader = new Microsoft.AspNetCore.WebUtilities.MultipartReader(boundary, await r.Content.ReadAsStreamAsync());
+        var parts = new List<(string? Type, string? Disposition, byte[] Body)>();
+        while (await reader.ReadNextSectionAsync() is { } section)
+        {
+            using var ms = new MemoryStream();
+            await section.Body.CopyToAsync(ms);
+            parts.Add((section.ContentType, section.ContentDisposition, ms.ToArray()));
+        }
+        Assert.Equal(3, parts.Count);
+        Assert.Equal("application/json", parts[0].Type);
+        using var answer = JsonDocument.Parse(parts[0].Body);
+        var range = answer.RootElement.GetProperty("report").GetProperty("scoreRange");
+        float min = range.GetProperty("min").GetSingle(), max = range.GetProperty("max").GetSingle();
+        Assert.Equal((-5f, 5f), (min, max));
+
+        var score = Npy.ReadFloat32(new MemoryStream(parts.Single(p => p.Disposition?.Contains("score.npy") == true).Body));
+        using var png = SixLabors.ImageSharp.Image.Load<SixLabors.ImageSharp.PixelFormats.L16>(parts.Single(p => p.Disposition?.Contains("score16.png") == true).Body);
+        Assert.Equal((W, H), (png.Width, png.Height));
+        var values = new SixLabors.ImageSharp.PixelFormats.L16[W * H];
+        png.CopyPixelDataTo(values);
+        float step = (max - min) / 65535f;
+        for (int i = 0; i < values.Length; i++)
+            Assert.InRange(min + values[i].PackedValue * step, score.Data[i] - step, score.Data[i] + step);
+    }
+
+    [Fact]
+    public async Task An_unknown_response_kind_is_a_validation_problem()
+    {
+        await using var s = await TestService.StartAsync(m => TestService.WriteModel(m, "apron-a"));
+        var r = await s.Client.PostAsync("/v1/models/apron-a/logits", Upload(NpyBytes(ApronLogits(), [C, H, W]), [.. Plain, ("response", "zip")]));
+        await TestService.ProblemAsync(r, 400, "validation-failed");
+    }
+
+    [Fact]
     public async Task The_endpoint_agrees_with_the_pipeline_run_directly()
     {
         await using var s = await TestService.StartAsync(m => TestService.WriteModel(m, "apron-a"));
