@@ -1,5 +1,7 @@
 using System.Text.Json.Serialization;
 using Microsoft.AspNetCore.Http.HttpResults;
+using Microsoft.Extensions.Options;
+using Strayspot.Service.Batches;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Hosting;
 
@@ -21,8 +23,11 @@ public static class CalibrationsApi
             .WithSummary("Starts measuring the model's per-class max-logit statistics over a folder of ordinary frames.")
             .RequireAuthorization(ApiPolicies.Admin)
             .Produces<CalibrationJob>(StatusCodes.Status202Accepted)
+            .Accepts<CalibrationRequest>("application/json", "multipart/form-data")
             .ProducesProblem(StatusCodes.Status400BadRequest)
-            .ProducesProblem(StatusCodes.Status404NotFound);
+            .ProducesProblem(StatusCodes.Status404NotFound)
+            .ProducesProblem(StatusCodes.Status413PayloadTooLarge)
+            .DisableAntiforgery();
         v1.MapGet("/calibrations", (CalibrationJobs jobs) => TypedResults.Ok(jobs.List())).WithTags("Calibrations");
         v1.MapGet("/calibrations/{id}", Results<Ok<CalibrationJob>, ProblemHttpResult> (string id, CalibrationJobs jobs) =>
                 jobs.TryGet(id, out var job) ? TypedResults.Ok(job) : JobNotFound(id))
@@ -39,16 +44,53 @@ public static class CalibrationsApi
             .RequireAuthorization(ApiPolicies.Admin);
     }
 
-    private static Results<Accepted<CalibrationJob>, ProblemHttpResult> Start(string model, CalibrationRequest request,
-        ModelCatalog catalog, CalibrationJobs jobs)
+    /// <summary>JSON names a folder under the data root; multipart uploads a .zip or .tar of frames as part 'file'.</summary>
+    private static async Task<Results<Accepted<CalibrationJob>, ProblemHttpResult>> Start(string model, HttpRequest http,
+        ModelCatalog catalog, CalibrationJobs jobs, IOptions<ServiceOptions> options, IOptions<BatchOptions> archives, CancellationToken ct)
     {
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
-        if (string.IsNullOrWhiteSpace(request.Folder))
+        CalibrationRequest? request;
+        if (http.HasJsonContentType())
+            request = await http.ReadFromJsonAsync<CalibrationRequest>(ct);
+        else if (http.HasFormContentType)
+        {
+            var form = await http.ReadFormAsync(ct);
+            if (form.Files.GetFile("file") is not { } file)
+                return ApiProblems.Validation(new Dictionary<string, string[]> { ["file"] = ["Upload the frames as a .zip or .tar in the part 'file'."] });
+            request = new CalibrationRequest(await Unpack(file, options.Value, archives.Value, ct));
+        }
+        else
+            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType, "Send application/json naming a folder, or multipart/form-data with an archive.");
+        if (string.IsNullOrWhiteSpace(request?.Folder))
             return ApiProblems.Validation(new Dictionary<string, string[]> { ["folder"] = ["A frames folder under the data root is required."] });
         if (request.IgnoreLabel is < 0 or > 65535)
             return ApiProblems.Validation(new Dictionary<string, string[]> { ["ignoreLabel"] = ["The ignore label must be 0..65535."] });
         var job = jobs.Start(entry, request.Folder, request.LabelsFolder, request.IgnoreLabel ?? 255);
         return TypedResults.Accepted($"/v1/calibrations/{job.Id}", job);
+    }
+
+    /// <summary>Extracts an uploaded archive (checked for escapes and size bombs) into one flat folder under the data root.</summary>
+    private static async Task<string> Unpack(IFormFile file, ServiceOptions service, BatchOptions limits, CancellationToken ct)
+    {
+        string relative = Path.Combine(".strayspot", "calibration-uploads", Guid.NewGuid().ToString("N"));
+        string folder = Path.Combine(Path.GetFullPath(service.DataRoot), relative);
+        string staging = folder + ".staging";
+        string upload = folder + ".upload";
+        Directory.CreateDirectory(folder);
+        try
+        {
+            await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
+            var entries = BatchArchive.Extract(upload, file.FileName, staging, new ArchiveLimits(limits.MaxArchiveEntries, limits.MaxArchiveBytes));
+            // The calibrator reads one folder: frames in subfolders are brought up, their path kept in the name.
+            foreach (string rel in entries)
+                File.Move(Path.Combine(staging, rel), Path.Combine(folder, rel.Replace('/', '_').Replace('\\', '_')));
+            return relative;
+        }
+        finally
+        {
+            File.Delete(upload);
+            if (Directory.Exists(staging)) Directory.Delete(staging, recursive: true);
+        }
     }
 
     private static ProblemHttpResult JobNotFound(string id) =>

@@ -20,6 +20,7 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
             ScoringInputException e => (e.Code, e.Message),
             Strayspot.Service.Models.ModelException e => (e.Code, e.Message),
             UnsafePathException e => (ErrorCodes.PathOutsideData, e.Message),
+            Batches.BatchException e => (e.Code, e.Message),
             FrameTimeoutException e => (ErrorCodes.Timeout, e.Message),
             QueueFullException e => (ErrorCodes.QueueFull, e.Message),
             BadHttpRequestException e => (ErrorCodes.ForStatus(e.StatusCode), e.Message),

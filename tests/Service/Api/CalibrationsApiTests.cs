@@ -57,6 +57,37 @@ public class CalibrationsApiTests
         Assert.Contains("calibration.json", details.ToString());
     }
 
+    [Fact]
+    public async Task A_calibration_can_start_from_an_uploaded_zip_and_an_escaping_entry_is_refused()
+    {
+        await using var s = await TestService.StartAsync(models => BundledDemo.Extract(Path.Combine(models, "demo"), Path.Combine(models, "..", "demo-frames")));
+        await WaitReady(s);
+        var zip = new MemoryStream();
+        using (var archive = new System.IO.Compression.ZipArchive(zip, System.IO.Compression.ZipArchiveMode.Create, leaveOpen: true))
+            foreach (string f in Directory.GetFiles(Path.Combine(s.Root, "demo-frames")).Where(f => !f.Contains("debris")))
+                System.IO.Compression.ZipFileExtensions.CreateEntryFromFile(archive, f, "site-a/" + Path.GetFileName(f));
+        var start = await s.Client.PostAsync("/v1/models/demo/calibrations", Upload(zip.ToArray(), "frames.zip"));
+        Assert.Equal(HttpStatusCode.Accepted, start.StatusCode);
+        string id = (await start.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        var done = await WaitState(s, id, "done", "failed");
+        Assert.Equal("done", done.GetProperty("state").GetString());
+        Assert.Equal(2, done.GetProperty("framesTotal").GetInt32());
+
+        var evil = new MemoryStream();
+        using (var archive = new System.IO.Compression.ZipArchive(evil, System.IO.Compression.ZipArchiveMode.Create, leaveOpen: true))
+            archive.CreateEntry("../escape.png").Open().Dispose();
+        await TestService.ProblemAsync(await s.Client.PostAsync("/v1/models/demo/calibrations", Upload(evil.ToArray(), "evil.zip")), 400, "archive-escape");
+    }
+
+    private static MultipartFormDataContent Upload(byte[] bytes, string name)
+    {
+        var form = new MultipartFormDataContent();
+        var part = new ByteArrayContent(bytes);
+        part.Headers.ContentType = new("application/zip");
+        form.Add(part, "file", name);
+        return form;
+    }
+
     [Theory]
     [InlineData("../outside", "path-outside-data", 400)]
     [InlineData("missing", "frame-format", 415)]
