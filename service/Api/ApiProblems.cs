@@ -22,3 +22,26 @@ public static class ApiProblems
     public static ProblemHttpResult ModelNotFound(string model) =>
         Create(ErrorCodes.ModelNotFound, $"No model named '{model}' is installed; GET /v1/models lists the installed ones.");
 }
+
+/// <summary>Reading a scoring upload's multipart form, with the same refusals on every endpoint.</summary>
+public static class UploadForm
+{
+    /// <summary>The form, or the problem to answer: not multipart (415), over a limit (413) or malformed (400).</summary>
+    public static async Task<(IFormCollection? Form, ProblemHttpResult? Problem)> ReadAsync(HttpRequest request, string filePart,
+        string what, CancellationToken ct)
+    {
+        if (!request.HasFormContentType)
+            return (null, ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                $"Send multipart/form-data with the {what} as file part '{filePart}'; got '{request.ContentType ?? "no content type"}'."));
+        try
+        {
+            return (await request.ReadFormAsync(ct), null);
+        }
+        catch (InvalidDataException e)
+        {
+            // The multipart reader's own limits (body length, section count) and malformed boundaries land here.
+            bool tooLarge = e.Message.Contains("limit", StringComparison.OrdinalIgnoreCase);
+            return (null, ApiProblems.Create(tooLarge ? ErrorCodes.PayloadTooLarge : ErrorCodes.BadRequest, $"The form could not be read: {e.Message}"));
+        }
+    }
+}

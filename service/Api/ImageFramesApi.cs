@@ -68,20 +68,8 @@ public static class ImageFramesApi
         var session = sessions.Get(entry);
         if (session is null)
             return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
-        if (!request.HasFormContentType)
-            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
-                $"Send multipart/form-data with the image as file part '{FramePart}'; got '{request.ContentType ?? "no content type"}'.");
-
-        IFormCollection form;
-        try
-        {
-            form = await request.ReadFormAsync(ct);
-        }
-        catch (InvalidDataException e)
-        {
-            bool tooLarge = e.Message.Contains("limit", StringComparison.OrdinalIgnoreCase);
-            return ApiProblems.Create(tooLarge ? ErrorCodes.PayloadTooLarge : ErrorCodes.BadRequest, $"The form could not be read: {e.Message}");
-        }
+        var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "image", ct);
+        if (form is null) return problem!;
         var (req, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
         var file = form.Files.GetFile(FramePart);
         if (file is null && !errors.ContainsKey(FramePart))

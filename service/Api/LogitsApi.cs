@@ -108,21 +108,8 @@ public static class LogitsApi
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
             return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
-        if (!request.HasFormContentType)
-            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
-                $"Send multipart/form-data with the logits as file part '{LogitsForm.LogitsPart}'; got '{request.ContentType ?? "no content type"}'.");
-
-        IFormCollection form;
-        try
-        {
-            form = await request.ReadFormAsync(ct);
-        }
-        catch (InvalidDataException e)
-        {
-            // The multipart reader's own limits (body length, section count) and malformed boundaries land here.
-            bool tooLarge = e.Message.Contains("limit", StringComparison.OrdinalIgnoreCase);
-            return ApiProblems.Create(tooLarge ? ErrorCodes.PayloadTooLarge : ErrorCodes.BadRequest, $"The form could not be read: {e.Message}");
-        }
+        var (form, problem) = await UploadForm.ReadAsync(request, LogitsForm.LogitsPart, "logits", ct);
+        if (form is null) return problem!;
 
         var (parsed, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, Available);
         var file = form.Files.GetFile(LogitsForm.LogitsPart);
