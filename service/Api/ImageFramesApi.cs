@@ -56,7 +56,7 @@ public static class ImageFramesApi
 
     private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
         string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
-        ArtifactStore store, FrameDecoder decoder, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+        ArtifactStore store, FrameDecoder decoder, DriftWatch drift, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
@@ -101,6 +101,7 @@ public static class ImageFramesApi
             try
             {
                 var scored = FrameScorer.Run(session, worker.Preprocessor, ref worker.Crop, pipeline, frame, out _, token);
+                drift.Observe(entry, scored.MaxLogit, scored.ClassIndex);
                 token.ThrowIfCancellationRequested();
                 if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
                 return FrameReport.From(scored, req.Options, classNames, frameId,

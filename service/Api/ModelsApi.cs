@@ -48,6 +48,14 @@ public static class ModelsApi
             .WithSummary("Describes one model: descriptor, class statistics summary and scoring profile.")
             .ProducesProblem(StatusCodes.Status404NotFound);
 
+        models.MapGet("/{model}/drift", Results<Ok<Strayspot.Scoring.Drift.DriftReport>, ProblemHttpResult> (string model, ModelCatalog catalog, DriftWatch drift) =>
+            {
+                if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
+                return drift.Report(entry) is { } report
+                    ? TypedResults.Ok(report)
+                    : ApiProblems.Create(ErrorCodes.StatisticsMissing, $"Model '{model}' has no calibration to compare production with.");
+            })
+            .WithSummary("How far the max logit of scored frames has moved from the calibration, per class and overall (in calibrated standard deviations).");
         models.MapPut("/{model}/profile", PutProfile)
             .RequireAuthorization(ApiPolicies.Admin)
             .Accepts<ScoringProfile>("application/json")

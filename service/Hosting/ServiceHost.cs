@@ -106,6 +106,7 @@ public static class ServiceHost
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
         services.AddSingleton<PipelinePool>();
+        services.AddSingleton<DriftWatch>();
         services.AddSingleton<Calibration.CalibrationJobs>();
         services.AddHostedService(sp => sp.GetRequiredService<Calibration.CalibrationJobs>());
         services.AddSingleton<Evaluation.EvaluationJobs>();

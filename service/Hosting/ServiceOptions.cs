@@ -32,6 +32,10 @@ public sealed class ServiceOptions
     public List<ApiKeyOptions> ApiKeys { get; set; } = new();
     /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = one per core.</summary>
     public int IntraOpThreads { get; set; }
+    /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
+    public double DriftHalfLifeFrames { get; set; } = 500;
+    /// <summary>Overall drift, in calibrated standard deviations, that raises the drift warning (our default; tune per fleet).</summary>
+    public double DriftWarningLevel { get; set; } = 1.0;
 
     public string ResolvedArtifactsRoot => ArtifactsRoot ?? Path.Combine(DataRoot, "artifacts");
 }
