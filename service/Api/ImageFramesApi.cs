@@ -56,7 +56,7 @@ public static class ImageFramesApi
 
     private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
         string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
-        ArtifactStore store, FrameDecoder decoder, DriftWatch drift, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+        ArtifactStore store, FrameDecoder decoder, DriftWatch drift, ServiceMetrics metrics, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
@@ -93,27 +93,44 @@ public static class ImageFramesApi
         string workerKey = entry.Name + "|" + entry.Sha256;
         var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
 
-        var report = await lane.RunAsync(token =>
+        FrameReport report;
+        try
         {
-            using var frame = decoder.Decode(new MemoryStream(bytes, 0, bytes.Length, writable: false, publiclyVisible: true), FramePart);
-            var worker = Workers.Rent(workerKey, () => new FrameWorker(descriptor.Input));
-            var pipeline = pipelines.Rent(pipelineKey, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
-            try
+            report = await lane.RunAsync(token =>
             {
-                var scored = FrameScorer.Run(session, worker.Preprocessor, ref worker.Crop, pipeline, frame, out _, token);
-                drift.Observe(entry, scored.MaxLogit, scored.ClassIndex);
-                token.ThrowIfCancellationRequested();
-                if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
-                return FrameReport.From(scored, req.Options, classNames, frameId,
-                    new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
-                    new LogitsReport(scored.ClassCount, scored.LogitsHeight, scored.LogitsWidth));
-            }
-            finally
-            {
-                pipelines.Return(pipelineKey, pipeline);
-                Workers.Return(workerKey, worker);
-            }
-        }, ct);
+                long t0 = System.Diagnostics.Stopwatch.GetTimestamp();
+                using var frame = decoder.Decode(new MemoryStream(bytes, 0, bytes.Length, writable: false, publiclyVisible: true), FramePart);
+                metrics.Stage("decode", System.Diagnostics.Stopwatch.GetElapsedTime(t0));
+                var worker = Workers.Rent(workerKey, () => new FrameWorker(descriptor.Input));
+                var pipeline = pipelines.Rent(pipelineKey, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
+                try
+                {
+                    var scored = FrameScorer.Run(session, worker.Preprocessor, ref worker.Crop, pipeline, frame, out var timings, token);
+                    drift.Observe(entry, scored.MaxLogit, scored.ClassIndex);
+                    token.ThrowIfCancellationRequested();
+                    long t1 = System.Diagnostics.Stopwatch.GetTimestamp();
+                    if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
+                    metrics.Stage("preprocess", timings.Preprocess);
+                    metrics.Stage("inference", timings.Inference);
+                    metrics.Stage("scoring", timings.Scoring);
+                    metrics.Stage("encode", System.Diagnostics.Stopwatch.GetElapsedTime(t1));
+                    metrics.FrameScored(entry.Name, req.Options.Method.ToString().ToLowerInvariant(), scored.Regions.Regions.Count);
+                    return FrameReport.From(scored, req.Options, classNames, frameId,
+                        new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
+                        new LogitsReport(scored.ClassCount, scored.LogitsHeight, scored.LogitsWidth));
+                }
+                finally
+                {
+                    pipelines.Return(pipelineKey, pipeline);
+                    Workers.Return(workerKey, worker);
+                }
+            }, ct);
+        }
+        catch (QueueFullException)
+        {
+            metrics.Refused();
+            throw;
+        }
 
         report = report with { Artifacts = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}") };
         LogitsApi.LogFrame(logs, report, entry.Name);

@@ -26,6 +26,13 @@ public sealed class DriftWatch(Microsoft.Extensions.Options.IOptions<ServiceOpti
         lock (drift) return drift.Report();
     }
 
+    /// <summary>The report of a model that has seen frames under its current calibration, else null.</summary>
+    public DriftReport? Peek(CatalogEntry model)
+    {
+        if (!_models.TryGetValue(model.Name, out var have) || have.Key != model.Sha256 + "|" + model.LoadedUtc.Ticks) return null;
+        lock (have.Drift) return have.Drift.Report();
+    }
+
     private MaxLogitDrift? For(CatalogEntry model)
     {
         if (model.Statistics is null) return null;

@@ -1,3 +1,4 @@
+using OpenTelemetry.Metrics;
 using System.Diagnostics;
 using Microsoft.AspNetCore.Authentication;
 using Microsoft.AspNetCore.Authorization;
@@ -107,6 +108,10 @@ public static class ServiceHost
         services.AddSingleton<ScoringLane>();
         services.AddSingleton<PipelinePool>();
         services.AddSingleton<DriftWatch>();
+        services.AddSingleton<ServiceMetrics>();
+        services.AddOpenTelemetry().WithMetrics(m => m
+            .AddMeter(ServiceMetrics.MeterName, "Microsoft.AspNetCore.Hosting", "Microsoft.AspNetCore.Server.Kestrel", "System.Runtime")
+            .AddPrometheusExporter());
         services.AddSingleton<Calibration.CalibrationJobs>();
         services.AddHostedService(sp => sp.GetRequiredService<Calibration.CalibrationJobs>());
         services.AddSingleton<Evaluation.EvaluationJobs>();
@@ -195,6 +200,8 @@ public static class ServiceHost
         app.UseAuthorization();
 
         HealthApi.Map(app);
+        // Scraped like the health endpoints: no key, so keep the port on a trusted network.
+        app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);
