@@ -16,7 +16,7 @@ public sealed class ServiceMetrics : IDisposable
     private readonly Counter<long> _refused;
     private readonly Histogram<double> _stage;
 
-    public ServiceMetrics(IMeterFactory meters, FrameGate gate, DriftWatch drift, ModelCatalog catalog)
+    public ServiceMetrics(IMeterFactory meters, FrameGate gate, DriftWatch drift, ModelCatalog catalog, Batches.BatchService batches)
     {
         _meter = meters.Create(MeterName);
         _frames = _meter.CreateCounter<long>("strayspot.frames.scored", "{frame}", "Frames scored, by model and method.");
@@ -26,6 +26,8 @@ public sealed class ServiceMetrics : IDisposable
             advice: new InstrumentAdvice<double> { HistogramBucketBoundaries = [0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5] });
         _meter.CreateObservableGauge("strayspot.queue.waiting", () => gate.Queued, "{frame}", "Frames waiting for a scoring slot.");
         _meter.CreateObservableGauge("strayspot.queue.busy", () => gate.Busy, "{frame}", "Frames being scored now.");
+        _meter.CreateObservableGauge("strayspot.batch.frames", () => BatchFrames(batches), "{frame}",
+            "Frames of queued and running batches, by state (done, failed, pending).");
         _meter.CreateObservableGauge("strayspot.drift.overall", () => DriftOf(catalog, drift), "{std}",
             "Calibration drift per model: pixel-weighted RMS shift of the max logit, in calibrated standard deviations.");
     }
@@ -46,6 +48,21 @@ public sealed class ServiceMetrics : IDisposable
         foreach (var model in catalog.Models)
             if (drift.Peek(model) is { } report)
                 yield return new Measurement<double>(report.Overall, new KeyValuePair<string, object?>("model", model.Name));
+    }
+
+    private static IEnumerable<Measurement<long>> BatchFrames(Batches.BatchService batches)
+    {
+        long done = 0, failed = 0, total = 0;
+        foreach (string state in new[] { "queued", "running" })
+            foreach (var b in batches.Store.List(limit: 1000, state: state))
+            {
+                done += b.DoneCount;
+                failed += b.FailedCount;
+                total += b.FrameCount;
+            }
+        yield return new Measurement<long>(done, new KeyValuePair<string, object?>("state", "done"));
+        yield return new Measurement<long>(failed, new KeyValuePair<string, object?>("state", "failed"));
+        yield return new Measurement<long>(total - done - failed, new KeyValuePair<string, object?>("state", "pending"));
     }
 
     public void Dispose() => _meter.Dispose();

@@ -6,6 +6,11 @@ using Strayspot.Service.Demo;
 namespace Strayspot.Tests.Service.Api;
 
 /// <summary>The Prometheus scrape after known traffic: our counters, stage histograms, drift gauge and ASP.NET Core's own.</summary>
+/// <remarks>
+/// Alone, because a meter provider listens to every meter of its name in the process: another test's host scoring
+/// frames at the same time would show up in this scrape.
+/// </remarks>
+[Collection(nameof(Strayspot.Tests.Service.Hosting.ProcessEnvironment))]
 public class MetricsTests
 {
     [Fact]
@@ -42,6 +47,7 @@ public class MetricsTests
             Assert.EndsWith(" 2", Line(text, "strayspot_stage_duration_seconds_count", $"stage=\"{stage}\""));
         Assert.NotNull(Line(text, "strayspot_drift_overall", "model=\"demo\""));
         Assert.Contains("strayspot_queue_waiting", text);
+        Assert.NotNull(Line(text, "strayspot_batch_frames", "state=\"pending\""));
         Assert.Contains("http_server_request_duration_seconds", text);
     }
 }
