@@ -10,6 +10,8 @@ using Strayspot.Service.Hosting;
 namespace Strayspot.Tests.Service.Hosting;
 
 /// <summary>The real Kestrel server on 127.0.0.1 under many concurrent clients, with the bundled demo model.</summary>
+/// <remarks>Alone, because it bounds the process's working set, which tests running beside it would inflate.</remarks>
+[Collection(nameof(ProcessEnvironment))]
 public sealed class KestrelLoadTests(Xunit.Abstractions.ITestOutputHelper output)
 {
     [Fact]
