@@ -56,7 +56,9 @@ public class ReloadUnderTrafficTests
             versions.Add($"traffic-{i}");
             Assert.Equal(HttpStatusCode.OK, (await s.Client.PostAsync("/v1/models/reload", null)).StatusCode);
         }
-        await Task.Delay(300);
+        // Keep the traffic up until the last version has scored a frame (or 20 s pass, and the assertion below says so).
+        var deadline = DateTime.UtcNow.AddSeconds(20);
+        while (!seen.Any(r => r.Version == "traffic-3") && DateTime.UtcNow < deadline) await Task.Delay(50);
         stop.Cancel();
         await Task.WhenAll(clients);
 
