@@ -15,6 +15,15 @@ public static class DemoPng
         image.SaveAsPng(path, Encoder);
     }
 
+    /// <summary>An apron frame as PNG bytes, e.g. to post to the service.</summary>
+    public static byte[] Encode(ApronFrame frame)
+    {
+        using var image = Image.LoadPixelData<Rgb24>(frame.Rgb, frame.Width, frame.Height);
+        var stream = new MemoryStream();
+        image.SaveAsPng(stream, Encoder);
+        return stream.ToArray();
+    }
+
     public static void SaveGray(string path, ReadOnlySpan<byte> values, int width, int height)
     {
         using var image = Image.LoadPixelData<L8>(values, width, height);

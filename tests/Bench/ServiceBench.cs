@@ -23,7 +23,7 @@ public static class ServiceBench
         {
             string models = Path.Combine(root, "models");
             BundledDemo.Extract(Path.Combine(models, "demo"), Path.Combine(root, "frames"));
-            var frames = Enumerable.Range(0, 4).Select(i => Png(new ApronSceneGenerator(1024, 512).Render(70 + i))).ToArray();
+            var frames = Enumerable.Range(0, 4).Select(i => DemoPng.Encode(new ApronSceneGenerator(1024, 512).Render(70 + i))).ToArray();
 
             // In process: decode + the whole frame path, as the endpoint does, without HTTP.
             using var bundle = ModelBundle.Load(Path.Combine(models, "demo"));
@@ -114,13 +114,6 @@ public static class ServiceBench
         return response.StatusCode;
     }
 
-    private static byte[] Png(ApronFrame f)
-    {
-        using var image = Image.LoadPixelData<Rgb24>(f.Rgb, f.Width, f.Height);
-        var stream = new MemoryStream();
-        image.SaveAsPng(stream);
-        return stream.ToArray();
-    }
 
     private static int FreePort()
     {

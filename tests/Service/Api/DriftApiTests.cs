@@ -13,11 +13,8 @@ public class DriftApiTests(Xunit.Abstractions.ITestOutputHelper output)
     private static byte[] Png(int seed, double brightness)
     {
         var f = new ApronSceneGenerator(1024, 512).Render(seed);
-        var rgb = f.Rgb.Select(b => (byte)Math.Clamp(b * brightness, 0, 255)).ToArray();
-        using var image = Image.LoadPixelData<Rgb24>(rgb, f.Width, f.Height);
-        var stream = new MemoryStream();
-        image.SaveAsPng(stream);
-        return stream.ToArray();
+        for (int i = 0; i < f.Rgb.Length; i++) f.Rgb[i] = (byte)Math.Clamp(f.Rgb[i] * brightness, 0, 255);
+        return DemoPng.Encode(f);
     }
 
     private static async Task Post(HttpClient client, byte[] png)

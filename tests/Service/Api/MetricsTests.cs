@@ -20,13 +20,11 @@ public class MetricsTests
         var until = DateTime.UtcNow.AddSeconds(60);
         while ((await s.Client.GetAsync("/readyz")).StatusCode != HttpStatusCode.OK) { Assert.True(DateTime.UtcNow < until); await Task.Delay(100); }
         var f = new ApronSceneGenerator(256, 128).Render(9);
-        using var image = Image.LoadPixelData<Rgb24>(f.Rgb, f.Width, f.Height);
-        var png = new MemoryStream();
-        image.SaveAsPng(png);
+        var png = DemoPng.Encode(f);
         for (int i = 0; i < 2; i++)
         {
             using var form = new MultipartFormDataContent();
-            var part = new ByteArrayContent(png.ToArray());
+            var part = new ByteArrayContent(png);
             part.Headers.ContentType = new("image/png");
             form.Add(part, "frame", "f.png");
             form.Add(new StringContent("mask"), "artifacts");

@@ -22,9 +22,7 @@ public class ReloadUnderTrafficTests
         string sha = (await s.Client.GetFromJsonAsync<JsonElement>("/v1/models/demo")).ToString();
 
         var f = new ApronSceneGenerator(256, 128).Render(21);
-        using var image = Image.LoadPixelData<Rgb24>(f.Rgb, f.Width, f.Height);
-        var png = new MemoryStream();
-        image.SaveAsPng(png);
+        var png = DemoPng.Encode(f);
 
         var failures = new ConcurrentBag<string>();
         var seen = new ConcurrentBag<(string Sha, string Version)>();
@@ -34,7 +32,7 @@ public class ReloadUnderTrafficTests
             while (!stop.IsCancellationRequested)
             {
                 using var form = new MultipartFormDataContent();
-                var part = new ByteArrayContent(png.ToArray());
+                var part = new ByteArrayContent(png);
                 part.Headers.ContentType = new("image/png");
                 form.Add(part, "frame", "f.png");
                 form.Add(new StringContent("none"), "artifacts");

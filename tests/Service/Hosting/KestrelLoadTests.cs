@@ -21,7 +21,7 @@ public sealed class KestrelLoadTests(Xunit.Abstractions.ITestOutputHelper output
         try
         {
             BundledDemo.Extract(Path.Combine(root, "models", "demo"), Path.Combine(root, "frames"));
-            var frames = Enumerable.Range(0, 4).Select(i => Png(new ApronSceneGenerator(256, 128).Render(40 + i))).ToArray();
+            var frames = Enumerable.Range(0, 4).Select(i => DemoPng.Encode(new ApronSceneGenerator(256, 128).Render(40 + i))).ToArray();
             int port = FreePort();
             await using var app = ServiceHost.Build(new ServiceHostSettings
             {
@@ -78,13 +78,6 @@ public sealed class KestrelLoadTests(Xunit.Abstractions.ITestOutputHelper output
         }
     }
 
-    private static byte[] Png(ApronFrame f)
-    {
-        using var image = Image.LoadPixelData<Rgb24>(f.Rgb, f.Width, f.Height);
-        var stream = new MemoryStream();
-        image.SaveAsPng(stream);
-        return stream.ToArray();
-    }
 
     private static int FreePort()
     {
