@@ -64,17 +64,27 @@ public static class BatchesApi
             .WithSummary("Every frame of a batch: state, score, when it was scored and how many times scoring started.")
             .ProducesProblem(404);
 
-        group.MapGet("/{id}/manifest", Results<PhysicalFileHttpResult, ProblemHttpResult> (string id, BatchService batches) =>
+        group.MapGet("/{id}/manifest", IResult (string id, string? verdict, BatchService batches) =>
             {
                 if (Find(batches, id) is not { } b) return NotFound(id);
-                // Written on demand too, so an unfinished batch's manifest shows the frames done so far.
-                string path = Manifest.Write(batches.BatchFolder(id), b, batches.Store.Frames(id));
-                return TypedResults.PhysicalFile(path, Manifest.ContentType);
+                if (verdict is null)
+                {
+                    // Written on demand too, so an unfinished batch's manifest shows the frames done so far and the latest decisions.
+                    return TypedResults.PhysicalFile(batches.WriteManifest(b), Manifest.ContentType);
+                }
+                if (!Review.Verdicts.IsKnown(verdict))
+                    return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
+                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Store.Decisions(id), verdict);
+                using var buffer = new MemoryStream();
+                Manifest.WriteTo(buffer, lines);
+                return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);
             })
             .WithName("GetBatchManifest")
-            .WithSummary("JSON lines, one per frame, highest frame score first (regions with outlines, artifact paths relative to the batch folder).")
+            .WithSummary("JSON lines, one per frame, highest frame score first (regions with outlines and review decisions, artifact paths " +
+                         "relative to the batch folder); rewrites manifest.jsonl in the batch folder. ?verdict=label-it gives only the " +
+                         "frames with that verdict on the frame or a region, without touching the file.")
             .Produces(200, contentType: Manifest.ContentType)
-            .ProducesProblem(404);
+            .ProducesProblem(400).ProducesProblem(404);
 
         group.MapPost("/{id}/cancel", Results<Ok<BatchView>, ProblemHttpResult> (string id, BatchService batches) =>
             {

@@ -40,6 +40,10 @@ public static class ErrorCodes
     public const string ArchiveEscape = "archive-escape";
     public const string ArchiveTooLarge = "archive-too-large";
     public const string CallbackNotAllowed = "callback-not-allowed";
+    public const string FrameNotFound = "frame-not-found";
+    public const string FrameNotScored = "frame-not-scored";
+    public const string RegionNotFound = "region-not-found";
+    public const string NoteTooLong = "note-too-long";
 
     private static readonly ErrorCode[] Rows =
     [
@@ -50,6 +54,7 @@ public static class ErrorCodes
         new(ArchiveInvalid, 400, "The archive cannot be read"),
         new(ArchiveEscape, 400, "An archive entry would land outside its folder"),
         new(CallbackNotAllowed, 400, "The callback URL is not allowed"),
+        new(NoteTooLong, 400, "The decision's note is too long"),
         new(Unauthorized, 401, "An API key is required"),
         new(Forbidden, 403, "The API key lacks a needed scope"),
         new(NotFound, 404, "No such resource"),
@@ -58,6 +63,9 @@ public static class ErrorCodes
         new(JobNotFound, 404, "No such job"),
         new(BatchNotFound, 404, "No such batch"),
         new(FolderNotFound, 404, "No such folder in the data folder"),
+        new(FrameNotFound, 404, "No such frame in the batch"),
+        new(RegionNotFound, 404, "No such region in the frame"),
+        new(FrameNotScored, 409, "The frame has not been scored"),
         new(BatchConflict, 409, "The batch exists with other settings or is finished"),
         new(MethodNotAllowed, 405, "Method not allowed on this resource"),
         new(JobNotFinished, 409, "The job has not finished"),

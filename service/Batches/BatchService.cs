@@ -57,6 +57,10 @@ public sealed partial class BatchService : IDisposable
 
     public string BatchFolder(string id) => Path.Combine(Root, id);
 
+    /// <summary>Rewrites the batch's manifest from the store (frames so far, with their decisions); returns its path.</summary>
+    public string WriteManifest(BatchRecord batch) =>
+        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Store.Decisions(batch.Id));
+
     /// <summary>An absolute path for a stored source: relative ones are resolved under DataRoot (links checked again).</summary>
     public string ResolveSource(string source) => Path.IsPathRooted(source) ? source : SafePath.Resolve(DataRoot, source);
 

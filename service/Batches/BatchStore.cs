@@ -13,7 +13,7 @@ namespace Strayspot.Service.Batches;
 /// whose outputs a client may already have fetched; the fsync per frame is small next to scoring the frame.
 /// One connection behind a lock: the writes are a few tiny statements per frame, never the bottleneck.
 /// </remarks>
-public sealed class BatchStore : IDisposable
+public sealed partial class BatchStore : IDisposable
 {
     private readonly SqliteConnection _db;
     private readonly Lock _gate = new();
@@ -64,6 +64,7 @@ public sealed class BatchStore : IDisposable
                 UNIQUE (batch_id, frame_id));
             CREATE INDEX IF NOT EXISTS batches_state ON batches(state, created);
             """);
+        CreateDecisionTables();
     }
 
     public string DatabaseFile { get; }
@@ -195,6 +196,18 @@ public sealed class BatchStore : IDisposable
             cmd.Parameters.AddWithValue("$id", batchId);
             if (state is not null) cmd.Parameters.AddWithValue("$state", state);
             return ReadFrames(cmd);
+        }
+    }
+
+    public FrameRecord? Frame(string batchId, int seq)
+    {
+        lock (_gate)
+        {
+            using var cmd = _db.CreateCommand();
+            cmd.CommandText = "SELECT * FROM frames WHERE batch_id = $id AND seq = $seq";
+            cmd.Parameters.AddWithValue("$id", batchId);
+            cmd.Parameters.AddWithValue("$seq", seq);
+            return ReadFrames(cmd).FirstOrDefault();
         }
     }
 

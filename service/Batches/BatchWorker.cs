@@ -94,7 +94,7 @@ public sealed class BatchWorker(
                 var frame = batches.Store.StartNextFrame(batch.Id);
                 if (frame is null)
                 {
-                    Finish(batch.Id, folder);
+                    Finish(batch.Id);
                     return;
                 }
                 FrameGate.Lease? lease;
@@ -117,7 +117,7 @@ public sealed class BatchWorker(
         {
             batches.Untrack(batch.Id);
             if (batches.Store.Get(batch.Id) is { State: BatchStates.Cancelled } cancelled)
-                Manifest.Write(folder, cancelled, batches.Store.Frames(batch.Id));
+                batches.WriteManifest(cancelled);
         }
     }
 
@@ -159,11 +159,11 @@ public sealed class BatchWorker(
         }
     }
 
-    private void Finish(string batchId, string folder)
+    private void Finish(string batchId)
     {
         if (!batches.Store.Transition(batchId, BatchStates.Done, [BatchStates.Running])) return;
         var batch = batches.Store.Get(batchId)!;
-        Manifest.Write(folder, batch, batches.Store.Frames(batchId));
+        batches.WriteManifest(batch);
         log.LogInformation("Batch {BatchId} done: {Done} frames scored, {Failed} failed", batchId, batch.DoneCount, batch.FailedCount);
     }
 

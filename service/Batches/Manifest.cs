@@ -3,6 +3,7 @@ using System.Text.Json.Serialization;
 using Strayspot.Scoring.Pipeline;
 using Strayspot.Scoring.Regions;
 using Strayspot.Service.Reports;
+using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Batches;
 
@@ -15,10 +16,12 @@ public sealed record ManifestRegion(
     [property: JsonPropertyName("maxScore")] float MaxScore,
     [property: JsonPropertyName("classBeneath")] string ClassBeneath,
     [property: JsonPropertyName("onSurface")] bool OnSurface,
-    [property: JsonPropertyName("outline")] int[][] Outline);
+    [property: JsonPropertyName("outline")] int[][] Outline,
+    [property: JsonPropertyName("decision")] DecisionMark? Decision = null);
 
 /// <summary>One line of the manifest: a frame, its score, regions and output files (relative to the batch folder).</summary>
 public sealed record ManifestLine(
+    [property: JsonPropertyName("seq")] int Seq,
     [property: JsonPropertyName("frameId")] string FrameId,
     [property: JsonPropertyName("source")] string Source,
     [property: JsonPropertyName("frameScore")] float? FrameScore,
@@ -27,11 +30,13 @@ public sealed record ManifestLine(
     [property: JsonPropertyName("model")] string Model,
     [property: JsonPropertyName("modelSha256")] string? ModelSha256,
     [property: JsonPropertyName("profileVersion")] string? ProfileVersion,
-    [property: JsonPropertyName("error")] string? Error = null);
+    [property: JsonPropertyName("error")] string? Error = null,
+    [property: JsonPropertyName("decision")] DecisionMark? Decision = null);
 
 /// <summary>
 /// The batch manifest: JSON lines, one per frame, highest frame score first; frames that failed come last with
-/// their error. Built from the store alone, so it can be rewritten at any time.
+/// their error. Review decisions ride along: the frame's own on the line, each region's on the region. Built from
+/// the store alone, so it can be rewritten at any time.
 /// </summary>
 public static class Manifest
 {
@@ -95,23 +100,44 @@ public static class Manifest
 
     public static string RegionsJson(IReadOnlyList<ManifestRegion> regions) => JsonSerializer.Serialize(regions, LineJson);
 
-    /// <summary>The lines of a batch in manifest order: done frames by score (highest first, then seq), failed frames after.</summary>
-    public static List<ManifestLine> Lines(BatchRecord batch, IReadOnlyList<FrameRecord> frames)
+    public static List<ManifestRegion> ReadRegions(string? regionsJson) =>
+        regionsJson is null ? [] : JsonSerializer.Deserialize<List<ManifestRegion>>(regionsJson, LineJson) ?? [];
+
+    /// <summary>
+    /// The lines of a batch in manifest order: done frames by score (highest first, then seq), failed frames after.
+    /// With <paramref name="onlyVerdict"/>, just the done frames that carry that verdict on the frame or on a region.
+    /// </summary>
+    public static List<ManifestLine> Lines(BatchRecord batch, IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision>? decisions = null,
+        string? onlyVerdict = null)
     {
+        var bySeq = new Dictionary<(int Seq, int? Region), Decision>();
+        foreach (var d in decisions ?? []) bySeq[(d.Seq, d.Region)] = d;
         var done = frames.Where(f => f.State == FrameStates.Done)
             .OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq);
         var failed = frames.Where(f => f.State == FrameStates.Failed).OrderBy(f => f.Seq);
         var lines = new List<ManifestLine>(frames.Count);
         foreach (var f in done)
         {
-            var regions = f.RegionsJson is null ? [] : JsonSerializer.Deserialize<List<ManifestRegion>>(f.RegionsJson, LineJson) ?? [];
+            var regions = ReadRegions(f.RegionsJson);
+            bool keep = onlyVerdict is null;
+            for (int i = 0; i < regions.Count; i++)
+            {
+                if (!bySeq.TryGetValue((f.Seq, regions[i].Id), out var rd)) continue;
+                regions[i] = regions[i] with { Decision = DecisionMark.From(rd) };
+                keep |= rd.Verdict == onlyVerdict;
+            }
+            var frameDecision = bySeq.GetValueOrDefault((f.Seq, null));
+            keep |= frameDecision?.Verdict == onlyVerdict;
+            if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
             foreach (var (key, file) in ArtifactFiles) artifacts[key] = folder + "/" + file;
-            lines.Add(new ManifestLine(f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256, batch.ProfileVersion));
+            lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
+                batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
         }
+        if (onlyVerdict is not null) return lines;
         foreach (var f in failed)
-            lines.Add(new ManifestLine(f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error));
+            lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error));
         return lines;
     }
 
@@ -124,11 +150,11 @@ public static class Manifest
         }
     }
 
-    /// <summary>Writes the manifest of a batch atomically into its folder; returns the path.</summary>
-    public static string Write(string batchFolder, BatchRecord batch, IReadOnlyList<FrameRecord> frames)
+    /// <summary>Writes the manifest of a batch, with its decisions, atomically into its folder; returns the path.</summary>
+    public static string Write(string batchFolder, BatchRecord batch, IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision> decisions)
     {
         string path = Path.Combine(batchFolder, FileName);
-        var lines = Lines(batch, frames);
+        var lines = Lines(batch, frames, decisions);
         AtomicFile.Write(path, s => WriteTo(s, lines));
         return path;
     }

@@ -127,6 +127,7 @@ public static class ServiceHost
         services.AddSingleton<ArtifactStore>();
         services.AddHostedService<ArtifactSweeper>();
         BatchesApi.AddServices(services, builder.Configuration);
+        ReviewApi.AddServices(services);
 
         services.AddServiceOpenApi();
     }
@@ -210,6 +211,7 @@ public static class ServiceHost
         LogitsApi.Map(v1);
         ImageFramesApi.Map(v1);
         BatchesApi.Map(v1);
+        ReviewApi.Map(v1);
     }
 }
 

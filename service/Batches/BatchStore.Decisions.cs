@@ -1,0 +1,136 @@
+using System.Globalization;
+using Microsoft.Data.Sqlite;
+using Strayspot.Service.Review;
+
+namespace Strayspot.Service.Batches;
+
+/// <summary>
+/// Review decisions, in the batch's own database so they live and move with it. Each target (a region, or the
+/// whole frame as region 0) has one current decision; every write is also appended to a log in the same
+/// transaction, so concurrent reviewers overwrite each other's current decision (the last write wins) yet no
+/// write is lost from the record.
+/// </summary>
+public sealed partial class BatchStore
+{
+    /// <summary>Region number that stands for the whole frame in the tables (regions are numbered from 1).</summary>
+    private const int WholeFrame = 0;
+
+    private void CreateDecisionTables() => Exec("""
+        CREATE TABLE IF NOT EXISTS decision_log (
+            revision INTEGER PRIMARY KEY AUTOINCREMENT,
+            batch_id TEXT NOT NULL REFERENCES batches(id),
+            seq INTEGER NOT NULL,
+            region INTEGER NOT NULL,
+            verdict TEXT,
+            note TEXT,
+            decided_by TEXT,
+            decided_at TEXT NOT NULL);
+        CREATE INDEX IF NOT EXISTS decision_log_batch ON decision_log(batch_id, revision);
+        CREATE TABLE IF NOT EXISTS decisions (
+            batch_id TEXT NOT NULL REFERENCES batches(id),
+            seq INTEGER NOT NULL,
+            region INTEGER NOT NULL,
+            verdict TEXT NOT NULL,
+            note TEXT,
+            decided_by TEXT,
+            decided_at TEXT NOT NULL,
+            revision INTEGER NOT NULL,
+            PRIMARY KEY (batch_id, seq, region),
+            FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+        """);
+
+    /// <summary>Stores <paramref name="verdict"/> as the current decision on the target and logs it; returns what is stored.</summary>
+    public Decision Decide(string batchId, int seq, int? region, string verdict, string? note, string? decidedBy)
+    {
+        lock (_gate)
+        {
+            using var tx = _db.BeginTransaction();
+            string now = Now();
+            long revision = Log(tx, batchId, seq, region, verdict, note, decidedBy, now);
+            Exec(tx, "INSERT INTO decisions (batch_id, seq, region, verdict, note, decided_by, decided_at, revision) " +
+                     "VALUES ($id, $seq, $r, $v, $note, $by, $now, $rev) " +
+                     "ON CONFLICT (batch_id, seq, region) DO UPDATE SET verdict = $v, note = $note, decided_by = $by, decided_at = $now, revision = $rev",
+                ("$id", batchId), ("$seq", seq), ("$r", region ?? WholeFrame), ("$v", verdict), ("$note", note), ("$by", decidedBy),
+                ("$now", now), ("$rev", revision));
+            var stored = ReadDecisions(tx, "WHERE d.batch_id = $id AND d.seq = $seq AND d.region = $r",
+                ("$id", batchId), ("$seq", seq), ("$r", region ?? WholeFrame))[0];
+            tx.Commit();
+            return stored;
+        }
+    }
+
+    /// <summary>Withdraws the current decision on the target (logged); false when there was none.</summary>
+    public bool Withdraw(string batchId, int seq, int? region, string? decidedBy)
+    {
+        lock (_gate)
+        {
+            using var tx = _db.BeginTransaction();
+            int n = Exec(tx, "DELETE FROM decisions WHERE batch_id = $id AND seq = $seq AND region = $r",
+                ("$id", batchId), ("$seq", seq), ("$r", region ?? WholeFrame));
+            if (n == 1) Log(tx, batchId, seq, region, null, null, decidedBy, Now());
+            tx.Commit();
+            return n == 1;
+        }
+    }
+
+    /// <summary>The current decisions of a batch (or of one frame), by frame then region; the frame's own first.</summary>
+    public IReadOnlyList<Decision> Decisions(string batchId, int? seq = null)
+    {
+        lock (_gate)
+        {
+            return seq is int s
+                ? ReadDecisions(null, "WHERE d.batch_id = $id AND d.seq = $seq", ("$id", batchId), ("$seq", s))
+                : ReadDecisions(null, "WHERE d.batch_id = $id", ("$id", batchId));
+        }
+    }
+
+    /// <summary>Every write to the batch's decisions, oldest first, from <paramref name="after"/> on (exclusive).</summary>
+    public IReadOnlyList<DecisionEntry> DecisionLog(string batchId, long after = 0, int limit = 1000)
+    {
+        lock (_gate)
+        {
+            using var cmd = _db.CreateCommand();
+            cmd.CommandText = "SELECT l.*, f.frame_id FROM decision_log l JOIN frames f ON f.batch_id = l.batch_id AND f.seq = l.seq " +
+                              "WHERE l.batch_id = $id AND l.revision > $after ORDER BY l.revision LIMIT $limit";
+            cmd.Parameters.AddWithValue("$id", batchId);
+            cmd.Parameters.AddWithValue("$after", after);
+            cmd.Parameters.AddWithValue("$limit", limit);
+            var list = new List<DecisionEntry>();
+            using var r = cmd.ExecuteReader();
+            while (r.Read())
+            {
+                int region = r.GetInt32(r.GetOrdinal("region"));
+                list.Add(new DecisionEntry(r.GetInt64(r.GetOrdinal("revision")), r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")),
+                    region == WholeFrame ? null : region, Str(r, "verdict"), Str(r, "note"), Str(r, "decided_by"),
+                    ParseTime(r.GetString(r.GetOrdinal("decided_at")))));
+            }
+            return list;
+        }
+    }
+
+    private long Log(SqliteTransaction tx, string batchId, int seq, int? region, string? verdict, string? note, string? decidedBy, string now)
+    {
+        Exec(tx, "INSERT INTO decision_log (batch_id, seq, region, verdict, note, decided_by, decided_at) VALUES ($id, $seq, $r, $v, $note, $by, $now)",
+            ("$id", batchId), ("$seq", seq), ("$r", region ?? WholeFrame), ("$v", verdict), ("$note", note), ("$by", decidedBy), ("$now", now));
+        return Convert.ToInt64(Scalar(tx, "SELECT last_insert_rowid()"), CultureInfo.InvariantCulture);
+    }
+
+    private List<Decision> ReadDecisions(SqliteTransaction? tx, string where, params (string Name, object? Value)[] args)
+    {
+        using var cmd = _db.CreateCommand();
+        cmd.Transaction = tx;
+        cmd.CommandText = "SELECT d.*, f.frame_id FROM decisions d JOIN frames f ON f.batch_id = d.batch_id AND f.seq = d.seq " +
+                          where + " ORDER BY d.seq, d.region";
+        foreach (var (n, v) in args) cmd.Parameters.AddWithValue(n, v ?? DBNull.Value);
+        var list = new List<Decision>();
+        using var r = cmd.ExecuteReader();
+        while (r.Read())
+        {
+            int region = r.GetInt32(r.GetOrdinal("region"));
+            list.Add(new Decision(r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")), region == WholeFrame ? null : region,
+                r.GetString(r.GetOrdinal("verdict")), Str(r, "note"), Str(r, "decided_by"),
+                ParseTime(r.GetString(r.GetOrdinal("decided_at"))), r.GetInt64(r.GetOrdinal("revision"))));
+        }
+        return list;
+    }
+}

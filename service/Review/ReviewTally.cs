@@ -1,0 +1,114 @@
+using System.Text.Json.Serialization;
+using Strayspot.Service.Batches;
+
+namespace Strayspot.Service.Review;
+
+public sealed record VerdictCounts(
+    [property: JsonPropertyName("labelIt")] int LabelIt,
+    [property: JsonPropertyName("falseAlarm")] int FalseAlarm,
+    [property: JsonPropertyName("unsure")] int Unsure)
+{
+    public int Total => LabelIt + FalseAlarm + Unsure;
+}
+
+public sealed record TargetCounts(
+    [property: JsonPropertyName("total")] int Total,
+    [property: JsonPropertyName("reviewed")] int Reviewed,
+    [property: JsonPropertyName("verdicts")] VerdictCounts Verdicts);
+
+/// <summary>
+/// Reviewed regions standing on one class. <see cref="FalseAlarmRate"/> is false alarms over reviewed regions;
+/// the two score bounds show where a threshold would part the reviewed false alarms from the regions worth labeling.
+/// </summary>
+public sealed record ClassTally(
+    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("regions")] int Regions,
+    [property: JsonPropertyName("reviewed")] int Reviewed,
+    [property: JsonPropertyName("verdicts")] VerdictCounts Verdicts,
+    [property: JsonPropertyName("falseAlarmRate")] double? FalseAlarmRate,
+    [property: JsonPropertyName("highestFalseAlarmScore")] float? HighestFalseAlarmScore,
+    [property: JsonPropertyName("lowestLabelItScore")] float? LowestLabelItScore);
+
+public sealed record ReviewCounts(
+    [property: JsonPropertyName("frames")] TargetCounts Frames,
+    [property: JsonPropertyName("regions")] TargetCounts Regions,
+    [property: JsonPropertyName("byClassBeneath")] IReadOnlyList<ClassTally> ByClassBeneath);
+
+/// <summary>
+/// Counts a batch's decisions. A frame counts as reviewed when it or any of its regions has a decision. A region
+/// without a decision of its own takes its frame's verdict, so marking a whole frame a false alarm counts each of
+/// its regions as one.
+/// </summary>
+public static class ReviewTally
+{
+    public static ReviewCounts Count(IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision> decisions)
+    {
+        var byTarget = new Dictionary<(int Seq, int? Region), string>();
+        var framesWithAny = new HashSet<int>();
+        foreach (var d in decisions)
+        {
+            byTarget[(d.Seq, d.Region)] = d.Verdict;
+            framesWithAny.Add(d.Seq);
+        }
+        int frameTotal = 0, frameLabel = 0, frameFalse = 0, frameUnsure = 0;
+        int regionTotal = 0, regionLabel = 0, regionFalse = 0, regionUnsure = 0;
+        var classes = new Dictionary<string, Tally>(StringComparer.Ordinal);
+        foreach (var f in frames)
+        {
+            if (f.State != FrameStates.Done) continue;
+            frameTotal++;
+            string? frameVerdict = byTarget.GetValueOrDefault((f.Seq, null));
+            Bump(frameVerdict, ref frameLabel, ref frameFalse, ref frameUnsure);
+            foreach (var r in Manifest.ReadRegions(f.RegionsJson))
+            {
+                regionTotal++;
+                string? verdict = byTarget.GetValueOrDefault((f.Seq, r.Id)) ?? frameVerdict;
+                Bump(verdict, ref regionLabel, ref regionFalse, ref regionUnsure);
+                if (!classes.TryGetValue(r.ClassBeneath, out var t)) classes[r.ClassBeneath] = t = new Tally();
+                t.Add(verdict, r.MaxScore);
+            }
+        }
+        int framesReviewed = 0;
+        foreach (var f in frames)
+            if (f.State == FrameStates.Done && framesWithAny.Contains(f.Seq)) framesReviewed++;
+        var byClass = classes
+            .Select(kv => kv.Value.ToTally(kv.Key))
+            .OrderByDescending(c => c.Reviewed).ThenByDescending(c => c.Regions).ThenBy(c => c.ClassBeneath, StringComparer.Ordinal)
+            .ToList();
+        return new ReviewCounts(
+            new TargetCounts(frameTotal, framesReviewed, new VerdictCounts(frameLabel, frameFalse, frameUnsure)),
+            new TargetCounts(regionTotal, regionLabel + regionFalse + regionUnsure, new VerdictCounts(regionLabel, regionFalse, regionUnsure)),
+            byClass);
+    }
+
+    private static void Bump(string? verdict, ref int label, ref int falseAlarm, ref int unsure)
+    {
+        switch (verdict)
+        {
+            case Verdicts.LabelIt: label++; break;
+            case Verdicts.FalseAlarm: falseAlarm++; break;
+            case Verdicts.Unsure: unsure++; break;
+        }
+    }
+
+    private sealed class Tally
+    {
+        private int _regions, _label, _false, _unsure;
+        private float? _highestFalse, _lowestLabel;
+
+        public void Add(string? verdict, float maxScore)
+        {
+            _regions++;
+            Bump(verdict, ref _label, ref _false, ref _unsure);
+            if (verdict == Verdicts.FalseAlarm) _highestFalse = Math.Max(_highestFalse ?? float.NegativeInfinity, maxScore);
+            if (verdict == Verdicts.LabelIt) _lowestLabel = Math.Min(_lowestLabel ?? float.PositiveInfinity, maxScore);
+        }
+
+        public ClassTally ToTally(string name)
+        {
+            int reviewed = _label + _false + _unsure;
+            return new ClassTally(name, _regions, reviewed, new VerdictCounts(_label, _false, _unsure),
+                reviewed == 0 ? null : Math.Round((double)_false / reviewed, 4), _highestFalse, _lowestLabel);
+        }
+    }
+}
