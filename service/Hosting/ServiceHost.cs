@@ -203,6 +203,7 @@ public static class ServiceHost
         HealthApi.Map(app);
         // Scraped like the health endpoints: no key, so keep the port on a trusted network.
         app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
+        Review.ReviewPage.Map(app);
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
         FramesApi.Map(v1);

@@ -1,0 +1,673 @@
+// Review page: plain script, no build step and nothing fetched from outside the service (the box may be offline).
+'use strict';
+
+const KEY_STORE = 'strayspot.apiKey';
+const VERDICTS = ['label-it', 'false-alarm', 'unsure'];
+const VERDICT_TEXT = { 'label-it': 'Label it', 'false-alarm': 'False alarm', 'unsure': 'Unsure' };
+
+const state = {
+  batchId: null,
+  overview: null,     // GET /v1/batches/{id}/review
+  frames: [],         // overview.frames, highest score first
+  index: -1,          // position of the open frame in state.frames
+  frame: null,        // the open frame: { seq, frameId, width, height, regions, decision, files, threshold, scoreRange } or a dropped one
+  dropped: false,     // the open frame was dropped on the page, not part of a batch
+  region: null,       // selected region id, null = whole frame
+  urls: [],           // object URLs of the open frame's images, revoked on the next frame
+  loadToken: 0,
+};
+
+const $ = (id) => document.getElementById(id);
+
+function setStatus(text, isError) {
+  const s = $('status');
+  s.textContent = text || '';
+  s.classList.toggle('error', !!isError);
+}
+
+// ---- HTTP: every call carries the key; a 401 asks for one.
+
+class ApiError extends Error {
+  constructor(status, problem) {
+    super((problem && (problem.detail || problem.title)) || ('HTTP ' + status));
+    this.status = status;
+    this.code = problem && problem.code;
+  }
+}
+
+function headers(extra) {
+  const h = Object.assign({}, extra || {});
+  const key = sessionStorage.getItem(KEY_STORE);
+  if (key) h['X-Api-Key'] = key;
+  return h;
+}
+
+async function api(path, options) {
+  const opts = Object.assign({}, options || {});
+  opts.headers = headers(opts.headers);
+  const response = await fetch(path, opts);
+  if (response.status === 401) $('key-form').hidden = false;
+  if (!response.ok) {
+    let problem = null;
+    try { problem = await response.json(); } catch (e) { /* not JSON */ }
+    throw new ApiError(response.status, problem);
+  }
+  return response;
+}
+
+async function apiJson(path, options) {
+  const response = await api(path, options);
+  return response.status === 204 ? null : response.json();
+}
+
+async function objectUrl(path) {
+  const blob = await (await api(path)).blob();
+  const url = URL.createObjectURL(blob);
+  state.urls.push(url);
+  return url;
+}
+
+function releaseUrls() {
+  for (const u of state.urls) URL.revokeObjectURL(u);
+  state.urls = [];
+}
+
+// ---- Formatting
+
+function fmtScore(x) {
+  return x === null || x === undefined ? '–' : Number(x).toFixed(2);
+}
+
+function fmtRate(x) {
+  return x === null || x === undefined ? '–' : (100 * x).toFixed(0) + '%';
+}
+
+function el(tag, attrs, children) {
+  const e = document.createElement(tag);
+  for (const [k, v] of Object.entries(attrs || {})) {
+    if (k === 'text') e.textContent = v;
+    else if (k === 'class') e.className = v;
+    else e.setAttribute(k, v);
+  }
+  for (const c of children || []) e.append(c);
+  return e;
+}
+
+function svg(tag, attrs) {
+  const e = document.createElementNS('http://www.w3.org/2000/svg', tag);
+  for (const [k, v] of Object.entries(attrs || {})) e.setAttribute(k, v);
+  return e;
+}
+
+function verdictSpan(verdict) {
+  return verdict ? el('span', { class: 'v-' + verdict, text: VERDICT_TEXT[verdict] }) : el('span', { class: 'muted', text: '–' });
+}
+
+// ---- Batches and models
+
+async function loadBatches() {
+  const select = $('batch-select');
+  try {
+    const list = await apiJson('/v1/batches?limit=200');
+    const keep = state.batchId;
+    select.replaceChildren(el('option', { value: '', text: '(none)' }));
+    for (const b of list.batches) {
+      const label = b.id + ' · ' + b.model + ' · ' + b.state + ' · ' + b.frames.done + '/' + b.frames.total;
+      select.append(el('option', { value: b.id, text: label }));
+    }
+    if (keep) select.value = keep;
+  } catch (e) {
+    setStatus('Batches could not be listed: ' + e.message, true);
+  }
+}
+
+async function loadModels() {
+  try {
+    const list = await apiJson('/v1/models');
+    const select = $('drop-model');
+    select.replaceChildren();
+    for (const m of list.models) if (m.usable) select.append(el('option', { value: m.name, text: m.name }));
+  } catch (e) {
+    /* the batch list reports the problem */
+  }
+}
+
+async function openBatch(id, seq) {
+  state.batchId = id || null;
+  $('batch-select').value = id || '';
+  if (!id) {
+    state.overview = null;
+    state.frames = [];
+    renderFrameList();
+    return;
+  }
+  try {
+    await refreshOverview();
+  } catch (e) {
+    setStatus('Batch ' + id + ' could not be opened: ' + e.message, true);
+    return;
+  }
+  const at = seq === undefined ? 0 : Math.max(0, state.frames.findIndex((f) => f.seq === seq));
+  if (state.frames.length > 0) await openFrame(at);
+  else clearFrame(state.overview.batch.frames.total > 0 ? 'No frame of this batch is scored yet.' : 'This batch has no frames.');
+}
+
+async function refreshOverview() {
+  const o = await apiJson('/v1/batches/' + encodeURIComponent(state.batchId) + '/review');
+  state.overview = o;
+  state.frames = o.frames;
+  renderProvenance(o);
+  renderLegend(o.classes);
+  renderSummary(o);
+  renderFrameList();
+}
+
+function renderProvenance(o) {
+  const p = o.provenance;
+  const parts = $('provenance');
+  parts.replaceChildren();
+  const add = (label, value) => {
+    parts.append(label + ' ');
+    parts.append(el('b', { text: value }));
+    parts.append('  ');
+  };
+  add('Model', p.model);
+  if (p.modelSha256) add('sha256', p.modelSha256.slice(0, 12));
+  add('profile', p.profileVersion || 'not yet scored');
+  if (p.method) add('method', p.method);
+  if (p.calibration) add('calibration', p.calibration.file + (p.calibration.frameCount ? ' (' + p.calibration.frameCount + ' frames)' : ''));
+  else add('calibration', 'none');
+  if (p.currentProfileVersion && p.profileVersion && p.currentProfileVersion !== p.profileVersion) {
+    parts.append(el('span', { class: 'warn', text: 'The model\'s profile is now ' + p.currentProfileVersion + '; this batch was scored with ' + p.profileVersion + '.' }));
+  }
+  if (o.notice) $('notice').textContent = o.notice;
+}
+
+function renderLegend(classes) {
+  const list = $('class-legend');
+  list.replaceChildren();
+  for (const c of classes || []) {
+    const sw = el('span', { class: 'swatch' });
+    sw.style.background = c.color;
+    list.append(el('li', {}, [sw, c.name + (c.surface ? ' (surface)' : '')]));
+  }
+}
+
+function renderSummary(o) {
+  const c = o.counts;
+  $('summary-counts').textContent =
+    c.frames.reviewed + ' of ' + c.frames.total + ' frames reviewed; ' +
+    c.regions.reviewed + ' of ' + c.regions.total + ' regions decided: ' +
+    c.regions.verdicts.labelIt + ' label it, ' + c.regions.verdicts.falseAlarm + ' false alarm, ' + c.regions.verdicts.unsure + ' unsure.';
+  const body = $('class-table').tBodies[0];
+  body.replaceChildren();
+  for (const k of c.byClassBeneath) {
+    body.append(el('tr', { 'data-class': k.classBeneath }, [
+      el('td', { text: k.classBeneath }),
+      el('td', { class: 'num', text: k.reviewed + ' / ' + k.regions }),
+      el('td', { class: 'num', text: String(k.verdicts.falseAlarm) }),
+      el('td', { class: 'num rate', text: fmtRate(k.falseAlarmRate) }),
+      el('td', { class: 'num', text: fmtScore(k.highestFalseAlarmScore) }),
+      el('td', { class: 'num', text: fmtScore(k.lowestLabelItScore) }),
+    ]));
+  }
+  const link = $('evaluation-link');
+  link.replaceChildren();
+  if (o.evaluation) {
+    const a = el('a', { href: '#', id: 'evaluation-report', text: 'Evaluation report ' + o.evaluation.id });
+    a.addEventListener('click', (e) => { e.preventDefault(); openProtected(o.evaluation.report, 'text/markdown'); });
+    link.append('Measured on labeled frames: ', a);
+  } else {
+    link.textContent = 'No evaluation of this model yet (POST /v1/models/{model}/evaluations measures one on labeled frames).';
+  }
+}
+
+function renderFrameList() {
+  const list = $('frame-list');
+  list.replaceChildren();
+  state.frames.forEach((f, i) => {
+    const li = el('li', { 'data-seq': String(f.seq), title: f.frameId }, [
+      el('span', { class: 'name', text: f.frameId }),
+      el('span', { class: 'score', text: fmtScore(f.frameScore) }),
+      el('span', { class: 'meta', text: f.regionCount + (f.regionCount === 1 ? ' region' : ' regions') +
+        (f.verdict ? ' · frame: ' + VERDICT_TEXT[f.verdict] : '') + (f.regionsDecided ? ' · ' + f.regionsDecided + ' decided' : '') }),
+    ]);
+    if (f.verdict || f.regionsDecided) li.classList.add('reviewed');
+    if (!state.dropped && i === state.index) li.classList.add('current');
+    li.addEventListener('click', () => openFrame(i));
+    list.append(li);
+  });
+  $('frame-count').textContent = state.batchId ? state.frames.length + ' scored frames, highest score first' : '';
+}
+
+// ---- One frame
+
+function clearFrame(message) {
+  releaseUrls();
+  state.frame = null;
+  state.region = null;
+  $('frame-title').textContent = message || '';
+  for (const id of ['layer-source', 'layer-heat', 'layer-outline']) $(id).removeAttribute('href');
+  $('layer-boxes').replaceChildren();
+  $('region-table').tBodies[0].replaceChildren();
+  renderDecision();
+}
+
+async function openFrame(i) {
+  if (i < 0 || i >= state.frames.length) return;
+  const token = ++state.loadToken;
+  state.index = i;
+  state.dropped = false;
+  const item = state.frames[i];
+  setStatus('Loading ' + item.frameId + '…');
+  let frame;
+  try {
+    frame = await apiJson('/v1/batches/' + encodeURIComponent(state.batchId) + '/frames/' + item.seq);
+  } catch (e) {
+    setStatus('Frame ' + item.frameId + ' could not be loaded: ' + e.message, true);
+    return;
+  }
+  if (token !== state.loadToken) return;
+  releaseUrls();
+  const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), objectUrl(frame.files.heat), objectUrl(frame.files.mask)]);
+  if (token !== state.loadToken) return;
+  showFrame(frame, source, heat, mask);
+  history.replaceState(null, '', '#batch=' + encodeURIComponent(state.batchId) + '&seq=' + frame.seq);
+  renderFrameList();
+  const current = $('frame-list').querySelector('li.current');
+  if (current) current.scrollIntoView({ block: 'nearest' });
+  setStatus('');
+}
+
+function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
+  state.frame = frame;
+  state.region = null;
+  const w = frame.width, h = frame.height;
+  const stage = $('stage');
+  stage.setAttribute('viewBox', '0 0 ' + w + ' ' + h);
+  for (const id of ['layer-source', 'layer-heat', 'layer-outline']) {
+    $(id).setAttribute('width', w);
+    $(id).setAttribute('height', h);
+  }
+  $('layer-source').setAttribute('href', sourceUrl);
+  $('layer-heat').setAttribute('href', heatUrl);
+  $('layer-outline').removeAttribute('href');
+  drawOutline(maskUrl, w, h, frame);
+  applyLayers();
+  const title = (state.dropped ? 'Dropped frame ' : (state.index + 1) + ' of ' + state.frames.length + ': ') + frame.frameId +
+    ' · frame score ' + fmtScore(frame.frameScore) + ' · threshold ' + fmtScore(frame.threshold) + ' · ' + frame.regions.length +
+    (frame.regions.length === 1 ? ' region' : ' regions');
+  $('frame-title').textContent = title;
+  $('heat-scale').textContent = frame.scoreRange
+    ? 'Heat map: dark = ' + fmtScore(frame.scoreRange.min) + ', bright = ' + fmtScore(frame.scoreRange.max) + ' (anomaly score, this frame\'s range).'
+    : '';
+  renderBoxes();
+  renderRegionTable();
+  renderDecision();
+}
+
+// The mask's edge pixels, drawn once per frame into a transparent image laid over the frame.
+function drawOutline(maskUrl, w, h, frame) {
+  const img = new Image();
+  img.onload = () => {
+    if (state.frame !== frame) return;
+    const canvas = document.createElement('canvas');
+    canvas.width = w;
+    canvas.height = h;
+    const ctx = canvas.getContext('2d');
+    ctx.drawImage(img, 0, 0, w, h);
+    const src = ctx.getImageData(0, 0, w, h).data;
+    const out = ctx.createImageData(w, h);
+    const d = out.data;
+    const on = (x, y) => x >= 0 && y >= 0 && x < w && y < h && src[(y * w + x) * 4] > 127;
+    let edges = 0;
+    for (let y = 0; y < h; y++) {
+      for (let x = 0; x < w; x++) {
+        if (!on(x, y) || (on(x - 1, y) && on(x + 1, y) && on(x, y - 1) && on(x, y + 1))) continue;
+        const o = (y * w + x) * 4;
+        d[o] = 255; d[o + 1] = 255; d[o + 2] = 255; d[o + 3] = 255;
+        edges++;
+      }
+    }
+    ctx.putImageData(out, 0, 0);
+    $('layer-outline').setAttribute('href', canvas.toDataURL('image/png'));
+    $('layer-outline').setAttribute('data-edges', String(edges));
+  };
+  img.src = maskUrl;
+}
+
+function applyLayers() {
+  const heatOn = $('heat-toggle').checked;
+  const heat = $('layer-heat');
+  heat.style.display = heatOn ? '' : 'none';
+  heat.setAttribute('opacity', String($('heat-opacity').value / 100));
+  $('layer-outline').style.display = $('outline-toggle').checked ? '' : 'none';
+}
+
+function renderBoxes() {
+  const g = $('layer-boxes');
+  g.replaceChildren();
+  if (!state.frame) return;
+  const size = Math.max(10, Math.round(Math.min(state.frame.width, state.frame.height) / 22));
+  for (const r of state.frame.regions) {
+    const verdict = r.decision ? r.decision.verdict : null;
+    const rect = svg('rect', {
+      x: r.box.x, y: r.box.y, width: r.box.width, height: r.box.height,
+      class: 'box' + (verdict ? ' ' + verdict : '') + (state.region === r.id ? ' selected' : ''),
+      'data-region': r.id,
+    });
+    const tag = svg('text', { x: r.box.x + 2, y: Math.max(size, r.box.y - 3), class: 'tag', 'font-size': size, 'data-region': r.id });
+    tag.textContent = String(r.id);
+    for (const e of [rect, tag]) e.addEventListener('click', (ev) => { ev.stopPropagation(); selectRegion(r.id); });
+    g.append(rect, tag);
+  }
+}
+
+function classColor(name) {
+  const classes = state.overview ? state.overview.classes : [];
+  const c = classes.find((x) => x.name === name);
+  return c ? c.color : null;
+}
+
+function renderRegionTable() {
+  const body = $('region-table').tBodies[0];
+  body.replaceChildren();
+  if (!state.frame) return;
+  for (const r of state.frame.regions) {
+    const cls = el('td', {});
+    const color = classColor(r.classBeneath);
+    if (color) {
+      const sw = el('span', { class: 'swatch' });
+      sw.style.background = color;
+      cls.append(sw);
+    }
+    cls.append(r.classBeneath);
+    const tr = el('tr', { 'data-region': String(r.id) }, [
+      el('td', { text: String(r.id) }),
+      el('td', { class: 'num', text: fmtScore(r.maxScore) }),
+      el('td', { class: 'num', text: String(r.area) }),
+      cls,
+      el('td', { text: r.onSurface ? 'yes' : 'no' }),
+      el('td', { class: 'decision' }, [verdictSpan(r.decision ? r.decision.verdict : null)]),
+    ]);
+    if (state.region === r.id) tr.classList.add('selected');
+    tr.addEventListener('click', () => selectRegion(r.id));
+    body.append(tr);
+  }
+}
+
+function currentTarget() {
+  if (!state.frame) return null;
+  if (state.region === null) return { decision: state.frame.decision };
+  return state.frame.regions.find((r) => r.id === state.region) || null;
+}
+
+function renderDecision() {
+  const target = currentTarget();
+  const decision = target ? target.decision : null;
+  $('target-title').textContent = !state.frame ? 'No frame open'
+    : state.region === null ? 'Whole frame' : 'Region ' + state.region;
+  $('target-verdict').replaceChildren(decision
+    ? el('span', {}, ['Now: ', verdictSpan(decision.verdict), decision.decidedBy ? ' by ' + decision.decidedBy : ''])
+    : el('span', { class: 'muted', text: 'No decision.' }));
+  $('note').value = decision && decision.note ? decision.note : '';
+  const enabled = !!state.frame && !state.dropped;
+  for (const b of document.querySelectorAll('.verdicts button')) {
+    b.disabled = !enabled;
+    b.classList.toggle('chosen', !!decision && b.dataset.verdict === decision.verdict);
+  }
+  $('withdraw').disabled = !enabled || !decision;
+  $('save-note').disabled = !enabled || !decision;
+  $('note').disabled = !enabled;
+  if (state.dropped) $('target-verdict').textContent = 'Decisions are kept for batch frames; a dropped frame is scored, not stored.';
+}
+
+function selectRegion(id) {
+  state.region = id;
+  renderBoxes();
+  renderRegionTable();
+  renderDecision();
+  if (id === null) zoomTo(null);
+  else zoomTo(state.frame.regions.find((r) => r.id === id));
+  const row = $('region-table').querySelector('tr.selected');
+  if (row) row.scrollIntoView({ block: 'nearest' });
+}
+
+// Zoom by narrowing the SVG's view box to the region, with margin, keeping the frame's aspect.
+function zoomTo(region) {
+  const f = state.frame;
+  if (!f) return;
+  const stage = $('stage');
+  if (!region) {
+    stage.setAttribute('viewBox', '0 0 ' + f.width + ' ' + f.height);
+    stage.dataset.zoomed = 'false';
+    return;
+  }
+  const aspect = f.width / f.height;
+  let w = Math.max(region.box.width * 3, f.width / 8);
+  let h = Math.max(region.box.height * 3, f.height / 8);
+  if (w / h > aspect) h = w / aspect; else w = h * aspect;
+  w = Math.min(w, f.width);
+  h = Math.min(h, f.height);
+  const cx = region.box.x + region.box.width / 2, cy = region.box.y + region.box.height / 2;
+  const x = Math.min(Math.max(cx - w / 2, 0), f.width - w);
+  const y = Math.min(Math.max(cy - h / 2, 0), f.height - h);
+  stage.setAttribute('viewBox', [x, y, w, h].map((v) => v.toFixed(1)).join(' '));
+  stage.dataset.zoomed = 'true';
+}
+
+function stepRegion(delta) {
+  const regions = state.frame ? state.frame.regions : [];
+  if (regions.length === 0) return;
+  const at = state.region === null ? -1 : regions.findIndex((r) => r.id === state.region);
+  let next = at + delta;
+  if (at === -1 && delta < 0) next = regions.length - 1;
+  if (next < 0 || next >= regions.length) { selectRegion(null); return; }
+  selectRegion(regions[next].id);
+}
+
+// ---- Decisions
+
+function decisionPath() {
+  const base = '/v1/batches/' + encodeURIComponent(state.batchId) + '/frames/' + state.frame.seq;
+  return state.region === null ? base + '/decision' : base + '/regions/' + state.region + '/decision';
+}
+
+async function decide(verdict) {
+  if (!state.frame || state.dropped) return;
+  const note = $('note').value.trim();
+  const target = state.region;
+  const frame = state.frame;
+  try {
+    const stored = await apiJson(decisionPath(), {
+      method: 'PUT',
+      headers: { 'Content-Type': 'application/json' },
+      body: JSON.stringify({ verdict: verdict, note: note || null }),
+    });
+    applyDecision(frame, target, stored);
+    setStatus((target === null ? 'Frame' : 'Region ' + target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).');
+  } catch (e) {
+    setStatus('Not saved: ' + e.message, true);
+  }
+}
+
+async function withdraw() {
+  if (!state.frame || state.dropped) return;
+  const target = state.region;
+  const frame = state.frame;
+  try {
+    await api(decisionPath(), { method: 'DELETE' });
+    applyDecision(frame, target, null);
+    setStatus((target === null ? 'Frame' : 'Region ' + target) + ': decision withdrawn.');
+  } catch (e) {
+    setStatus('Not withdrawn: ' + e.message, true);
+  }
+}
+
+function applyDecision(frame, target, stored) {
+  if (target === null) frame.decision = stored;
+  else {
+    const r = frame.regions.find((x) => x.id === target);
+    if (r) r.decision = stored;
+  }
+  if (state.frame === frame) {
+    renderBoxes();
+    renderRegionTable();
+    renderDecision();
+  }
+  refreshOverview().catch((e) => setStatus('Summary not refreshed: ' + e.message, true));
+}
+
+// ---- Dropped frame: scored on the spot, shown like a batch frame, not stored.
+
+async function scoreDropped(file) {
+  const model = $('drop-model').value;
+  if (!model) { setStatus('No usable model to score with.', true); return; }
+  const form = new FormData();
+  form.append('frame', file, file.name);
+  form.append('artifacts', 'heat,mask');
+  setStatus('Scoring ' + file.name + ' with ' + model + '…');
+  const token = ++state.loadToken;
+  try {
+    const answer = await apiJson('/v1/models/' + encodeURIComponent(model) + '/frames', { method: 'POST', body: form });
+    if (token !== state.loadToken) return;
+    const report = answer.report;
+    releaseUrls();
+    const sourceUrl = URL.createObjectURL(file);
+    state.urls.push(sourceUrl);
+    const [heat, mask] = await Promise.all([objectUrl(report.artifacts.heat), objectUrl(report.artifacts.mask)]);
+    state.dropped = true;
+    state.index = -1;
+    renderFrameList();
+    showFrame({
+      seq: null,
+      frameId: file.name,
+      width: report.frame.width,
+      height: report.frame.height,
+      frameScore: report.frameScore,
+      threshold: report.threshold,
+      scoreRange: report.scoreRange,
+      decision: null,
+      regions: report.regions.map((r) => ({
+        id: r.id, box: r.box, area: r.area, maxScore: r.maxScore, meanScore: r.meanScore,
+        classBeneath: r.classBeneathName || String(r.classBeneath), onSurface: r.onSurface, decision: null,
+      })),
+    }, sourceUrl, heat, mask);
+    setStatus('Scored ' + file.name + ' with ' + model + '.');
+  } catch (e) {
+    setStatus(file.name + ' could not be scored: ' + e.message, true);
+  }
+}
+
+// ---- Files that need the key: fetched, then opened or saved from memory.
+
+async function openProtected(path) {
+  try {
+    const blob = await (await api(path)).blob();
+    const url = URL.createObjectURL(new Blob([blob], { type: 'text/plain' }));
+    window.open(url, '_blank');
+  } catch (e) {
+    setStatus('Could not open ' + path + ': ' + e.message, true);
+  }
+}
+
+async function exportManifest() {
+  if (!state.batchId) return;
+  try {
+    const text = await (await api('/v1/batches/' + encodeURIComponent(state.batchId) + '/manifest')).text();
+    const lines = text.split('\n').filter((l) => l.length > 0).length;
+    const url = URL.createObjectURL(new Blob([text], { type: 'application/x-ndjson' }));
+    const a = el('a', { href: url, download: state.batchId + '-manifest.jsonl' });
+    document.body.append(a);
+    a.click();
+    a.remove();
+    setTimeout(() => URL.revokeObjectURL(url), 10000);
+    setStatus('Manifest re-exported with decisions: ' + lines + ' lines (also written to the batch folder).');
+  } catch (e) {
+    setStatus('Manifest not exported: ' + e.message, true);
+  }
+}
+
+// ---- Keyboard
+
+function onKey(e) {
+  const t = e.target;
+  if (t && (t.tagName === 'TEXTAREA' || t.tagName === 'SELECT' || (t.tagName === 'INPUT' && t.type !== 'checkbox' && t.type !== 'range'))) return;
+  if (e.ctrlKey || e.metaKey || e.altKey) return;
+  const k = e.key;
+  let handled = true;
+  if (k === 'j' || k === 'ArrowDown') { if (state.index + 1 < state.frames.length) openFrame(state.index + 1); }
+  else if (k === 'k' || k === 'ArrowUp') { if (state.index > 0) openFrame(state.index - 1); }
+  else if (k === 'n') stepRegion(1);
+  else if (k === 'b') stepRegion(-1);
+  else if (k === 'f') selectRegion(null);
+  else if (k === 'z' || k === 'Escape') zoomTo(null);
+  else if (k === 'h') { $('heat-toggle').checked = !$('heat-toggle').checked; applyLayers(); }
+  else if (k === 'o') { $('outline-toggle').checked = !$('outline-toggle').checked; applyLayers(); }
+  else if (k === '1' || k === '2' || k === '3') decide(VERDICTS[Number(k) - 1]);
+  else handled = false;
+  if (handled) e.preventDefault();
+}
+
+// ---- Start
+
+function readHash() {
+  const p = new URLSearchParams(location.hash.slice(1));
+  const seq = p.get('seq');
+  return { batch: p.get('batch'), seq: seq === null ? undefined : Number(seq) };
+}
+
+function wire() {
+  $('key-form').addEventListener('submit', async (e) => {
+    e.preventDefault();
+    const key = $('key-input').value.trim();
+    if (key) sessionStorage.setItem(KEY_STORE, key); else sessionStorage.removeItem(KEY_STORE);
+    $('key-input').value = '';
+    $('key-form').hidden = true;
+    setStatus('');
+    await start();
+  });
+  $('batch-select').addEventListener('change', (e) => openBatch(e.target.value));
+  $('reload-batches').addEventListener('click', loadBatches);
+  $('heat-toggle').addEventListener('change', applyLayers);
+  $('heat-opacity').addEventListener('input', applyLayers);
+  $('outline-toggle').addEventListener('change', applyLayers);
+  $('zoom-reset').addEventListener('click', () => zoomTo(null));
+  $('stage').addEventListener('click', () => zoomTo(null));
+  for (const b of document.querySelectorAll('.verdicts button[data-verdict]')) b.addEventListener('click', () => decide(b.dataset.verdict));
+  $('withdraw').addEventListener('click', withdraw);
+  $('save-note').addEventListener('click', () => {
+    const t = currentTarget();
+    if (t && t.decision) decide(t.decision.verdict);
+  });
+  $('export').addEventListener('click', exportManifest);
+  document.addEventListener('keydown', onKey);
+
+  const zone = $('drop-zone');
+  zone.addEventListener('dragover', (e) => { e.preventDefault(); zone.classList.add('over'); });
+  zone.addEventListener('dragleave', () => zone.classList.remove('over'));
+  zone.addEventListener('drop', (e) => {
+    e.preventDefault();
+    zone.classList.remove('over');
+    const file = e.dataTransfer && e.dataTransfer.files[0];
+    if (file) scoreDropped(file);
+  });
+  $('drop-file').addEventListener('change', (e) => {
+    const file = e.target.files[0];
+    if (file) scoreDropped(file);
+    e.target.value = '';
+  });
+}
+
+async function start() {
+  await Promise.all([loadBatches(), loadModels()]);
+  const h = readHash();
+  if (h.batch) await openBatch(h.batch, h.seq);
+  document.body.dataset.ready = 'true';
+}
+
+document.addEventListener('DOMContentLoaded', () => {
+  wire();
+  renderDecision();
+  start();
+});
