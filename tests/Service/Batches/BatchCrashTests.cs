@@ -27,9 +27,10 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
         {
             Dictionary<string, DateTimeOffset> doneBeforeKill;
             int port = FreePort();
-            // A short rest between frames keeps the batch from finishing before the kill on a fast machine; frames take
-            // longer than the rest here, so the kill usually lands inside a frame (its temporary folder is left behind).
-            using (var first = ServerProcess.Start(models, data, port, pause: TimeSpan.FromMilliseconds(50)))
+            // A rest between frames keeps the batch from finishing before the kill: the eight frames after the fourth take
+            // at least 2 s however fast the server is, while this process (slowed by tests running beside it) polls and
+            // kills. The kill lands inside a frame or inside a rest; both must resume cleanly.
+            using (var first = ServerProcess.Start(models, data, port, pause: TimeSpan.FromMilliseconds(250)))
             {
                 using var client = await first.ReadyClientAsync();
                 await PostFolderAsync(client, "night", batchId: "night-1");

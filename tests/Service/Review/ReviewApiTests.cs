@@ -103,4 +103,29 @@ public class ReviewApiTests
         Assert.Equal(HttpStatusCode.Conflict, r.StatusCode);
         Assert.Equal("frame-not-scored", JsonDocument.Parse(await r.Content.ReadAsStringAsync()).RootElement.GetProperty("code").GetString());
     }
+
+    [Fact]
+    public async Task The_overview_links_the_models_latest_finished_evaluation()
+    {
+        await using var s = await StartAsync();
+        Evaluation.EvaluationFixtures.WriteFlatDataset(Path.Combine(s.DataRoot, "labeled"), frames: 2);
+        WriteFrames(Path.Combine(s.DataRoot, "apron"), 1);
+        await PostFolderAsync(s.Client, "apron", batchId: "ev");
+        await WaitForStateAsync(s.Client, "ev", "done");
+        Assert.Equal(JsonValueKind.Null, (await GetAsync(s.Client, "/v1/batches/ev/review")).GetProperty("evaluation").ValueKind);
+
+        var start = await s.Client.PostAsJsonAsync($"/v1/models/{Model}/evaluations", new { dataset = "labeled" });
+        string id = (await start.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        var until = DateTime.UtcNow.AddSeconds(120);
+        while ((await GetAsync(s.Client, $"/v1/evaluations/{id}")).GetProperty("state").GetString() is "queued" or "running")
+        {
+            Assert.True(DateTime.UtcNow < until, "the evaluation did not finish");
+            await Task.Delay(100);
+        }
+        var link = (await GetAsync(s.Client, "/v1/batches/ev/review")).GetProperty("evaluation");
+        Assert.Equal(id, link.GetProperty("id").GetString());
+        var report = await s.Client.GetAsync(link.GetProperty("report").GetString());
+        Assert.Equal(HttpStatusCode.OK, report.StatusCode);
+        Assert.Contains("sml", await report.Content.ReadAsStringAsync());
+    }
 }

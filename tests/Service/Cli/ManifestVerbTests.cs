@@ -1,0 +1,84 @@
+using System.CommandLine;
+using System.Text.Json;
+using Strayspot.Service.Batches;
+using Strayspot.Service.Cli;
+using Strayspot.Service.Reports;
+using Strayspot.Service.Review;
+
+namespace Strayspot.Tests.Service.Cli;
+
+public sealed class ManifestVerbTests : IDisposable
+{
+    private readonly string _data = Directory.CreateTempSubdirectory("strayspot-manifest-").FullName;
+
+    private static async Task<(int Exit, string Out, string Err)> Run(params string[] args)
+    {
+        var output = new StringWriter();
+        var error = new StringWriter();
+        int exit = await ManifestVerb.Create().Parse(args).InvokeAsync(new InvocationConfiguration { Output = output, Error = error });
+        return (exit, output.ToString(), error.ToString());
+    }
+
+    /// <summary>A batch of three done frames as the service leaves it, with decisions on two of them.</summary>
+    private void SeedBatch()
+    {
+        using var store = new BatchStore(Path.Combine(_data, ".strayspot", "batches.db"));
+        store.Submit("night", "demo", "folder:cams", null, [new NewFrame("a.png", "cams/a.png"), new NewFrame("b.png", "cams/b.png"), new NewFrame("c.png", "cams/c.png")]);
+        store.Transition("night", BatchStates.Running, [BatchStates.Queued]);
+        float[] scores = [3.1f, 4.2f, 2.0f];
+        for (int seq = 1; seq <= 3; seq++)
+        {
+            var start = store.StartNextFrame("night")!;
+            var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], "pavement", true, [[4, 4], [11, 4], [11, 9]]);
+            store.CompleteFrame("night", start.Seq, new FrameResult(scores[seq - 1], 1, $"frames/{start.Seq:D5}/report.json", Manifest.RegionsJson([region])));
+        }
+        store.Decide("night", 2, 1, Verdicts.LabelIt, "chock left behind", "tester");
+        store.Decide("night", 1, null, Verdicts.FalseAlarm, null, "tester");
+    }
+
+    [Fact]
+    public async Task Writes_the_manifest_with_decisions_into_the_batch_folder_and_filters_by_verdict()
+    {
+        SeedBatch();
+        var all = await Run("--data", _data, "--batch", "night");
+        Assert.True(all.Exit == 0, all.Err);
+        Assert.Contains("3 frame line(s)", all.Out);
+        Assert.Contains("2 decision(s)", all.Out);
+        var lines = File.ReadAllLines(Path.Combine(_data, "batches", "night", "manifest.jsonl")).Select(l => JsonDocument.Parse(l).RootElement).ToList();
+        Assert.Equal(["b.png", "a.png", "c.png"], lines.Select(l => l.GetProperty("frameId").GetString()));
+        Assert.Equal("chock left behind", lines[0].GetProperty("regions")[0].GetProperty("decision").GetProperty("note").GetString());
+        Assert.Equal("false-alarm", lines[1].GetProperty("decision").GetProperty("verdict").GetString());
+        Assert.False(lines[2].TryGetProperty("decision", out _));
+
+        string only = Path.Combine(_data, "accepted.jsonl");
+        var accepted = await Run("--data", _data, "--batch", "night", "--verdict", "label-it", "--out", only);
+        Assert.True(accepted.Exit == 0, accepted.Err);
+        Assert.Equal(["b.png"], File.ReadAllLines(only).Select(l => JsonDocument.Parse(l).RootElement.GetProperty("frameId").GetString()));
+    }
+
+    [Fact]
+    public async Task Unknown_batches_missing_databases_and_bad_verdicts_exit_2_with_a_message()
+    {
+        SeedBatch();
+        var unknown = await Run("--data", _data, "--batch", "day");
+        Assert.Equal(2, unknown.Exit);
+        Assert.Contains("no batch 'day'", unknown.Err);
+        Assert.Contains("night", unknown.Err);
+
+        string elsewhere = Path.Combine(_data, "nowhere");
+        var missing = await Run("--data", elsewhere, "--batch", "night");
+        Assert.Equal(2, missing.Exit);
+        Assert.Contains("no batch database", missing.Err);
+        Assert.False(Directory.Exists(elsewhere), "a mistyped folder must not gain an empty database");
+
+        var verdict = await Run("--data", _data, "--batch", "night", "--verdict", "keep");
+        Assert.Equal(2, verdict.Exit);
+        Assert.Contains("label-it", verdict.Err);
+    }
+
+    public void Dispose()
+    {
+        Microsoft.Data.Sqlite.SqliteConnection.ClearAllPools();
+        try { Directory.Delete(_data, recursive: true); } catch (IOException) { }
+    }
+}
