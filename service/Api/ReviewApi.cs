@@ -29,10 +29,11 @@ public static class ReviewApi
     {
         var group = v1.MapGroup("/batches/{id}").WithTags("Review");
 
-        group.MapGet("/review", (string id, BatchReview review) => Answer(() => TypedResults.Ok(review.Overview(id))))
+        group.MapGet("/review", (string id, bool? frames, BatchReview review) => Answer(() => TypedResults.Ok(review.Overview(id, frames ?? true))))
             .WithName("GetBatchReview")
             .WithSummary("Overview for reviewing a batch: scored frames by frame score (highest first), decision counts, " +
-                         "false-alarm rate by class beneath, the model, calibration and profile behind the scores, and class colours.")
+                         "false-alarm rate by class beneath, the model, calibration and profile behind the scores, and class colours " +
+                         "(?frames=false leaves out the frame list).")
             .Produces<ReviewOverview>().ProducesProblem(404);
 
         group.MapGet("/frames/{seq:int}", (string id, int seq, BatchReview review) => Answer(() => TypedResults.Ok(review.Frame(id, seq))))

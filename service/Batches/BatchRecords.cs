@@ -66,3 +66,9 @@ public sealed record NewFrame(string FrameId, string SourcePath);
 
 /// <summary>What a finished frame left: the summary stored with its done mark.</summary>
 public sealed record FrameResult(float FrameScore, int RegionCount, string ReportPath, string RegionsJson);
+
+/// <summary>A frame as a listing needs it.</summary>
+public sealed record FrameSummary(int Seq, string FrameId, string State, float? FrameScore, int? RegionCount);
+
+/// <summary>One region of a scored frame, as far as counting needs it.</summary>
+public sealed record RegionBrief(int Seq, int Region, string ClassBeneath, float MaxScore);

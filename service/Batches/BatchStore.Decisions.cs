@@ -5,7 +5,8 @@ using Strayspot.Service.Review;
 namespace Strayspot.Service.Batches;
 
 /// <summary>
-/// Review decisions, in the batch's own database so they live and move with it. Each target (a region, or the
+/// What review needs, in the batch's own database so it lives and moves with it: an index of each scored frame's
+/// regions (class beneath and score, so counting a batch never reads every frame's outlines), and decisions. Each target (a region, or the
 /// whole frame as region 0) has one current decision; every write is also appended to a log in the same
 /// transaction, so concurrent reviewers overwrite each other's current decision (the last write wins) yet no
 /// write is lost from the record.
@@ -14,6 +15,68 @@ public sealed partial class BatchStore
 {
     /// <summary>Region number that stands for the whole frame in the tables (regions are numbered from 1).</summary>
     private const int WholeFrame = 0;
+
+    private void CreateReviewTables()
+    {
+        CreateDecisionTables();
+        Exec("""
+            CREATE TABLE IF NOT EXISTS frame_regions (
+                batch_id TEXT NOT NULL,
+                seq INTEGER NOT NULL,
+                region INTEGER NOT NULL,
+                class_beneath TEXT NOT NULL,
+                max_score REAL NOT NULL,
+                PRIMARY KEY (batch_id, seq, region),
+                FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+            """);
+        // Frames scored before the index existed: filled once, from their stored regions.
+        using var tx = _db.BeginTransaction();
+        using var cmd = _db.CreateCommand();
+        cmd.Transaction = tx;
+        cmd.CommandText = "SELECT batch_id, seq, regions_json FROM frames f WHERE state = 'done' AND region_count > 0 AND regions_json IS NOT NULL " +
+                          "AND NOT EXISTS (SELECT 1 FROM frame_regions r WHERE r.batch_id = f.batch_id AND r.seq = f.seq)";
+        var missing = new List<(string Batch, int Seq, string Json)>();
+        using (var r = cmd.ExecuteReader())
+            while (r.Read()) missing.Add((r.GetString(0), r.GetInt32(1), r.GetString(2)));
+        foreach (var (batch, seq, json) in missing) IndexRegions(tx, batch, seq, json);
+        tx.Commit();
+    }
+
+    private void IndexRegions(SqliteTransaction tx, string batchId, int seq, string? regionsJson)
+    {
+        var regions = Manifest.ReadRegions(regionsJson);
+        if (regions.Count == 0) return;
+        using var cmd = _db.CreateCommand();
+        cmd.Transaction = tx;
+        cmd.CommandText = "INSERT OR REPLACE INTO frame_regions (batch_id, seq, region, class_beneath, max_score) VALUES ($id, $seq, $r, $c, $s)";
+        cmd.Parameters.AddWithValue("$id", batchId);
+        cmd.Parameters.AddWithValue("$seq", seq);
+        var pr = cmd.Parameters.Add("$r", SqliteType.Integer);
+        var pc = cmd.Parameters.Add("$c", SqliteType.Text);
+        var ps = cmd.Parameters.Add("$s", SqliteType.Real);
+        foreach (var region in regions)
+        {
+            pr.Value = region.Id;
+            pc.Value = region.ClassBeneath;
+            ps.Value = float.IsFinite(region.MaxScore) ? region.MaxScore : (region.MaxScore > 0 ? double.MaxValue : double.MinValue);
+            cmd.ExecuteNonQuery();
+        }
+    }
+
+    /// <summary>The regions of a batch's scored frames: class beneath and highest score, by frame then region.</summary>
+    public IReadOnlyList<RegionBrief> RegionBriefs(string batchId)
+    {
+        lock (_gate)
+        {
+            using var cmd = _db.CreateCommand();
+            cmd.CommandText = "SELECT seq, region, class_beneath, max_score FROM frame_regions WHERE batch_id = $id ORDER BY seq, region";
+            cmd.Parameters.AddWithValue("$id", batchId);
+            var list = new List<RegionBrief>();
+            using var r = cmd.ExecuteReader();
+            while (r.Read()) list.Add(new RegionBrief(r.GetInt32(0), r.GetInt32(1), r.GetString(2), (float)r.GetDouble(3)));
+            return list;
+        }
+    }
 
     private void CreateDecisionTables() => Exec("""
         CREATE TABLE IF NOT EXISTS decision_log (

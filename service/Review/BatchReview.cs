@@ -84,10 +84,11 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         (BatchService.IsBatchId(id) ? batches.Store.Get(id) : null)
         ?? throw new ReviewException(Api.ErrorCodes.BatchNotFound, $"There is no batch '{id}'; GET /v1/batches lists them.");
 
-    public ReviewOverview Overview(string id)
+    /// <param name="withFrames">False leaves the frame list out: a page refreshing its counts after a decision needs only those.</param>
+    public ReviewOverview Overview(string id, bool withFrames = true)
     {
         var batch = Batch(id);
-        var frames = batches.Store.Frames(id);
+        var frames = batches.Store.FrameSummaries(id);
         var decisions = batches.Store.Decisions(id);
         var decided = new Dictionary<int, int>();
         var frameVerdicts = new Dictionary<int, string>();
@@ -97,7 +98,9 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             else decided[d.Seq] = decided.GetValueOrDefault(d.Seq) + 1;
         }
         var items = new List<ReviewFrameItem>();
-        foreach (var f in frames.Where(f => f.State == FrameStates.Done).OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq))
+        var ranked = frames.Where(f => withFrames && f.State == FrameStates.Done)
+            .OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq);
+        foreach (var f in ranked)
             items.Add(new ReviewFrameItem(f.Seq, f.FrameId, f.FrameScore, f.RegionCount ?? 0, decided.GetValueOrDefault(f.Seq),
                 frameVerdicts.GetValueOrDefault(f.Seq)));
 
@@ -115,7 +118,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var evaluation = evaluations.List().FirstOrDefault(j => j.Model == batch.Model && j.State == "done");
         var link = evaluation is null ? null
             : new EvaluationLink(evaluation.Id, evaluation.FinishedUtc, $"/v1/evaluations/{evaluation.Id}/files/{EvaluationOutputs.MarkdownFile}");
-        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, decisions), link, items, SafetyNotice.Text);
+        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions), link, items, SafetyNotice.Text);
     }
 
     public ReviewFrame Frame(string id, int seq)

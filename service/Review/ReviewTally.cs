@@ -41,7 +41,9 @@ public sealed record ReviewCounts(
 /// </summary>
 public static class ReviewTally
 {
-    public static ReviewCounts Count(IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision> decisions)
+    /// <param name="frames">The batch's frames (only done ones count).</param>
+    /// <param name="regions">The regions of the done frames.</param>
+    public static ReviewCounts Count(IReadOnlyList<FrameSummary> frames, IReadOnlyList<RegionBrief> regions, IReadOnlyList<Decision> decisions)
     {
         var byTarget = new Dictionary<(int Seq, int? Region), string>();
         var framesWithAny = new HashSet<int>();
@@ -53,20 +55,23 @@ public static class ReviewTally
         int frameTotal = 0, frameLabel = 0, frameFalse = 0, frameUnsure = 0;
         int regionTotal = 0, regionLabel = 0, regionFalse = 0, regionUnsure = 0;
         var classes = new Dictionary<string, Tally>(StringComparer.Ordinal);
+        var frameVerdicts = new Dictionary<int, string?>();
         foreach (var f in frames)
         {
             if (f.State != FrameStates.Done) continue;
             frameTotal++;
             string? frameVerdict = byTarget.GetValueOrDefault((f.Seq, null));
+            frameVerdicts[f.Seq] = frameVerdict;
             Bump(frameVerdict, ref frameLabel, ref frameFalse, ref frameUnsure);
-            foreach (var r in Manifest.ReadRegions(f.RegionsJson))
-            {
-                regionTotal++;
-                string? verdict = byTarget.GetValueOrDefault((f.Seq, r.Id)) ?? frameVerdict;
-                Bump(verdict, ref regionLabel, ref regionFalse, ref regionUnsure);
-                if (!classes.TryGetValue(r.ClassBeneath, out var t)) classes[r.ClassBeneath] = t = new Tally();
-                t.Add(verdict, r.MaxScore);
-            }
+        }
+        foreach (var r in regions)
+        {
+            if (!frameVerdicts.TryGetValue(r.Seq, out string? frameVerdict)) continue;
+            regionTotal++;
+            string? verdict = byTarget.GetValueOrDefault((r.Seq, r.Region)) ?? frameVerdict;
+            Bump(verdict, ref regionLabel, ref regionFalse, ref regionUnsure);
+            if (!classes.TryGetValue(r.ClassBeneath, out var t)) classes[r.ClassBeneath] = t = new Tally();
+            t.Add(verdict, r.MaxScore);
         }
         int framesReviewed = 0;
         foreach (var f in frames)

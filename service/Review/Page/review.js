@@ -4,6 +4,7 @@
 const KEY_STORE = 'strayspot.apiKey';
 const VERDICTS = ['label-it', 'false-alarm', 'unsure'];
 const VERDICT_TEXT = { 'label-it': 'Label it', 'false-alarm': 'False alarm', 'unsure': 'Unsure' };
+const LIST_PAGE = 300; // frames drawn in the list at a time; a batch can hold many thousands
 
 const state = {
   batchId: null,
@@ -14,6 +15,7 @@ const state = {
   dropped: false,     // the open frame was dropped on the page, not part of a batch
   region: null,       // selected region id, null = whole frame
   urls: [],           // object URLs of the open frame's images, revoked on the next frame
+  shown: LIST_PAGE,   // how many frames the list draws
   loadToken: 0,
 };
 
@@ -152,10 +154,16 @@ async function openBatch(id, seq) {
   else clearFrame(state.overview.batch.frames.total > 0 ? 'No frame of this batch is scored yet.' : 'This batch has no frames.');
 }
 
-async function refreshOverview() {
-  const o = await apiJson('/v1/batches/' + encodeURIComponent(state.batchId) + '/review');
+// After a decision only the counts are fetched again: a batch's frame list can be long, and the page knows its own change.
+async function refreshOverview(withFrames) {
+  const all = withFrames !== false;
+  const o = await apiJson('/v1/batches/' + encodeURIComponent(state.batchId) + '/review' + (all ? '' : '?frames=false'));
+  if (all) {
+    state.frames = o.frames;
+    state.shown = LIST_PAGE;
+  }
+  o.frames = state.frames;
   state.overview = o;
-  state.frames = o.frames;
   renderProvenance(o);
   renderLegend(o.classes);
   renderSummary(o);
@@ -225,7 +233,10 @@ function renderSummary(o) {
 function renderFrameList() {
   const list = $('frame-list');
   list.replaceChildren();
-  state.frames.forEach((f, i) => {
+  if (state.index >= state.shown) state.shown = (Math.floor(state.index / LIST_PAGE) + 1) * LIST_PAGE;
+  const count = Math.min(state.frames.length, state.shown);
+  for (let i = 0; i < count; i++) {
+    const f = state.frames[i];
     const li = el('li', { 'data-seq': String(f.seq), title: f.frameId }, [
       el('span', { class: 'name', text: f.frameId }),
       el('span', { class: 'score', text: fmtScore(f.frameScore) }),
@@ -236,7 +247,12 @@ function renderFrameList() {
     if (!state.dropped && i === state.index) li.classList.add('current');
     li.addEventListener('click', () => openFrame(i));
     list.append(li);
-  });
+  }
+  if (count < state.frames.length) {
+    const more = el('button', { type: 'button', id: 'show-more', text: 'Show ' + Math.min(LIST_PAGE, state.frames.length - count) + ' more of ' + (state.frames.length - count) });
+    more.addEventListener('click', () => { state.shown += LIST_PAGE; renderFrameList(); });
+    list.append(el('li', { class: 'more' }, [more]));
+  }
   $('frame-count').textContent = state.batchId ? state.frames.length + ' scored frames, highest score first' : '';
 }
 
@@ -510,12 +526,17 @@ function applyDecision(frame, target, stored) {
     const r = frame.regions.find((x) => x.id === target);
     if (r) r.decision = stored;
   }
+  const item = state.frames.find((f) => f.seq === frame.seq);
+  if (item) {
+    item.verdict = frame.decision ? frame.decision.verdict : null;
+    item.regionsDecided = frame.regions.filter((r) => r.decision).length;
+  }
   if (state.frame === frame) {
     renderBoxes();
     renderRegionTable();
     renderDecision();
   }
-  refreshOverview().catch((e) => setStatus('Summary not refreshed: ' + e.message, true));
+  refreshOverview(false).catch((e) => setStatus('Summary not refreshed: ' + e.message, true));
 }
 
 // ---- Dropped frame: scored on the spot, shown like a batch frame, not stored.

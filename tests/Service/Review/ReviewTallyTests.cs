@@ -13,6 +13,16 @@ public class ReviewTallyTests
         new("b", seq, $"f{seq}.png", $"f{seq}.png", state, state == FrameStates.Done ? 3f : null, regions.Length, $"frames/{seq:D5}/report.json",
             Manifest.RegionsJson(regions), null, null, 1);
 
+    private static ReviewCounts Count(FrameRecord[] frames, Decision[] decisions)
+    {
+        // As the store keeps them: the regions of done frames only.
+        var briefs = new List<RegionBrief>();
+        foreach (var f in frames)
+            if (f.State == FrameStates.Done)
+                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.ClassBeneath, r.MaxScore));
+        return ReviewTally.Count(frames.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, decisions);
+    }
+
     private static Decision D(int seq, int? region, string verdict) => new(seq, $"f{seq}.png", region, verdict, null, null, DateTimeOffset.UnixEpoch, 1);
 
     [Fact]
@@ -34,7 +44,7 @@ public class ReviewTallyTests
             D(2, null, Verdicts.FalseAlarm),
             D(3, null, Verdicts.Unsure),
         };
-        var c = ReviewTally.Count(frames, decisions);
+        var c = Count(frames, decisions);
 
         Assert.Equal(new TargetCounts(3, 3, new VerdictCounts(0, 1, 1)), c.Frames);
         Assert.Equal(6, c.Regions.Total);
@@ -57,11 +67,11 @@ public class ReviewTallyTests
     public void A_region_verdict_overrides_its_frame_verdict_and_nothing_reviewed_has_no_rate()
     {
         var frames = new[] { Frame(1, FrameStates.Done, Region(1, "tarmac", 4f), Region(2, "tarmac", 6f)) };
-        var c = ReviewTally.Count(frames, [D(1, null, Verdicts.FalseAlarm), D(1, 2, Verdicts.LabelIt)]);
+        var c = Count(frames, [D(1, null, Verdicts.FalseAlarm), D(1, 2, Verdicts.LabelIt)]);
         Assert.Equal(new VerdictCounts(1, 1, 0), c.Regions.Verdicts);
         Assert.Equal(0.5, c.ByClassBeneath[0].FalseAlarmRate);
 
-        var none = ReviewTally.Count(frames, []);
+        var none = Count(frames, []);
         Assert.Equal(0, none.Frames.Reviewed);
         Assert.Null(none.ByClassBeneath[0].FalseAlarmRate);
     }
