@@ -630,6 +630,27 @@ function onKey(e) {
   if (handled) e.preventDefault();
 }
 
+// A running batch gains frames: the list and counts are fetched again, the open frame stays open.
+async function refreshAll() {
+  await loadBatches();
+  if (!state.batchId) return;
+  const seq = state.frame && !state.dropped ? state.frame.seq : null;
+  try {
+    await refreshOverview(true);
+  } catch (e) {
+    setStatus('Batch ' + state.batchId + ' could not be refreshed: ' + e.message, true);
+    return;
+  }
+  const at = seq === null ? -1 : state.frames.findIndex((f) => f.seq === seq);
+  if (at >= 0) {
+    state.index = at;
+    renderFrameList();
+  } else if (state.frames.length > 0 && !state.dropped) {
+    await openFrame(0);
+  }
+  setStatus('Refreshed: ' + state.frames.length + ' scored frames.');
+}
+
 // ---- Start
 
 function readHash() {
@@ -649,7 +670,7 @@ function wire() {
     await start();
   });
   $('batch-select').addEventListener('change', (e) => openBatch(e.target.value));
-  $('reload-batches').addEventListener('click', loadBatches);
+  $('reload-batches').addEventListener('click', refreshAll);
   $('heat-toggle').addEventListener('change', applyLayers);
   $('heat-opacity').addEventListener('input', applyLayers);
   $('outline-toggle').addEventListener('change', applyLayers);

@@ -42,11 +42,11 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         }
     }
 
-    private static async Task<LiveService> StartAsync(string? apiKey = null)
+    private static async Task<LiveService> StartAsync(string? apiKey = null, TimeSpan? pause = null, bool waitForDone = true)
     {
         string root = Directory.CreateTempSubdirectory("strayspot-review-").FullName;
         var (_, frames) = BundledDemo.Extract(Path.Combine(root, "models", "demo"), Path.Combine(root, "data", "apron"));
-        var config = Batches.BatchTestKit.Config();
+        var config = Batches.BatchTestKit.Config(pause);
         if (apiKey is not null)
         {
             config["Service:ApiKeys:0:Name"] = "reviewer-key";
@@ -67,7 +67,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         var live = new LiveService { App = app, Root = root, Http = http, BaseUrl = address.TrimEnd('/'), FramePaths = frames };
         var submit = await http.PostAsJsonAsync("/v1/batches", new { model = "demo", folder = "apron", batchId = Batch });
         Assert.True(submit.IsSuccessStatusCode, await submit.Content.ReadAsStringAsync());
-        await Batches.BatchTestKit.WaitForStateAsync(http, Batch, "done", TimeSpan.FromSeconds(90));
+        if (waitForDone) await Batches.BatchTestKit.WaitForStateAsync(http, Batch, "done", TimeSpan.FromSeconds(90));
         return live;
     }
 
@@ -252,5 +252,48 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         Assert.NotEmpty(session.FailedRequests);
         Assert.All(session.FailedRequests, r => Assert.Contains("HTTP 401", r));
         Assert.All(session.ConsoleErrors, e => Assert.Contains("401", e));
+    }
+
+    [BrowserFact]
+    public async Task Refresh_brings_in_frames_scored_since_the_page_opened_and_keeps_the_open_frame()
+    {
+        await using var s = await StartAsync(pause: TimeSpan.FromMilliseconds(800), waitForDone: false);
+        await Batches.BatchTestKit.WaitAsync(s.Http, Batch, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 1, TimeSpan.FromSeconds(60));
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await OpenPageAsync(page, s);
+        int before = await page.Locator("#frame-list li").CountAsync();
+        string title = (await page.Locator("#frame-title").TextContentAsync())!;
+        string open = title[(title.IndexOf(": ", StringComparison.Ordinal) + 2)..title.IndexOf(" · ", StringComparison.Ordinal)];
+        await Batches.BatchTestKit.WaitForStateAsync(s.Http, Batch, "done", TimeSpan.FromSeconds(90));
+        Assert.True(before < s.FramePaths.Count, $"the batch was already done when the page opened ({before} frames)");
+
+        await page.Locator("#reload-batches").ClickAsync();
+        await Expect(page.Locator("#status")).ToContainTextAsync($"Refreshed: {s.FramePaths.Count} scored frames");
+        await Expect(page.Locator("#frame-list li")).ToHaveCountAsync(s.FramePaths.Count);
+        await Expect(page.Locator("#frame-title")).ToContainTextAsync(open);
+        await Expect(page.Locator("#frame-list li.current .name")).ToHaveTextAsync(open);
+        session.AssertNoConsoleErrors();
+        session.AssertNoFailedRequests();
+    }
+
+    /// <summary>
+    /// Checked with axe-core (Deque.AxeCore.Playwright), a general-purpose checker of WCAG 2 success criteria and
+    /// common practice: no violation of any impact on the page with a frame and a region open.
+    /// </summary>
+    [BrowserFact]
+    public async Task The_page_passes_the_axe_accessibility_rules()
+    {
+        await using var s = await StartAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await OpenPageAsync(page, s);
+        await page.Keyboard.PressAsync("n");
+        await Expect(page.Locator("#target-title")).ToHaveTextAsync("Region 1");
+        var result = await Deque.AxeCore.Playwright.PageExtensions.RunAxe(page);
+        foreach (var v in result.Violations)
+            output.WriteLine($"axe {v.Impact}: {v.Id}: {v.Help} ({v.Nodes.Length} element(s): {string.Join(" | ", v.Nodes.Take(3).Select(n => n.Html))})");
+        Assert.True(result.Violations.Length == 0, string.Join("\n", result.Violations.Select(v => $"{v.Id} ({v.Impact}): {v.Help}")));
+        Assert.True(result.Passes.Length > 10, "axe ran too few rules to mean anything");
     }
 }
