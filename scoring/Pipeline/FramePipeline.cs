@@ -43,7 +43,7 @@ public sealed class FramePipeline
         Statistics = statistics;
         if (options.BoundarySuppression.Enabled) _boundary = new BoundarySuppression(options.BoundarySuppression);
         if (options.Smoothing.Enabled) _smoothing = new DilatedSmoothing(options.Smoothing);
-        _filter = new RegionFilter(options.MinimumRegionArea, options.SurfaceClasses);
+        _filter = options.RegionFilter();
     }
 
     public ScoringOptions Options => _options;

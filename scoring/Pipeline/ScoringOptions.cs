@@ -1,5 +1,6 @@
 using System.Text.Json.Serialization;
 using Strayspot.Scoring.Logits;
+using Strayspot.Scoring.Regions;
 
 namespace Strayspot.Scoring.Pipeline;
 
@@ -59,6 +60,18 @@ public sealed record ScoringOptions
     public int MinimumRegionArea { get; init; } = 64;
     /// <summary>When set, only regions on or touching one of these class indices are kept.</summary>
     public IReadOnlyList<int>? SurfaceClasses { get; init; }
+
+    /// <summary>
+    /// Surface classes known from the model's own description: they mark each region on or off a surface without
+    /// dropping any. <see cref="SurfaceClasses"/>, when set, wins and filters. Not part of a stored profile.
+    /// </summary>
+    [JsonIgnore]
+    public IReadOnlyList<int>? MarkedSurfaceClasses { get; init; }
+
+    /// <summary>The region filter these options describe.</summary>
+    public RegionFilter RegionFilter() => SurfaceClasses is not null
+        ? new RegionFilter(MinimumRegionArea, SurfaceClasses)
+        : new RegionFilter(MinimumRegionArea, MarkedSurfaceClasses, KeepOnlyOnSurface: false);
 
     /// <summary>Fails with the offending value; call before scoring anything.</summary>
     public void Validate()

@@ -17,6 +17,7 @@ public sealed record Region(
 /// <summary>
 /// Which components become regions: at least <paramref name="MinimumArea"/> pixels, and, when
 /// <paramref name="SurfaceClasses"/> is given, lying on or touching one of those classes (e.g. debris on the
-/// apron surface, not a bird in the sky).
+/// apron surface, not a bird in the sky). With <paramref name="KeepOnlyOnSurface"/> false the surface classes only
+/// mark each region's <see cref="Region.OnSurface"/> and no region is dropped for it.
 /// </summary>
-public sealed record RegionFilter(int MinimumArea, IReadOnlyList<int>? SurfaceClasses);
+public sealed record RegionFilter(int MinimumArea, IReadOnlyList<int>? SurfaceClasses, bool KeepOnlyOnSurface = true);

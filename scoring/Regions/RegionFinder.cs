@@ -69,7 +69,7 @@ public sealed class RegionFinder
         {
             _regionIdOfComponent[c] = 0;
             if (_area[c] < filter.MinimumArea) { droppedByArea++; continue; }
-            var region = Describe(c, regions.Count + 1, mask, score, classIndex, classCount, filter.SurfaceClasses is not null, frameArea);
+            var region = Describe(c, regions.Count + 1, mask, score, classIndex, classCount, filter.SurfaceClasses is not null, filter.KeepOnlyOnSurface, frameArea);
             if (region is null) { droppedBySurface++; continue; }
             regions.Add(region);
             _regionIdOfComponent[c] = region.Id;
@@ -193,7 +193,7 @@ public sealed class RegionFinder
 
     /// <summary>Statistics of component <paramref name="c"/>, or null when the surface filter drops it.</summary>
     private Region? Describe(int c, int id, ReadOnlySpan<byte> mask, ReadOnlySpan<float> score, ReadOnlySpan<ushort> cls,
-        int classCount, bool surfaceFilter, double frameArea)
+        int classCount, bool surfaceKnown, bool keepOnlyOnSurface, double frameArea)
     {
         int w = _width, h = _height;
         Grow(ref _classCounts, classCount);
@@ -221,7 +221,7 @@ public sealed class RegionFinder
                 if (k >= classCount) throw ClassOutOfRange(k, classCount);
                 if (_classCounts[k]++ == 0) _touchedClasses[touched++] = k;
             }
-            if (surfaceFilter && !touches) touches = TouchesSurface(mask, cls, classCount, y, s, e);
+            if (surfaceKnown && !touches) touches = TouchesSurface(mask, cls, classCount, y, s, e);
         }
 
         int majority = -1, best = 0;
@@ -231,8 +231,8 @@ public sealed class RegionFinder
             if (n > best || (n == best && k < majority)) { best = n; majority = k; }
             _classCounts[k] = 0;
         }
-        bool onSurface = surfaceFilter && (_isSurface[majority] || touches);
-        if (surfaceFilter && !onSurface) return null;
+        bool onSurface = surfaceKnown && (_isSurface[majority] || touches);
+        if (surfaceKnown && keepOnlyOnSurface && !onSurface) return null;
         long area = _area[c];
         return new Region(id, left, top, right - left + 1, bottom - top + 1, area, area / frameArea,
             (double)sumX / area, (double)sumY / area, maxScore, (float)(sumScore / area),

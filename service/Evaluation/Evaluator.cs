@@ -145,7 +145,7 @@ public static class Evaluator
         int classCount = bundle.Model.ClassCount;
         var regionMetrics = new RegionMetrics();
         var finder = new RegionFinder();
-        var filter = new RegionFilter(options.MinimumRegionArea, options.SurfaceClasses);
+        var filter = options.RegionFilter();
         SegmentationQuality? quality = null;
         if (dataset.HasLabels)
         {

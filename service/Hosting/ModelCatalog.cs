@@ -89,7 +89,7 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
         {
             descriptor = ReadDescriptor(Path.Combine(folder, DescriptorFile));
             (statistics, calibration) = ReadStatistics(folder);
-            profile = ScoringProfile.LoadOrDefault(folder);
+            profile = ScoringProfile.LoadOrDefault(folder).WithSurfacesOf(descriptor);
             if (statistics is not null && statistics.Count != descriptor.Classes.Count)
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
                     $"{calibration!.File} describes {statistics.Count} classes but {DescriptorFile} lists {descriptor.Classes.Count}.");

@@ -63,7 +63,7 @@ public sealed class ModelBundle : IDisposable
             if (statistics is not null && statistics.Count != model.ClassCount)
                 throw new ModelException(ModelErrorCodes.CalibrationInvalid,
                     $"{source} describes {statistics.Count} classes but the model has {model.ClassCount}.");
-            return new ModelBundle(folder, model, statistics, source, ScoringProfile.LoadOrDefault(folder));
+            return new ModelBundle(folder, model, statistics, source, ScoringProfile.LoadOrDefault(folder).WithSurfacesOf(model.Descriptor));
         }
         catch
         {

@@ -24,13 +24,28 @@ public sealed record ScoringProfile
     /// <summary>When given, overrides <c>options.threshold</c>.</summary>
     [JsonPropertyName("threshold")] public float? Threshold { get; init; }
 
+    /// <summary>The model descriptor's surface classes (not stored in the profile): they mark regions on a surface.</summary>
+    [JsonIgnore]
+    public IReadOnlyList<int>? DescriptorSurfaceClasses { get; init; }
+
     /// <summary>The options frames are scored with: <see cref="Options"/> with the top-level shorthands applied.</summary>
     [JsonIgnore]
     public ScoringOptions Effective => Options with
     {
         Method = Method ?? Options.Method,
         Threshold = Threshold ?? Options.Threshold,
+        MarkedSurfaceClasses = DescriptorSurfaceClasses,
     };
+
+    /// <summary>This profile knowing which of the model's classes its descriptor marks <c>surface</c>.</summary>
+    public ScoringProfile WithSurfacesOf(Models.ModelDescriptor? descriptor)
+    {
+        if (descriptor is null) return this;
+        var surface = new List<int>();
+        for (int i = 0; i < descriptor.Classes.Count; i++)
+            if (descriptor.Classes[i].Surface) surface.Add(i);
+        return this with { DescriptorSurfaceClasses = surface.Count == 0 ? null : surface };
+    }
 
     /// <summary>The same profile with the shorthands folded into <see cref="Options"/> and repeated at the top level.</summary>
     public ScoringProfile Normalized()

@@ -109,7 +109,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         if (entry?.Descriptor is { } descriptor)
         {
             var colors = ArtifactWriter.ColorsOf(descriptor);
-            var surface = entry.Profile.Effective.SurfaceClasses ?? [];
+            var surface = entry.Profile.Effective.SurfaceClasses ?? entry.Profile.DescriptorSurfaceClasses ?? [];
             for (int i = 0; i < descriptor.Classes.Count; i++)
                 classes.Add(new ReviewClass(i, descriptor.Classes[i].Name, $"#{colors[i].R:x2}{colors[i].G:x2}{colors[i].B:x2}", surface.Contains(i)));
         }

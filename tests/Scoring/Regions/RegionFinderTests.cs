@@ -63,6 +63,34 @@ public class RegionFinderTests
     }
 
     [Fact]
+    public void Surface_classes_that_only_mark_keep_every_region_and_say_which_lie_on_a_surface()
+    {
+        var cls = Classes(
+            "22222",
+            "22222",
+            "22220",
+            "00222");
+        var (mask, w, h) = Mask(
+            ".....",
+            "..#..",   // all 8-neighbours are sky -> off the surface, but kept
+            ".....",
+            "##...");  // majority apron -> on
+        var set = new RegionFinder().Find(mask, w, h, new float[w * h], cls, 3, new RegionFilter(1, new[] { 0 }, KeepOnlyOnSurface: false));
+        Assert.Equal(0, set.DroppedBySurface);
+        Assert.Collection(set.Regions,
+            sky => { Assert.Equal((2, 1), (sky.Left, sky.Top)); Assert.False(sky.OnSurface); },
+            apron => { Assert.Equal((0, 3), (apron.Left, apron.Top)); Assert.True(apron.OnSurface); });
+
+        // The options choose: a profile's own surface classes filter; the descriptor's only mark.
+        var marked = new Strayspot.Scoring.Pipeline.ScoringOptions { MarkedSurfaceClasses = [0] }.RegionFilter();
+        Assert.False(marked.KeepOnlyOnSurface);
+        Assert.Equal([0], marked.SurfaceClasses!);
+        var filtering = new Strayspot.Scoring.Pipeline.ScoringOptions { SurfaceClasses = [1], MarkedSurfaceClasses = [0] }.RegionFilter();
+        Assert.True(filtering.KeepOnlyOnSurface);
+        Assert.Equal([1], filtering.SurfaceClasses!);
+    }
+
+    [Fact]
     public void Diagonal_surface_neighbour_counts_as_touching_but_surface_pixels_inside_a_minority_do_not()
     {
         var cls = Classes(

@@ -42,10 +42,19 @@ public class ReviewApiTests
             Assert.Equal(descriptor[i].GetProperty("name").GetString(), classes[i].GetProperty("name").GetString());
             if (descriptor[i].TryGetProperty("color", out var color))
                 Assert.Equal(color.GetString()!.ToLowerInvariant(), classes[i].GetProperty("color").GetString());
+            bool surface = descriptor[i].TryGetProperty("surface", out var sf) && sf.GetBoolean();
+            Assert.Equal(surface, classes[i].GetProperty("surface").GetBoolean());
         }
 
         var detail = await GetAsync(s.Client, $"/v1/batches/ov/frames/{seq}");
         var regions = detail.GetProperty("regions");
+        // The descriptor's surface classes mark regions without dropping any: a region standing on one is on a surface.
+        var surfaceNames = classes.EnumerateArray().Where(c => c.GetProperty("surface").GetBoolean()).Select(c => c.GetProperty("name").GetString()).ToHashSet();
+        Assert.NotEmpty(surfaceNames);
+        foreach (var r in regions.EnumerateArray())
+            if (surfaceNames.Contains(r.GetProperty("classBeneath").GetString()))
+                Assert.True(r.GetProperty("onSurface").GetBoolean(), r.ToString());
+        Assert.Contains(regions.EnumerateArray(), r => r.GetProperty("onSurface").GetBoolean());
         string beneath = regions[0].GetProperty("classBeneath").GetString()!;
         await s.Client.PutAsJsonAsync($"/v1/batches/ov/frames/{seq}/regions/{regions[0].GetProperty("id").GetInt32()}/decision", new { verdict = "false-alarm" });
         var after = await GetAsync(s.Client, "/v1/batches/ov/review");
