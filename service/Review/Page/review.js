@@ -364,7 +364,9 @@ function renderBoxes() {
   const g = $('layer-boxes');
   g.replaceChildren();
   if (!state.frame) return;
-  const size = Math.max(10, Math.round(Math.min(state.frame.width, state.frame.height) / 22));
+  // Numbers keep one size on screen whatever the zoom: sized from the part of the frame in view.
+  const viewBox = $('stage').viewBox.baseVal;
+  const size = Math.max(4, Math.min(viewBox.width, viewBox.height) / 22);
   for (const r of state.frame.regions) {
     const verdict = r.decision ? r.decision.verdict : null;
     const rect = svg('rect', {
@@ -372,7 +374,7 @@ function renderBoxes() {
       class: 'box' + (verdict ? ' ' + verdict : '') + (state.region === r.id ? ' selected' : ''),
       'data-region': r.id,
     });
-    const tag = svg('text', { x: r.box.x + 2, y: Math.max(size, r.box.y - 3), class: 'tag', 'font-size': size, 'data-region': r.id });
+    const tag = svg('text', { x: r.box.x + size / 6, y: Math.max(viewBox.y + size, r.box.y - size / 6), class: 'tag', 'font-size': size, 'data-region': r.id });
     tag.textContent = String(r.id);
     for (const e of [rect, tag]) e.addEventListener('click', (ev) => { ev.stopPropagation(); selectRegion(r.id); });
     g.append(rect, tag);
@@ -440,7 +442,6 @@ function renderDecision() {
 
 function selectRegion(id) {
   state.region = id;
-  renderBoxes();
   renderRegionTable();
   renderDecision();
   if (id === null) zoomTo(null);
@@ -457,6 +458,7 @@ function zoomTo(region) {
   if (!region) {
     stage.setAttribute('viewBox', '0 0 ' + f.width + ' ' + f.height);
     stage.dataset.zoomed = 'false';
+    renderBoxes();
     return;
   }
   const aspect = f.width / f.height;
@@ -470,6 +472,7 @@ function zoomTo(region) {
   const y = Math.min(Math.max(cy - h / 2, 0), f.height - h);
   stage.setAttribute('viewBox', [x, y, w, h].map((v) => v.toFixed(1)).join(' '));
   stage.dataset.zoomed = 'true';
+  renderBoxes();
 }
 
 function stepRegion(delta) {
