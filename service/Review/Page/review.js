@@ -16,6 +16,7 @@ const state = {
   region: null,       // selected region id, null = whole frame
   urls: [],           // object URLs of the open frame's images, revoked on the next frame
   shown: LIST_PAGE,   // how many frames the list draws
+  drafts: new Map(),  // notes typed but not yet sent, by target, so moving between regions loses none
   loadToken: 0,
 };
 
@@ -428,7 +429,8 @@ function renderDecision() {
   $('target-verdict').replaceChildren(decision
     ? el('span', {}, ['Now: ', verdictSpan(decision.verdict), decision.decidedBy ? ' by ' + decision.decidedBy : ''])
     : el('span', { class: 'muted', text: 'No decision.' }));
-  $('note').value = decision && decision.note ? decision.note : '';
+  const draft = state.frame ? state.drafts.get(draftKey()) : undefined;
+  $('note').value = draft !== undefined ? draft : decision && decision.note ? decision.note : '';
   const enabled = !!state.frame && !state.dropped;
   for (const b of document.querySelectorAll('.verdicts button')) {
     b.disabled = !enabled;
@@ -487,6 +489,10 @@ function stepRegion(delta) {
 
 // ---- Decisions
 
+function draftKey() {
+  return state.batchId + '/' + state.frame.seq + '/' + (state.region === null ? 'frame' : state.region);
+}
+
 function decisionPath() {
   const base = '/v1/batches/' + encodeURIComponent(state.batchId) + '/frames/' + state.frame.seq;
   return state.region === null ? base + '/decision' : base + '/regions/' + state.region + '/decision';
@@ -503,6 +509,7 @@ async function decide(verdict) {
       headers: { 'Content-Type': 'application/json' },
       body: JSON.stringify({ verdict: verdict, note: note || null }),
     });
+    state.drafts.delete(state.batchId + '/' + frame.seq + '/' + (target === null ? 'frame' : target));
     applyDecision(frame, target, stored);
     setStatus((target === null ? 'Frame' : 'Region ' + target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).');
   } catch (e) {
@@ -686,6 +693,12 @@ function wire() {
     if (t && t.decision) decide(t.decision.verdict);
   });
   $('export').addEventListener('click', exportManifest);
+  $('note').addEventListener('input', () => { if (state.frame && !state.dropped) state.drafts.set(draftKey(), $('note').value); });
+  // Leaving the note saves it when the target already has a verdict; otherwise it goes with the verdict.
+  $('note').addEventListener('change', () => {
+    const t = currentTarget();
+    if (t && t.decision && !state.dropped && ($('note').value.trim() || null) !== (t.decision.note || null)) decide(t.decision.verdict);
+  });
   document.addEventListener('keydown', onKey);
 
   const zone = $('drop-zone');

@@ -214,6 +214,45 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
     }
 
     [BrowserFact]
+    public async Task A_note_typed_before_a_verdict_waits_for_it_and_an_edited_note_is_saved_on_leaving_the_field()
+    {
+        await using var s = await StartAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await OpenPageAsync(page, s);
+        int seq = (await OverviewAsync(s.Http)).GetProperty("frames")[0].GetProperty("seq").GetInt32();
+
+        await page.Locator("#region-table tbody tr[data-region='1']").ClickAsync();
+        await page.Locator("#note").FillAsync("looks like a glove");
+        await page.Locator("#region-table tbody tr[data-region='2']").ClickAsync();
+        await Expect(page.Locator("#note")).ToHaveValueAsync("");
+        await page.Locator("#region-table tbody tr[data-region='1']").ClickAsync();
+        await Expect(page.Locator("#note")).ToHaveValueAsync("looks like a glove");
+        await page.Locator(".verdicts button[data-verdict='unsure']").ClickAsync();
+        await Expect(page.Locator("#status")).ToContainTextAsync("Region 1: Unsure (saved)");
+
+        await page.Locator("#note").FillAsync("a glove, dropped by ground crew");
+        await page.Locator("#region-table tbody tr[data-region='2']").ClickAsync();
+        await Expect(page.Locator("#status")).ToContainTextAsync("Region 1: Unsure (saved)");
+        var until = DateTime.UtcNow.AddSeconds(15);
+        string? note;
+        do
+        {
+            var decisions = JsonDocument.Parse(await s.Http.GetStringAsync($"/v1/batches/{Batch}/decisions")).RootElement.GetProperty("decisions");
+            note = decisions.EnumerateArray().Where(d => d.GetProperty("seq").GetInt32() == seq && d.GetProperty("region").ValueKind == JsonValueKind.Number
+                && d.GetProperty("region").GetInt32() == 1).Select(d => d.GetProperty("note").GetString()).SingleOrDefault();
+            if (note == "a glove, dropped by ground crew") break;
+            await Task.Delay(100);
+        } while (DateTime.UtcNow < until);
+        Assert.Equal("a glove, dropped by ground crew", note);
+        // Two writes on region 1, both in the log.
+        var log = JsonDocument.Parse(await s.Http.GetStringAsync($"/v1/batches/{Batch}/decisions/log")).RootElement.GetProperty("entries");
+        Assert.Equal(["looks like a glove", "a glove, dropped by ground crew"], log.EnumerateArray().Select(e => e.GetProperty("note").GetString()));
+        session.AssertNoConsoleErrors();
+        session.AssertNoFailedRequests();
+    }
+
+    [BrowserFact]
     public async Task A_dropped_frame_is_scored_on_the_spot_and_shown_without_decisions()
     {
         await using var s = await StartAsync();
