@@ -221,7 +221,6 @@ public sealed class RegionFinder
                 if (k >= classCount) throw ClassOutOfRange(k, classCount);
                 if (_classCounts[k]++ == 0) _touchedClasses[touched++] = k;
             }
-            if (surfaceKnown && !touches) touches = TouchesSurface(mask, cls, classCount, y, s, e);
         }
 
         int majority = -1, best = 0;
@@ -230,6 +229,15 @@ public sealed class RegionFinder
             int k = _touchedClasses[t], n = _classCounts[k];
             if (n > best || (n == best && k < majority)) { best = n; majority = k; }
             _classCounts[k] = 0;
+        }
+        // Touching a surface matters only when the region does not stand on one: most regions on an apron do.
+        if (surfaceKnown && !_isSurface[majority])
+        {
+            for (int o = _componentFirst[c]; o < _componentFirst[c + 1] && !touches; o++)
+            {
+                int r = _runOrder[o];
+                touches = TouchesSurface(mask, cls, classCount, _runRow[r], _runStart[r], _runEnd[r]);
+            }
         }
         bool onSurface = surfaceKnown && (_isSurface[majority] || touches);
         if (surfaceKnown && keepOnlyOnSurface && !onSurface) return null;

@@ -78,8 +78,6 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
     /// <summary>File names a frame's images are served under: its source, then its artifacts.</summary>
     public static readonly IReadOnlyList<string> FrameFiles = ["source", .. ArtifactWriter.All, "report"];
 
-    public BatchService Batches => batches;
-
     public BatchRecord Batch(string id) =>
         (BatchService.IsBatchId(id) ? batches.Store.Get(id) : null)
         ?? throw new ReviewException(Api.ErrorCodes.BatchNotFound, $"There is no batch '{id}'; GET /v1/batches lists them.");
@@ -98,9 +96,8 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             else decided[d.Seq] = decided.GetValueOrDefault(d.Seq) + 1;
         }
         var items = new List<ReviewFrameItem>();
-        var ranked = frames.Where(f => withFrames && f.State == FrameStates.Done)
-            .OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq);
-        foreach (var f in ranked)
+        var ranked = withFrames ? frames.Where(f => f.State == FrameStates.Done) : [];
+        foreach (var f in ranked.OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq))
             items.Add(new ReviewFrameItem(f.Seq, f.FrameId, f.FrameScore, f.RegionCount ?? 0, decided.GetValueOrDefault(f.Seq),
                 frameVerdicts.GetValueOrDefault(f.Seq)));
 

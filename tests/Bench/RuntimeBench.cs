@@ -55,6 +55,24 @@ public static class RuntimeBench
             Row("whole frame path, 1024×512 (preprocess + inference + full method + regions)", whole,
                 $"post-hoc stages {scoring:0.0} ms = {scoring / network:0.00}× the network's {network:0.0} ms");
 
+            // The descriptor's surface classes mark each region on or off a surface: its cost, alternating with and
+            // without so both see the same machine.
+            // A scorer of its own for each, so each reuses its pipeline as the service does.
+            var unmarkedScorer = new FrameScorer(bundle.Model, bundle.Statistics, bundle.Scorer.Defaults with { MarkedSurfaceClasses = null });
+            var withMarks = new List<double>();
+            var withoutMarks = new List<double>();
+            for (int i = 0; i < runs + 2; i++)
+            {
+                var a = bundle.Scorer.Score(frame, (_, t) => t).Scoring.TotalMilliseconds;
+                var b = unmarkedScorer.Score(frame, (_, t) => t).Scoring.TotalMilliseconds;
+                if (i < 2) continue;
+                withMarks.Add(a);
+                withoutMarks.Add(b);
+            }
+            double markedMs = Measure.Median(withMarks), unmarkedMs = Measure.Median(withoutMarks);
+            Row("post-hoc stages, regions marked on or off the descriptor's surface classes", markedMs,
+                $"{unmarkedMs:0.0} ms without marking: {markedMs / unmarkedMs:0.00}×");
+
             string calibFrames = Path.Combine(root, "calibration-frames");
             Directory.CreateDirectory(calibFrames);
             const int calibCount = 8;
