@@ -33,7 +33,7 @@ public static class EvaluationsApi
                 if (job.State != "done")
                     return ApiProblems.Create(ErrorCodes.JobNotFinished, $"Evaluation {id} is {job.State}; its files come when it is done.");
                 return jobs.FileOf(job, name) is { } path
-                    ? TypedResults.PhysicalFile(path, ContentType(name))
+                    ? TypedResults.PhysicalFile(path, ContentTypes.Of(path))
                     : ApiProblems.Create(ErrorCodes.NotFound, $"Evaluation {id} has no file '{name}'; its files are {string.Join(", ", EvaluationJobs.OutputFiles)}.");
             })
             .WithTags("Evaluations");
@@ -53,14 +53,6 @@ public static class EvaluationsApi
         });
         return TypedResults.Accepted($"/v1/evaluations/{job.Id}", job);
     }
-
-    private static string ContentType(string name) => Path.GetExtension(name) switch
-    {
-        ".png" => "image/png",
-        ".json" => "application/json",
-        ".csv" => "text/csv",
-        _ => "text/markdown",
-    };
 
     private static ProblemHttpResult JobNotFound(string id) =>
         ApiProblems.Create(ErrorCodes.JobNotFound, $"No evaluation job '{id}'; GET /v1/evaluations lists them.");

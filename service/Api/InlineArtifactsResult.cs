@@ -25,7 +25,7 @@ public sealed class InlineArtifactsResult(ScoredFrame answer, string? folder) : 
                 var stream = File.OpenRead(Path.Combine(folder, file));
                 streams.Add(stream);
                 var part = new StreamContent(stream);
-                part.Headers.ContentType = new MediaTypeHeaderValue(file.EndsWith(".png", StringComparison.Ordinal) ? "image/png" : "application/octet-stream");
+                part.Headers.ContentType = new MediaTypeHeaderValue(Hosting.ContentTypes.Of(file));
                 part.Headers.ContentDisposition = new ContentDispositionHeaderValue("attachment") { Name = name, FileName = file };
                 content.Add(part);
             }

@@ -133,9 +133,10 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         for (int i = 0; i < regions.Count; i++)
             if (byRegion.TryGetValue(regions[i].Id, out var d)) regions[i] = regions[i] with { Decision = DecisionMark.From(d) };
         var report = ReadReport(batch, frame);
+        var (width, height) = report is null ? MaskSize(batch, frame) : (report.Frame.Width, report.Frame.Height);
         var files = FrameFiles.ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
         return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, report?.Threshold, report?.ScoreRange,
-            report?.Frame.Width ?? 0, report?.Frame.Height ?? 0, regions, frameDecision, files);
+            width, height, regions, frameDecision, files);
     }
 
     /// <summary>The file behind one of <see cref="FrameFiles"/>: its path and content type.</summary>
@@ -150,7 +151,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             catch (UnsafePathException e) { throw new ReviewException(Api.ErrorCodes.PathOutsideData, e.Message); }
             if (!File.Exists(path))
                 throw new ReviewException(Api.ErrorCodes.ArtifactNotFound, $"The source of frame {seq} ('{frame.SourcePath}') is no longer on disk.");
-            return (path, ImageType(path));
+            return (path, ContentTypes.Of(path));
         }
         string folder = Path.Combine(batches.BatchFolder(id), Path.GetDirectoryName(frame.ReportPath!)!);
         string? file = name == "report" ? FrameOutput.ReportFile : ArtifactWriter.Files.GetValueOrDefault(name);
@@ -159,7 +160,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         string full = Path.Combine(folder, file);
         if (!File.Exists(full))
             throw new ReviewException(Api.ErrorCodes.ArtifactNotFound, $"Frame {seq} has no '{name}' file on disk.");
-        return (full, Path.GetExtension(file) switch { ".png" => "image/png", ".json" => "application/json", _ => "application/octet-stream" });
+        return (full, ContentTypes.Of(full));
     }
 
     /// <summary>Stores a decision on a region (or, with <paramref name="region"/> null, on the whole frame); last write wins.</summary>
@@ -233,15 +234,22 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         }
         catch (Exception e) when (e is IOException or JsonException or UnauthorizedAccessException)
         {
-            return null; // the list still works without the sizes; the page falls back to the image's own size
+            return null; // the frame can still be shown: its size comes from the mask instead
         }
     }
 
-    private static string ImageType(string path) => Path.GetExtension(path).ToLowerInvariant() switch
+    /// <summary>The frame's size read from its mask's header, for a frame whose report is unreadable; 0×0 without one.</summary>
+    private (int Width, int Height) MaskSize(BatchRecord batch, FrameRecord frame)
     {
-        ".png" => "image/png",
-        ".jpg" or ".jpeg" => "image/jpeg",
-        ".webp" => "image/webp",
-        _ => "application/octet-stream",
-    };
+        string path = Path.Combine(batches.BatchFolder(batch.Id), Path.GetDirectoryName(frame.ReportPath!)!, ArtifactWriter.Files["mask"]);
+        try
+        {
+            var info = SixLabors.ImageSharp.Image.Identify(path);
+            return info is null ? (0, 0) : (info.Width, info.Height);
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or SixLabors.ImageSharp.ImageFormatException)
+        {
+            return (0, 0);
+        }
+    }
 }

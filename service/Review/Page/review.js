@@ -300,6 +300,10 @@ function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
   state.frame = frame;
   state.region = null;
   const w = frame.width, h = frame.height;
+  if (!w || !h) {
+    clearFrame(frame.frameId + ': its report and mask are missing from the batch folder, so it cannot be shown.');
+    return;
+  }
   const stage = $('stage');
   stage.setAttribute('viewBox', '0 0 ' + w + ' ' + h);
   for (const id of ['layer-source', 'layer-heat', 'layer-outline']) {

@@ -92,6 +92,13 @@ public class ReviewApiTests
         var report = await s.Client.GetAsync(files.GetProperty("report").GetString());
         Assert.Equal("application/json", report.Content.Headers.ContentType?.MediaType);
 
+        // A damaged report still leaves the frame viewable: its size then comes from the mask.
+        string reportFile = Path.Combine(s.DataRoot, "batches", "fr", "frames", $"{seq:D5}", "report.json");
+        Assert.True(File.Exists(reportFile), reportFile);
+        File.WriteAllText(reportFile, "{ not json");
+        var damaged = await GetAsync(s.Client, $"/v1/batches/fr/frames/{seq}");
+        Assert.Equal((Width, Height), (damaged.GetProperty("width").GetInt32(), damaged.GetProperty("height").GetInt32()));
+
         var unknown = await s.Client.GetAsync($"/v1/batches/fr/frames/{seq}/files/..%2Fmanifest.jsonl");
         Assert.Equal(HttpStatusCode.NotFound, unknown.StatusCode);
         Assert.Equal("artifact-not-found", JsonDocument.Parse(await unknown.Content.ReadAsStringAsync()).RootElement.GetProperty("code").GetString());
