@@ -31,13 +31,9 @@ public sealed partial class BatchStore
             """);
         // Frames scored before the index existed: filled once, from their stored regions.
         using var tx = _db.BeginTransaction();
-        using var cmd = _db.CreateCommand();
-        cmd.Transaction = tx;
-        cmd.CommandText = "SELECT batch_id, seq, regions_json FROM frames f WHERE state = 'done' AND region_count > 0 AND regions_json IS NOT NULL " +
-                          "AND NOT EXISTS (SELECT 1 FROM frame_regions r WHERE r.batch_id = f.batch_id AND r.seq = f.seq)";
-        var missing = new List<(string Batch, int Seq, string Json)>();
-        using (var r = cmd.ExecuteReader())
-            while (r.Read()) missing.Add((r.GetString(0), r.GetInt32(1), r.GetString(2)));
+        var missing = Query(tx, "SELECT batch_id, seq, regions_json FROM frames f WHERE state = 'done' AND region_count > 0 AND regions_json IS NOT NULL " +
+                                "AND NOT EXISTS (SELECT 1 FROM frame_regions r WHERE r.batch_id = f.batch_id AND r.seq = f.seq)",
+            r => (Batch: r.GetString(0), Seq: r.GetInt32(1), Json: r.GetString(2)));
         foreach (var (batch, seq, json) in missing) IndexRegions(tx, batch, seq, json);
         tx.Commit();
     }
@@ -68,13 +64,9 @@ public sealed partial class BatchStore
     {
         lock (_gate)
         {
-            using var cmd = _db.CreateCommand();
-            cmd.CommandText = "SELECT seq, region, class_beneath, max_score FROM frame_regions WHERE batch_id = $id ORDER BY seq, region";
-            cmd.Parameters.AddWithValue("$id", batchId);
-            var list = new List<RegionBrief>();
-            using var r = cmd.ExecuteReader();
-            while (r.Read()) list.Add(new RegionBrief(r.GetInt32(0), r.GetInt32(1), r.GetString(2), (float)r.GetDouble(3)));
-            return list;
+            return Query(null, "SELECT seq, region, class_beneath, max_score FROM frame_regions WHERE batch_id = $id ORDER BY seq, region",
+                r => new RegionBrief(r.GetInt32(0), r.GetInt32(1), r.GetString(2), (float)r.GetDouble(3)),
+                ("$id", batchId));
         }
     }
 
@@ -152,22 +144,12 @@ public sealed partial class BatchStore
     {
         lock (_gate)
         {
-            using var cmd = _db.CreateCommand();
-            cmd.CommandText = "SELECT l.*, f.frame_id FROM decision_log l JOIN frames f ON f.batch_id = l.batch_id AND f.seq = l.seq " +
-                              "WHERE l.batch_id = $id AND l.revision > $after ORDER BY l.revision LIMIT $limit";
-            cmd.Parameters.AddWithValue("$id", batchId);
-            cmd.Parameters.AddWithValue("$after", after);
-            cmd.Parameters.AddWithValue("$limit", limit);
-            var list = new List<DecisionEntry>();
-            using var r = cmd.ExecuteReader();
-            while (r.Read())
-            {
-                int region = r.GetInt32(r.GetOrdinal("region"));
-                list.Add(new DecisionEntry(r.GetInt64(r.GetOrdinal("revision")), r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")),
-                    region == WholeFrame ? null : region, Str(r, "verdict"), Str(r, "note"), Str(r, "decided_by"),
-                    ParseTime(r.GetString(r.GetOrdinal("decided_at")))));
-            }
-            return list;
+            return Query(null, "SELECT l.*, f.frame_id FROM decision_log l JOIN frames f ON f.batch_id = l.batch_id AND f.seq = l.seq " +
+                               "WHERE l.batch_id = $id AND l.revision > $after ORDER BY l.revision LIMIT $limit",
+                r => new DecisionEntry(r.GetInt64(r.GetOrdinal("revision")), r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")),
+                    Target(r.GetInt32(r.GetOrdinal("region"))), Str(r, "verdict"), Str(r, "note"), Str(r, "decided_by"),
+                    ParseTime(r.GetString(r.GetOrdinal("decided_at")))),
+                ("$id", batchId), ("$after", after), ("$limit", limit));
         }
     }
 
@@ -178,22 +160,14 @@ public sealed partial class BatchStore
         return Convert.ToInt64(Scalar(tx, "SELECT last_insert_rowid()"), CultureInfo.InvariantCulture);
     }
 
-    private List<Decision> ReadDecisions(SqliteTransaction? tx, string where, params (string Name, object? Value)[] args)
-    {
-        using var cmd = _db.CreateCommand();
-        cmd.Transaction = tx;
-        cmd.CommandText = "SELECT d.*, f.frame_id FROM decisions d JOIN frames f ON f.batch_id = d.batch_id AND f.seq = d.seq " +
-                          where + " ORDER BY d.seq, d.region";
-        foreach (var (n, v) in args) cmd.Parameters.AddWithValue(n, v ?? DBNull.Value);
-        var list = new List<Decision>();
-        using var r = cmd.ExecuteReader();
-        while (r.Read())
-        {
-            int region = r.GetInt32(r.GetOrdinal("region"));
-            list.Add(new Decision(r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")), region == WholeFrame ? null : region,
+    private List<Decision> ReadDecisions(SqliteTransaction? tx, string where, params (string Name, object? Value)[] args) =>
+        Query(tx, "SELECT d.*, f.frame_id FROM decisions d JOIN frames f ON f.batch_id = d.batch_id AND f.seq = d.seq " + where +
+                  " ORDER BY d.seq, d.region",
+            r => new Decision(r.GetInt32(r.GetOrdinal("seq")), r.GetString(r.GetOrdinal("frame_id")), Target(r.GetInt32(r.GetOrdinal("region"))),
                 r.GetString(r.GetOrdinal("verdict")), Str(r, "note"), Str(r, "decided_by"),
-                ParseTime(r.GetString(r.GetOrdinal("decided_at"))), r.GetInt64(r.GetOrdinal("revision"))));
-        }
-        return list;
-    }
+                ParseTime(r.GetString(r.GetOrdinal("decided_at"))), r.GetInt64(r.GetOrdinal("revision"))),
+            args);
+
+    /// <summary>The region a stored row names, null for the whole frame.</summary>
+    private static int? Target(int region) => region == WholeFrame ? null : region;
 }

@@ -207,15 +207,10 @@ public sealed partial class BatchStore : IDisposable
     {
         lock (_gate)
         {
-            using var cmd = _db.CreateCommand();
-            cmd.CommandText = "SELECT seq, frame_id, state, frame_score, region_count FROM frames WHERE batch_id = $id ORDER BY seq";
-            cmd.Parameters.AddWithValue("$id", batchId);
-            var list = new List<FrameSummary>();
-            using var r = cmd.ExecuteReader();
-            while (r.Read())
-                list.Add(new FrameSummary(r.GetInt32(0), r.GetString(1), r.GetString(2), r.IsDBNull(3) ? null : (float)r.GetDouble(3),
-                    r.IsDBNull(4) ? null : r.GetInt32(4)));
-            return list;
+            return Query(null, "SELECT seq, frame_id, state, frame_score, region_count FROM frames WHERE batch_id = $id ORDER BY seq",
+                r => new FrameSummary(r.GetInt32(0), r.GetString(1), r.GetString(2), r.IsDBNull(3) ? null : (float)r.GetDouble(3),
+                    r.IsDBNull(4) ? null : r.GetInt32(4)),
+                ("$id", batchId));
         }
     }
 
@@ -368,6 +363,19 @@ public sealed partial class BatchStore : IDisposable
         cmd.CommandText = sql;
         foreach (var (n, v) in args) cmd.Parameters.AddWithValue(n, v ?? DBNull.Value);
         return cmd.ExecuteNonQuery();
+    }
+
+    /// <summary>Runs a query and turns each row into a <typeparamref name="T"/>.</summary>
+    private List<T> Query<T>(SqliteTransaction? tx, string sql, Func<SqliteDataReader, T> row, params (string Name, object? Value)[] args)
+    {
+        using var cmd = _db.CreateCommand();
+        cmd.Transaction = tx;
+        cmd.CommandText = sql;
+        foreach (var (n, v) in args) cmd.Parameters.AddWithValue(n, v ?? DBNull.Value);
+        var list = new List<T>();
+        using var r = cmd.ExecuteReader();
+        while (r.Read()) list.Add(row(r));
+        return list;
     }
 
     private object? Scalar(SqliteTransaction? tx, string sql, params (string Name, object? Value)[] args)

@@ -26,6 +26,22 @@ public class RegionFinderTests
         return c;
     }
 
+    /// <summary>Classes 2 = sky, 0 = apron: one mask pixel with only sky around it, and a pair standing on the apron.</summary>
+    private static (ushort[] Classes, byte[] Mask, int W, int H) SkyPixelAndApronPair()
+    {
+        var cls = Classes(
+            "22222",
+            "22222",
+            "22220",
+            "00222");
+        var (mask, w, h) = Mask(
+            ".....",
+            "..#..",   // all 8-neighbours are sky: off the surface
+            ".....",
+            "##...");  // covers two apron pixels: majority apron, on the surface
+        return (cls, mask, w, h);
+    }
+
     [Fact]
     public void Surface_filter_keeps_regions_on_or_touching_a_surface_class()
     {
@@ -65,16 +81,8 @@ public class RegionFinderTests
     [Fact]
     public void Surface_classes_that_only_mark_keep_every_region_and_say_which_lie_on_a_surface()
     {
-        var cls = Classes(
-            "22222",
-            "22222",
-            "22220",
-            "00222");
-        var (mask, w, h) = Mask(
-            ".....",
-            "..#..",   // all 8-neighbours are sky -> off the surface, but kept
-            ".....",
-            "##...");  // majority apron -> on
+        // The sky pixel and the apron pair of the test below, marked instead of filtered.
+        var (cls, mask, w, h) = SkyPixelAndApronPair();
         var set = new RegionFinder().Find(mask, w, h, new float[w * h], cls, 3, new RegionFilter(1, new[] { 0 }, KeepOnlyOnSurface: false));
         Assert.Equal(0, set.DroppedBySurface);
         Assert.Collection(set.Regions,
@@ -93,16 +101,7 @@ public class RegionFinderTests
     [Fact]
     public void Diagonal_surface_neighbour_counts_as_touching_but_surface_pixels_inside_a_minority_do_not()
     {
-        var cls = Classes(
-            "22222",
-            "22222",
-            "22220",
-            "00222");
-        var (mask, w, h) = Mask(
-            ".....",
-            "..#..",   // all 8-neighbours are sky -> dropped
-            ".....",
-            "##...");  // covers two apron pixels: majority apron -> on
+        var (cls, mask, w, h) = SkyPixelAndApronPair();
         var set = new RegionFinder().Find(mask, w, h, new float[w * h], cls, 3, new RegionFilter(1, new[] { 0 }));
         Assert.Equal(2, set.ComponentsFound);
         Assert.Single(set.Regions);

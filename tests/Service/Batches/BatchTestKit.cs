@@ -70,6 +70,14 @@ public static class BatchTestKit
         return JsonDocument.Parse(body).RootElement;
     }
 
+    /// <summary>Writes frames into <paramref name="folder"/> under the data root, submits them as a batch and waits until it is done.</summary>
+    public static async Task<JsonElement> DoneBatchAsync(TestService s, string folder, string batchId, int frames, int debris = 0)
+    {
+        WriteFrames(Path.Combine(s.DataRoot, folder), frames, debris);
+        await PostFolderAsync(s.Client, folder, batchId: batchId);
+        return await WaitForStateAsync(s.Client, batchId, "done");
+    }
+
     public static async Task<JsonElement> GetAsync(HttpClient client, string path)
     {
         var r = await client.GetAsync(path);

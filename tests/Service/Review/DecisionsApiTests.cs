@@ -15,9 +15,7 @@ public class DecisionsApiTests
     private static async Task<(TestService Service, int Seq, int Regions)> ScoredBatchAsync(string batchId = "rev")
     {
         var s = await StartAsync();
-        WriteFrames(Path.Combine(s.DataRoot, "apron"), 4, debris: 2);
-        await PostFolderAsync(s.Client, "apron", batchId: batchId);
-        await WaitForStateAsync(s.Client, batchId, "done");
+        await DoneBatchAsync(s, "apron", batchId, 4, debris: 2);
         var frames = (await GetAsync(s.Client, $"/v1/batches/{batchId}/frames")).GetProperty("frames").EnumerateArray()
             .Where(f => f.GetProperty("regionCount").GetInt32() > 0).ToList();
         Assert.NotEmpty(frames);

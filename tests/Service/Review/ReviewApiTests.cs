@@ -14,9 +14,7 @@ public class ReviewApiTests
     public async Task Overview_ranks_scored_frames_counts_decisions_and_names_what_produced_the_scores()
     {
         await using var s = await StartAsync();
-        WriteFrames(Path.Combine(s.DataRoot, "apron"), 4, debris: 2);
-        await PostFolderAsync(s.Client, "apron", batchId: "ov");
-        await WaitForStateAsync(s.Client, "ov", "done");
+        await DoneBatchAsync(s, "apron", "ov", 4, debris: 2);
         var first = await GetAsync(s.Client, "/v1/batches/ov/review");
         var frames = first.GetProperty("frames").EnumerateArray().ToList();
         Assert.Equal(4, frames.Count);
@@ -71,9 +69,7 @@ public class ReviewApiTests
     public async Task A_frame_lists_its_regions_and_serves_its_source_and_artifacts_at_frame_size()
     {
         await using var s = await StartAsync();
-        WriteFrames(Path.Combine(s.DataRoot, "apron"), 2, debris: 1);
-        await PostFolderAsync(s.Client, "apron", batchId: "fr");
-        await WaitForStateAsync(s.Client, "fr", "done");
+        await DoneBatchAsync(s, "apron", "fr", 2, debris: 1);
         var overview = await GetAsync(s.Client, "/v1/batches/fr/review");
         int seq = overview.GetProperty("frames")[0].GetProperty("seq").GetInt32();
         var frame = await GetAsync(s.Client, $"/v1/batches/fr/frames/{seq}");
@@ -125,9 +121,7 @@ public class ReviewApiTests
     {
         await using var s = await StartAsync();
         Evaluation.EvaluationFixtures.WriteFlatDataset(Path.Combine(s.DataRoot, "labeled"), frames: 2);
-        WriteFrames(Path.Combine(s.DataRoot, "apron"), 1);
-        await PostFolderAsync(s.Client, "apron", batchId: "ev");
-        await WaitForStateAsync(s.Client, "ev", "done");
+        await DoneBatchAsync(s, "apron", "ev", 1);
         Assert.Equal(JsonValueKind.Null, (await GetAsync(s.Client, "/v1/batches/ev/review")).GetProperty("evaluation").ValueKind);
 
         var start = await s.Client.PostAsJsonAsync($"/v1/models/{Model}/evaluations", new { dataset = "labeled" });
