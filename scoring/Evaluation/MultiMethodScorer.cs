@@ -23,49 +23,52 @@ public enum EvaluatedMethod
     Full,
 }
 
-/// <summary>Names and pipeline equivalents of the evaluated methods.</summary>
+/// <summary>
+/// Names and pipeline equivalents of the evaluated methods: each scoring method of <see cref="ScoringMethods"/>
+/// under its own name, then the SML chain's later steps (a test holds this list to the table).
+/// </summary>
 public static class EvaluatedMethods
 {
     public static IReadOnlyList<EvaluatedMethod> All { get; } =
         [EvaluatedMethod.Msp, EvaluatedMethod.MaxLogit, EvaluatedMethod.Entropy, EvaluatedMethod.Energy,
          EvaluatedMethod.Sml, EvaluatedMethod.SmlBoundary, EvaluatedMethod.Full];
 
-    /// <summary>The name used in reports and files.</summary>
-    public static string Name(EvaluatedMethod method) => method switch
+    /// <summary>The scoring method whose score the boundary and smoothing steps refine.</summary>
+    public const ScoreMethod ChainBase = ScoreMethod.Sml;
+
+    /// <summary>The scoring method an evaluated method's score starts from.</summary>
+    public static ScoreMethod BaseOf(EvaluatedMethod method) => method switch
     {
-        EvaluatedMethod.Msp => "msp",
-        EvaluatedMethod.MaxLogit => "maxlogit",
-        EvaluatedMethod.Entropy => "entropy",
-        EvaluatedMethod.Energy => "energy",
-        EvaluatedMethod.Sml => "sml",
-        EvaluatedMethod.SmlBoundary => "sml+boundary",
-        EvaluatedMethod.Full => "sml+boundary+smoothing",
+        EvaluatedMethod.Msp => ScoreMethod.Msp,
+        EvaluatedMethod.MaxLogit => ScoreMethod.MaxLogit,
+        EvaluatedMethod.Entropy => ScoreMethod.Entropy,
+        EvaluatedMethod.Energy => ScoreMethod.Energy,
+        EvaluatedMethod.Sml or EvaluatedMethod.SmlBoundary or EvaluatedMethod.Full => ChainBase,
         _ => throw new ArgumentOutOfRangeException(nameof(method), method, "Unknown evaluated method."),
     };
 
-    public static bool NeedsStatistics(EvaluatedMethod method) => method >= EvaluatedMethod.Sml;
+    /// <summary>Boundary suppression applied after the base score.</summary>
+    public static bool Boundary(EvaluatedMethod method) => method is EvaluatedMethod.SmlBoundary or EvaluatedMethod.Full;
+
+    /// <summary>Dilated smoothing applied after boundary suppression.</summary>
+    public static bool Smoothing(EvaluatedMethod method) => method is EvaluatedMethod.Full;
+
+    /// <summary>The name used in reports and files: the scoring method's name, then the steps after it.</summary>
+    public static string Name(EvaluatedMethod method) =>
+        ScoringMethods.Of(BaseOf(method)).Name + (Boundary(method) ? "+boundary" : "") + (Smoothing(method) ? "+smoothing" : "");
+
+    public static bool NeedsStatistics(EvaluatedMethod method) => ScoringMethods.Of(BaseOf(method)).NeedsStatistics;
 
     /// <summary>
     /// The <see cref="ScoringOptions"/> under which <see cref="FramePipeline"/> produces the same anomaly score map:
     /// the stage parameters, energy temperature, threshold and region filter come from <paramref name="baseOptions"/>.
     /// </summary>
-    public static ScoringOptions OptionsFor(EvaluatedMethod method, ScoringOptions baseOptions)
+    public static ScoringOptions OptionsFor(EvaluatedMethod method, ScoringOptions baseOptions) => baseOptions with
     {
-        var scoreMethod = method switch
-        {
-            EvaluatedMethod.Msp => ScoreMethod.Msp,
-            EvaluatedMethod.MaxLogit => ScoreMethod.MaxLogit,
-            EvaluatedMethod.Entropy => ScoreMethod.Entropy,
-            EvaluatedMethod.Energy => ScoreMethod.Energy,
-            _ => ScoreMethod.Sml,
-        };
-        return baseOptions with
-        {
-            Method = scoreMethod,
-            BoundarySuppression = baseOptions.BoundarySuppression with { Enabled = method >= EvaluatedMethod.SmlBoundary },
-            Smoothing = baseOptions.Smoothing with { Enabled = method == EvaluatedMethod.Full },
-        };
-    }
+        Method = BaseOf(method),
+        BoundarySuppression = baseOptions.BoundarySuppression with { Enabled = Boundary(method) },
+        Smoothing = baseOptions.Smoothing with { Enabled = Smoothing(method) },
+    };
 }
 
 /// <summary>What a <see cref="MultiMethodScorer"/> computes and how it counts.</summary>
@@ -87,6 +90,8 @@ public sealed record MultiMethodOptions
     /// <summary>When set, region metrics of <see cref="EvaluatedMethod.Full"/> are accumulated with the mask
     /// "score strictly above this" (the pipeline's mask rule).</summary>
     public float? RegionThreshold { get; init; }
+    /// <summary>Threads per frame in the reduction (−1: the runtime decides); the host sets it.</summary>
+    public int MaxDegreeOfParallelism { get; init; } = -1;
 }
 
 /// <summary>One method's result over all accumulated frames.</summary>
@@ -112,6 +117,7 @@ public sealed class MultiMethodScorer
     private readonly PixelReduction _reduction;
     private readonly ReducedMaps _maps = new();
     private readonly StandardizedMaxLogit? _sml;
+    private readonly bool _chain;
     private readonly BoundarySuppression? _boundary;
     private readonly DilatedSmoothing? _smoothing;
     private readonly float[][] _score = new float[EvaluatedMethods.All.Count][];
@@ -144,12 +150,10 @@ public sealed class MultiMethodScorer
             throw new ScoringInputException(EvaluationErrorCodes.Argument,
                 $"Region metrics need a finite threshold and the full method among the methods; got threshold {t}.");
 
-        var outputs = ReductionOutputs.None;
-        if (_wanted[(int)EvaluatedMethod.Msp]) outputs |= ReductionOutputs.Msp;
-        if (_wanted[(int)EvaluatedMethod.Entropy]) outputs |= ReductionOutputs.Entropy;
-        if (_wanted[(int)EvaluatedMethod.Energy]) outputs |= ReductionOutputs.Energy;
-        _reduction = new PixelReduction(outputs, baseOptions.EnergyTemperature);
+        var outputs = ScoringMethods.OutputsOf(_methods.Select(EvaluatedMethods.BaseOf));
+        _reduction = new PixelReduction(outputs, baseOptions.EnergyTemperature) { MaxDegreeOfParallelism = _options.MaxDegreeOfParallelism };
 
+        _chain = _methods.Any(m => EvaluatedMethods.BaseOf(m) == EvaluatedMethods.ChainBase);
         bool anySml = _methods.Any(EvaluatedMethods.NeedsStatistics);
         if (anySml)
         {
@@ -174,6 +178,9 @@ public sealed class MultiMethodScorer
     public int Height { get; private set; }
     public int PixelCount => Width * Height;
     public int FramesAccumulated { get; private set; }
+
+    /// <summary>Max logit of the last scored frame (for the drift watch).</summary>
+    public ReadOnlySpan<float> MaxLogit => _maps.MaxLogit;
 
     /// <summary>Predicted class of the last scored frame.</summary>
     public ReadOnlySpan<ushort> ClassIndex => _maps.ClassIndex;
@@ -201,16 +208,18 @@ public sealed class MultiMethodScorer
         foreach (var m in _methods)
             if (_score[(int)m].Length < n) _score[(int)m] = new float[n];
 
-        if (_wanted[(int)EvaluatedMethod.Msp]) TensorPrimitives.Negate(_maps.Msp, Buffer(EvaluatedMethod.Msp, n));
-        if (_wanted[(int)EvaluatedMethod.MaxLogit]) TensorPrimitives.Negate(_maps.MaxLogit, Buffer(EvaluatedMethod.MaxLogit, n));
-        if (_wanted[(int)EvaluatedMethod.Entropy]) _maps.Entropy.CopyTo(Buffer(EvaluatedMethod.Entropy, n));
-        if (_wanted[(int)EvaluatedMethod.Energy]) _maps.Energy.CopyTo(Buffer(EvaluatedMethod.Energy, n));
-        if (_sml is null) return;
+        foreach (var m in _methods)
+        {
+            // The chain's steps are made below, each from the one before.
+            if (EvaluatedMethods.BaseOf(m) == EvaluatedMethods.ChainBase) continue;
+            var method = ScoringMethods.Of(EvaluatedMethods.BaseOf(m));
+            method.Kernel(_maps, method.NeedsStatistics ? _sml : null, Buffer(m, n));
+        }
+        if (_sml is null || !_chain) return;
 
         // Each SML step starts from the previous step's map, so the chain costs what the full method alone costs.
         var chain = ChainBuffer(EvaluatedMethod.Sml, n);
-        _sml.Apply(_maps.MaxLogit, _maps.ClassIndex, chain);
-        TensorPrimitives.Negate(chain, chain);
+        ScoringMethods.Of(EvaluatedMethods.ChainBase).Kernel(_maps, _sml, chain);
         if (_boundary is null) return;
         var next = ChainBuffer(EvaluatedMethod.SmlBoundary, n);
         if (next != chain) { chain.CopyTo(next); chain = next; }

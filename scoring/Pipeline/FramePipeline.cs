@@ -16,6 +16,7 @@ namespace Strayspot.Scoring.Pipeline;
 public sealed class FramePipeline
 {
     private readonly ScoringOptions _options;
+    private readonly ScoringMethod _method;
     private readonly PixelReduction _reduction;
     private readonly StandardizedMaxLogit? _sml;
     private readonly BoundarySuppression? _boundary;
@@ -27,17 +28,19 @@ public sealed class FramePipeline
     private float[] _score = [];
     private byte[] _mask = [];
 
-    public FramePipeline(ScoringOptions options, ClassStatistics? statistics)
+    /// <param name="maxDegreeOfParallelism">Threads per frame in the parallel stages (−1: the runtime decides); the host sets it.</param>
+    public FramePipeline(ScoringOptions options, ClassStatistics? statistics, int maxDegreeOfParallelism = -1)
     {
         options.Validate();
         _options = options;
-        _outputs = OutputsFor(options.Method);
-        _reduction = new PixelReduction(_outputs, options.EnergyTemperature);
-        if (options.Method == ScoreMethod.Sml)
+        _method = ScoringMethods.Of(options.Method);
+        _outputs = _method.Outputs;
+        _reduction = new PixelReduction(_outputs, options.EnergyTemperature) { MaxDegreeOfParallelism = maxDegreeOfParallelism };
+        if (_method.NeedsStatistics)
         {
             if (statistics is null)
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
-                    "The SML method needs class statistics (a calibration or statistics file); none were given.");
+                    $"The {_method.Name} method needs class statistics (a calibration or statistics file); none were given.");
             _sml = new StandardizedMaxLogit(statistics);
         }
         Statistics = statistics;
@@ -50,13 +53,7 @@ public sealed class FramePipeline
     public ClassStatistics? Statistics { get; }
 
     /// <summary>The reduction outputs a method reads besides class and max logit.</summary>
-    public static ReductionOutputs OutputsFor(ScoreMethod method) => method switch
-    {
-        ScoreMethod.Msp => ReductionOutputs.Msp,
-        ScoreMethod.Entropy => ReductionOutputs.Entropy,
-        ScoreMethod.Energy => ReductionOutputs.Energy,
-        _ => ReductionOutputs.None,
-    };
+    public static ReductionOutputs OutputsFor(ScoreMethod method) => ScoringMethods.Of(method).Outputs;
 
     /// <summary>Scores one frame's logits, resized to the frame's <paramref name="frameHeight"/>×<paramref name="frameWidth"/>.</summary>
     public FrameScoring Score(LogitsView logits, int frameHeight, int frameWidth)
@@ -100,29 +97,7 @@ public sealed class FramePipeline
             frameScore, flagged, timings) { LogitsHeight = logits.Height, LogitsWidth = logits.Width };
     }
 
-    // One sign convention everywhere: higher means more anomalous.
-    private void AnomalyScore(Span<float> score)
-    {
-        switch (_options.Method)
-        {
-            case ScoreMethod.Sml:
-                _sml!.Apply(_maps.MaxLogit, _maps.ClassIndex, score);
-                System.Numerics.Tensors.TensorPrimitives.Negate(score, score);
-                break;
-            case ScoreMethod.MaxLogit:
-                System.Numerics.Tensors.TensorPrimitives.Negate(_maps.MaxLogit, score);
-                break;
-            case ScoreMethod.Msp:
-                System.Numerics.Tensors.TensorPrimitives.Negate(_maps.Msp, score);
-                break;
-            case ScoreMethod.Entropy:
-                _maps.Entropy.CopyTo(score);
-                break;
-            case ScoreMethod.Energy:
-                _maps.Energy.CopyTo(score);
-                break;
-        }
-    }
+    private void AnomalyScore(Span<float> score) => _method.Kernel(_maps, _sml, score);
 }
 
 /// <summary>Wall time of each stage for one frame.</summary>

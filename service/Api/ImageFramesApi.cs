@@ -23,15 +23,6 @@ public static class ImageFramesApi
 {
     public const string FramePart = "frame";
 
-    /// <summary>One worker's reusable preprocessing buffers.</summary>
-    private sealed class FrameWorker(InputDescriptor input)
-    {
-        public FramePreprocessor Preprocessor { get; } = new(input);
-        public float[]? Crop;
-    }
-
-    private static readonly KeyedPool<FrameWorker> Workers = new(perKey: Environment.ProcessorCount, maxKeys: 32);
-
     public static void Map(RouteGroupBuilder v1)
     {
         v1.MapPost("/models/{model}/frames", Score)
@@ -55,8 +46,8 @@ public static class ImageFramesApi
     }
 
     private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
-        string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, PipelinePool pipelines,
-        ArtifactStore store, FrameDecoder decoder, DriftWatch drift, ServiceMetrics metrics, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+        string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, FrameRunner runner,
+        ArtifactStore store, FrameDecoder decoder, ServiceMetrics metrics, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
@@ -65,8 +56,8 @@ public static class ImageFramesApi
         if (!ModelSessions.HasOnnx(entry))
             return ApiProblems.Create(ErrorCodes.ModelUnavailable,
                 $"Model '{model}' has no {SegmentationModel.ModelFileName}; send logits to /v1/models/{model}/logits instead.");
-        var session = sessions.Get(entry);
-        if (session is null)
+        using var lease = sessions.TryBorrow(entry);
+        if (lease is null)
             return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
         var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "image", ct);
         if (form is null) return problem!;
@@ -86,12 +77,8 @@ public static class ImageFramesApi
             await file.CopyToAsync(buffer, ct);
             bytes = buffer.ToArray();
         }
-        var descriptor = entry.Descriptor!;
-        var classNames = descriptor.Classes.Select(c => c.Name).ToList();
-        var colors = ArtifactWriter.ColorsOf(descriptor);
-        string pipelineKey = PipelinePool.Key(entry, req.Options);
-        string workerKey = entry.Name + "|" + entry.Sha256;
         var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
+        var writer = new FrameFolderWriter(lease.Version);
 
         FrameReport report;
         try
@@ -101,29 +88,14 @@ public static class ImageFramesApi
                 long t0 = System.Diagnostics.Stopwatch.GetTimestamp();
                 using var frame = decoder.Decode(new MemoryStream(bytes, 0, bytes.Length, writable: false, publiclyVisible: true), FramePart);
                 metrics.Stage("decode", System.Diagnostics.Stopwatch.GetElapsedTime(t0));
-                var worker = Workers.Rent(workerKey, () => new FrameWorker(descriptor.Input));
-                var pipeline = pipelines.Rent(pipelineKey, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
-                try
+                return runner.Score(lease, frame, req.Options, (scored, timings) =>
                 {
-                    var scored = FrameScorer.Run(session, worker.Preprocessor, ref worker.Crop, pipeline, frame, out var timings, token);
-                    drift.Observe(entry, scored.MaxLogit, scored.ClassIndex);
-                    token.ThrowIfCancellationRequested();
                     long t1 = System.Diagnostics.Stopwatch.GetTimestamp();
-                    if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, frame.Image, folder);
-                    metrics.Stage("preprocess", timings.Preprocess);
-                    metrics.Stage("inference", timings.Inference);
-                    metrics.Stage("scoring", timings.Scoring);
-                    metrics.Stage("encode", System.Diagnostics.Stopwatch.GetElapsedTime(t1));
-                    metrics.FrameScored(entry.Name, req.Options.Method.ToString().ToLowerInvariant(), scored.Regions.Regions.Count);
-                    return FrameReport.From(scored, req.Options, classNames, frameId,
-                        new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
+                    var r = writer.Write(scored, timings, req.Options, frameId, folder, req.Artifacts, frame.Image,
                         new LogitsReport(scored.ClassCount, scored.LogitsHeight, scored.LogitsWidth));
-                }
-                finally
-                {
-                    pipelines.Return(pipelineKey, pipeline);
-                    Workers.Return(workerKey, worker);
-                }
+                    metrics.Stage("encode", System.Diagnostics.Stopwatch.GetElapsedTime(t1));
+                    return r;
+                }, token);
             }, ct);
         }
         catch (QueueFullException)

@@ -5,6 +5,8 @@ using Microsoft.Extensions.Options;
 using Strayspot.Scoring.Logits;
 using Strayspot.Scoring.Pipeline;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Inference;
+using Strayspot.Service.Models;
 using Strayspot.Service.Reports;
 
 namespace Strayspot.Service.Api;
@@ -101,7 +103,7 @@ public static class LogitsApi
     }
 
     private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
-        string model, HttpRequest request, ModelCatalog catalog, ScoringLane lane, PipelinePool pipelines,
+        string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, FrameRunner runner,
         ArtifactStore store, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
     {
         var received = time.GetUtcNow();
@@ -147,28 +149,13 @@ public static class LogitsApi
                 ["logits"] = [$"The logits' {frameWidth}×{frameHeight} frame is larger than the service accepts ({options.Value.MaxPixels} pixels, Service:MaxPixels)."],
             });
 
-        var classNames = descriptor.Classes.Select(c => c.Name).ToList();
-        var colors = ArtifactWriter.ColorsOf(descriptor);
-        string key = PipelinePool.Key(entry, req.Options);
         var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
-
-        var report = await lane.RunAsync(token =>
-        {
-            var pipeline = pipelines.Rent(key, () => new FramePipeline(req.Options, req.Options.Method == ScoreMethod.Sml ? entry.Statistics : null));
-            try
-            {
-                var scored = pipeline.Score(logits, frameHeight, frameWidth);
-                token.ThrowIfCancellationRequested();
-                if (folder is not null) ArtifactWriter.Write(scored, req.Artifacts, colors, null, folder);
-                return FrameReport.From(scored, req.Options, classNames, frameId,
-                    new ModelReport(entry.Name, entry.Sha256 ?? "", entry.Profile.Version),
-                    new LogitsReport(logits.Channels, logits.Height, logits.Width));
-            }
-            finally
-            {
-                pipelines.Return(key, pipeline);
-            }
-        }, ct);
+        // Logits need no session: the lease only carries the version's pipelines.
+        using var lease = sessions.BorrowPools(entry);
+        var writer = new FrameFolderWriter(lease.Version);
+        var report = await lane.RunAsync(token => runner.ScoreLogits(lease, logits, frameHeight, frameWidth, req.Options,
+            (scored, timings) => writer.Write(scored, timings, req.Options, frameId, folder, req.Artifacts, null,
+                new LogitsReport(logits.Channels, logits.Height, logits.Width)), token), ct);
 
         var links = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}");
         report = report with { Artifacts = links };

@@ -69,7 +69,7 @@ public static class LogitsForm
         if (Single("method") is string method)
         {
             if (ParseMethod(method) is ScoreMethod m) options = options with { Method = m };
-            else Fail("method", $"Method '{method}' is unknown; use one of msp, maxlogit, entropy, energy, sml.");
+            else Fail("method", $"Method '{method}' is unknown; use one of {ScoringMethods.Names}.");
         }
         if (Single("threshold") is string threshold)
         {
@@ -122,15 +122,7 @@ public static class LogitsForm
         return (new LogitsRequest(options, width, height, new FrameMetadata(clientFrameId, captureTime, rigId), artifacts, inline), errors);
     }
 
-    public static ScoreMethod? ParseMethod(string s) => s.ToLowerInvariant() switch
-    {
-        "msp" => ScoreMethod.Msp,
-        "maxlogit" => ScoreMethod.MaxLogit,
-        "entropy" => ScoreMethod.Entropy,
-        "energy" => ScoreMethod.Energy,
-        "sml" => ScoreMethod.Sml,
-        _ => null,
-    };
+    public static ScoreMethod? ParseMethod(string s) => ScoringMethods.TryParse(s, cliAliases: false, out var method) ? method : null;
 
     private static int? PositiveInt(string? s, string field, Action<string, string> fail)
     {

@@ -19,13 +19,13 @@ public sealed class BatchWorker(
     BatchService batches,
     BatchCallbacks callbacks,
     ModelCatalog catalog,
+    ModelSessions sessions,
+    FrameRunner runner,
     FrameGate gate,
     IOptions<ServiceOptions> service,
     ILogger<BatchWorker> log) : BackgroundService
 {
     private readonly ConcurrentDictionary<string, bool> _claimed = new(StringComparer.Ordinal);
-    private readonly ConcurrentDictionary<string, (string Version, ModelBundle Bundle)> _bundles = new(StringComparer.Ordinal);
-    private readonly SemaphoreSlim _bundleLoad = new(1, 1);
     private readonly FrameDecoder _decoder = new(new FrameDecoderOptions { MaxPixels = service.Value.MaxPixels });
 
     protected override async Task ExecuteAsync(CancellationToken stopping)
@@ -76,15 +76,16 @@ public sealed class BatchWorker(
     private async Task RunAsync(BatchRecord batch, CancellationToken stopping)
     {
         string folder = batches.BatchFolder(batch.Id);
-        var bundle = await BundleAsync(batch, stopping);
-        if (bundle is null) return;
+        // Held for the whole run, so every frame of it is scored by one model version.
+        using var model = await BorrowAsync(batch, stopping);
+        if (model is null) return;
         if (!batches.Store.Transition(batch.Id, BatchStates.Running, [BatchStates.Queued, BatchStates.Running],
-                modelSha256: bundle.Model.ModelSha256, profileVersion: bundle.Profile.Version))
+                modelSha256: model.Version.WeightsSha256, profileVersion: model.Version.Profile.Version))
             return; // cancelled meanwhile
         ClearInterrupted(folder);
         if (batch.State == BatchStates.Running)
             log.LogInformation("Resuming batch {BatchId}: {Done} of {Total} frames already done", batch.Id, batch.DoneCount + batch.FailedCount, batch.FrameCount);
-        var output = new FrameOutput(bundle);
+        var output = new FrameFolderWriter(model.Version);
         using var cancel = batches.Track(batch.Id, stopping);
         try
         {
@@ -103,7 +104,7 @@ public sealed class BatchWorker(
                 using (lease)
                 {
                     // Not cancellable on purpose: a frame once started is finished, so shutdown leaves no half frame behind.
-                    await Task.Run(() => ScoreFrame(batch.Id, folder, frame, output), CancellationToken.None);
+                    await Task.Run(() => ScoreFrame(batch.Id, folder, frame, model, output), CancellationToken.None);
                 }
                 if (batches.Options.PauseBetweenFrames > TimeSpan.Zero)
                     await Task.Delay(batches.Options.PauseBetweenFrames, cancel.Token);
@@ -121,7 +122,7 @@ public sealed class BatchWorker(
         }
     }
 
-    private void ScoreFrame(string batchId, string folder, FrameRecord frame, FrameOutput output)
+    private void ScoreFrame(string batchId, string folder, FrameRecord frame, ModelLease model, FrameFolderWriter output)
     {
         string name = frame.Seq.ToString("D5", System.Globalization.CultureInfo.InvariantCulture);
         string frames = Path.Combine(folder, BatchService.FramesFolder);
@@ -134,14 +135,18 @@ public sealed class BatchWorker(
             int regionCount;
             using (var decoded = _decoder.DecodeFile(batches.ResolveSource(frame.SourcePath)))
             {
-                var report = output.Write(decoded, frame.FrameId, temp, inspect: s => regions = Manifest.Regions(s, output.ClassNames));
+                var report = runner.Score(model, decoded, null, (scored, timings) =>
+                {
+                    regions = Manifest.Regions(scored, output.ClassNames);
+                    return output.WriteAll(scored, timings, model.Version.Defaults, frame.FrameId, temp, decoded.Image);
+                });
                 score = report.FrameScore;
                 regionCount = report.Regions.Count;
             }
             // A folder left by an interrupted attempt (renamed, not yet marked done) is replaced.
             if (Directory.Exists(final)) Directory.Delete(final, recursive: true);
             Directory.Move(temp, final);
-            string report_ = $"{BatchService.FramesFolder}/{name}/{FrameOutput.ReportFile}";
+            string report_ = $"{BatchService.FramesFolder}/{name}/{Rendering.ArtifactWriter.ReportFile}";
             batches.Store.CompleteFrame(batchId, frame.Seq, new FrameResult(score, regionCount, report_, Manifest.RegionsJson(regions ?? [])));
         }
         catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or FileNotFoundException
@@ -167,8 +172,8 @@ public sealed class BatchWorker(
         log.LogInformation("Batch {BatchId} done: {Done} frames scored, {Failed} failed", batchId, batch.DoneCount, batch.FailedCount);
     }
 
-    /// <summary>The model of a batch, loaded once per profile version; null (batch failed) when it cannot be loaded.</summary>
-    private async Task<ModelBundle?> BundleAsync(BatchRecord batch, CancellationToken stopping)
+    /// <summary>The model of a batch from the process's registry; null (batch failed) when it cannot be loaded.</summary>
+    private async Task<ModelLease?> BorrowAsync(BatchRecord batch, CancellationToken stopping)
     {
         if (!catalog.TryGet(batch.Model, out var entry) || !entry.IsUsable)
         {
@@ -176,27 +181,14 @@ public sealed class BatchWorker(
             batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be used: {why}.");
             return null;
         }
-        await _bundleLoad.WaitAsync(stopping);
         try
         {
-            if (_bundles.TryGetValue(batch.Model, out var cached) && cached.Version == entry.Profile.Version) return cached.Bundle;
-            int threads = service.Value.IntraOpThreads > 0 ? service.Value.IntraOpThreads : Environment.ProcessorCount;
-            try
-            {
-                var bundle = await Task.Run(() => ModelBundle.Load(entry.Folder, new ModelRuntimeOptions { IntraOpThreads = threads }), stopping);
-                // The old bundle may still score a frame of another batch: leave it to the finalizer rather than dispose it mid-run.
-                _bundles[batch.Model] = (entry.Profile.Version, bundle);
-                return bundle;
-            }
-            catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
-            {
-                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {e.Message}");
-                return null;
-            }
+            return await Task.Run(() => sessions.Borrow(entry), stopping);
         }
-        finally
+        catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
         {
-            _bundleLoad.Release();
+            batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {e.Message}");
+            return null;
         }
     }
 
@@ -214,11 +206,4 @@ public sealed class BatchWorker(
         catch (UnauthorizedAccessException) { }
     }
 
-    public override void Dispose()
-    {
-        foreach (var (_, b) in _bundles.Values) b.Dispose();
-        _bundles.Clear();
-        _bundleLoad.Dispose();
-        base.Dispose();
-    }
 }

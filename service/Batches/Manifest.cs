@@ -1,3 +1,4 @@
+using Strayspot.Service.Rendering;
 using System.Text.Json;
 using System.Text.Json.Serialization;
 using Strayspot.Scoring.Pipeline;
@@ -44,11 +45,8 @@ public static class Manifest
     public const string ContentType = "application/x-ndjson";
     public const int MaxOutlinePoints = 64;
 
-    /// <summary>Report artifact keys → manifest artifact names.</summary>
-    private static readonly (string Key, string File)[] ArtifactFiles =
-    [
-        ("classMap", "classes.png"), ("mask", "mask.png"), ("heatMap", "heat.png"), ("overlay", "overlay.png"), ("report", "report.json"),
-    ];
+    /// <summary>The files a manifest line links, named as in reports and review routes (<see cref="ArtifactWriter"/>'s table).</summary>
+    private static readonly string[] LinkedArtifacts = ["classes", "mask", "heat", "overlay", ArtifactWriter.Report];
 
     private static readonly JsonSerializerOptions LineJson = new()
     {
@@ -131,7 +129,7 @@ public static class Manifest
             if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
-            foreach (var (key, file) in ArtifactFiles) artifacts[key] = folder + "/" + file;
+            foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
             lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
                 batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
         }

@@ -30,14 +30,16 @@ public sealed record CalibrationArtifact
     public ClassStatistics ToStatistics() => new(Classes, MinimumCount);
 
     /// <summary>Refuses a calibration measured with other weights, naming both hashes.</summary>
-    public void EnsureMatches(SegmentationModel model)
+    public void EnsureMatches(SegmentationModel model) => EnsureMatches(model.ModelSha256, model.ClassCount);
+
+    public void EnsureMatches(string modelSha256, int classCount)
     {
-        if (!string.Equals(ModelSha256, model.ModelSha256, StringComparison.OrdinalIgnoreCase))
+        if (!string.Equals(ModelSha256, modelSha256, StringComparison.OrdinalIgnoreCase))
             throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
-                $"The calibration was measured with the model of SHA-256 {ModelSha256}, but the loaded model's is {model.ModelSha256}. Re-run calibrate for this model.");
-        if (Classes.Count != model.ClassCount)
+                $"The calibration was measured with the model of SHA-256 {ModelSha256}, but the loaded model's is {modelSha256}. Re-run calibrate for this model.");
+        if (Classes.Count != classCount)
             throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
-                $"The calibration describes {Classes.Count} classes but the model has {model.ClassCount}.");
+                $"The calibration describes {Classes.Count} classes but the model has {classCount}.");
     }
 
     /// <summary>Loads a calibration and checks that it was measured with <paramref name="model"/>.</summary>

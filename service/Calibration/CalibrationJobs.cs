@@ -34,7 +34,7 @@ public sealed record CalibrationJob
 /// calibration into the model folder and reloads the catalog.
 /// </summary>
 public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions,
-    FrameDecoder decoder, ILogger<CalibrationJobs> log) : BackgroundService
+    Inference.FrameRunner runner, FrameDecoder decoder, ILogger<CalibrationJobs> log) : BackgroundService
 {
     private readonly JobFolder<CalibrationJob> _jobs =
         new(Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations"), j => j.Id);
@@ -106,10 +106,10 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         {
             if (!catalog.TryGet(job.Model, out var entry) || entry.Sha256 != job.ModelSha256)
                 throw new ModelException(ModelErrorCodes.CalibrationModelMismatch, $"Model '{job.Model}' changed or was removed before its calibration ran.");
-            var model = sessions.Get(entry) ?? throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{job.Model}' is still loading.");
+            using var model = sessions.Borrow(entry);
             var frames = Calibrator.ListFrames(SafePath.Resolve(options.Value.DataRoot, job.Folder));
             Save(job = job with { State = "running", FramesTotal = frames.Count });
-            var calibrator = new Calibrator(model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions
+            var calibrator = new Calibrator(runner, model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions
             {
                 CheckpointEvery = 10,
                 CheckpointPath = Path.Combine(_jobs.FolderOf(job.Id), "checkpoint.json"),

@@ -6,6 +6,7 @@ using System.Text;
 using System.Text.Json;
 using Strayspot.Scoring.Standardization;
 using Strayspot.Service.Frames;
+using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Calibration;
@@ -38,13 +39,16 @@ public sealed class Calibrator
 {
     public static readonly string[] FrameExtensions = [".png", ".jpg", ".jpeg", ".webp"];
 
-    private readonly SegmentationModel _model;
+    private readonly FrameRunner _runner;
+    private readonly ModelLease _model;
     private readonly FrameDecoder _decoder;
     private readonly Func<IMaxLogitReducer> _reducerFactory;
     private readonly CalibrationOptions _options;
 
-    public Calibrator(SegmentationModel model, FrameDecoder decoder, Func<IMaxLogitReducer> reducerFactory, CalibrationOptions? options = null)
+    /// <param name="model">A version borrowed with its session; <paramref name="runner"/> runs every frame's network.</param>
+    public Calibrator(FrameRunner runner, ModelLease model, FrameDecoder decoder, Func<IMaxLogitReducer> reducerFactory, CalibrationOptions? options = null)
     {
+        _runner = runner;
         _model = model;
         _decoder = decoder;
         _reducerFactory = reducerFactory;
@@ -77,8 +81,9 @@ public sealed class Calibrator
             throw new ModelException(ModelErrorCodes.FrameFormat, "No frames to calibrate with.");
         bool labelled = _options.LabelsFolder is not null;
         string checkpointPath = _options.CheckpointPath ?? outputPath + ".checkpoint.json";
-        int classes = _model.ClassCount;
-        var resumed = CalibrationCheckpoint.TryLoad(checkpointPath, _model.ModelSha256, labelled, frames, classes);
+        int classes = _model.Version.ClassCount;
+        string sha = _model.Session.ModelSha256;
+        var resumed = CalibrationCheckpoint.TryLoad(checkpointPath, sha, labelled, frames, classes);
         var total = resumed?.Restore() ?? new ClassStatisticsAccumulator(classes);
         int done = resumed?.FramesDone ?? 0;
         int resumedFrom = done;
@@ -98,7 +103,7 @@ public sealed class Calibrator
             {
                 Parallel.For(first, end, parallel, i =>
                 {
-                    if (!workers.TryTake(out var w)) w = new Worker(_model, _reducerFactory());
+                    if (!workers.TryTake(out var w)) w = new Worker(_runner, _model, _reducerFactory());
                     try { perFrame[i - first] = w.Measure(frames[i], _decoder, classes, _options); }
                     finally { workers.Add(w); }
                     progress?.Report(new CalibrationProgress(first + Interlocked.Increment(ref finishedInChunk), frames.Count, resumedFrom));
@@ -115,18 +120,18 @@ public sealed class Calibrator
             progress?.Report(new CalibrationProgress(done, frames.Count, resumedFrom));
             bool stopping = _options.StopAfterFrames is int s && done >= s && done < frames.Count;
             if ((_options.CheckpointEvery > 0 && done < frames.Count) || stopping)
-                CalibrationCheckpoint.Capture(_model.ModelSha256, labelled, frames, done, total).Save(checkpointPath);
+                CalibrationCheckpoint.Capture(sha, labelled, frames, done, total).Save(checkpointPath);
             if (stopping) return null;
         }
 
-        var names = _model.Descriptor.Classes.Select(c => c.Name).ToList();
+        var names = _model.Version.ClassNames;
         var stats = total.ToStatistics(names, _options.MinimumCount);
         var artifact = new CalibrationArtifact
         {
             Classes = stats.Classes.ToList(),
             MinimumCount = _options.MinimumCount,
-            ModelSha256 = _model.ModelSha256,
-            DescriptorSha256 = DescriptorSha256(_model.Descriptor),
+            ModelSha256 = sha,
+            DescriptorSha256 = DescriptorSha256(_model.Version.Descriptor),
             FrameCount = frames.Count,
             FallbackClasses = stats.Classes.Where(c => c.Count < _options.MinimumCount || c.Std < ClassStatistics.MinimumStd).Select(c => c.Name).ToList(),
             LabelFiltered = labelled,
@@ -146,11 +151,8 @@ public sealed class Calibrator
         typeof(Calibrator).Assembly.GetCustomAttribute<AssemblyInformationalVersionAttribute>()?.InformationalVersion.Split('+')[0]
         ?? typeof(Calibrator).Assembly.GetName().Version?.ToString() ?? "0";
 
-    private sealed class Worker(SegmentationModel model, IMaxLogitReducer reducer)
+    private sealed class Worker(FrameRunner runner, ModelLease model, IMaxLogitReducer reducer)
     {
-        private readonly FramePreprocessor _preprocessor = new(model.Descriptor.Input);
-        private float[]? _crop;
-
         public ClassStatisticsAccumulator Measure(string path, FrameDecoder decoder, int classes, CalibrationOptions options)
         {
             try { return MeasureFrame(path, decoder, classes, options); }
@@ -164,12 +166,7 @@ public sealed class Calibrator
         {
             var acc = new ClassStatisticsAccumulator(classes);
             using var frame = decoder.DecodeFile(path);
-            var input = _preprocessor.Prepare(frame);
-            using (var lease = model.Run(input))
-            {
-                var content = input.Box.CropToContent(lease.View, ref _crop);
-                reducer.Reduce(content, frame.Height, frame.Width);
-            }
+            runner.Reduce(model, frame, reducer);
             if (options.LabelsFolder is null)
                 acc.Add(reducer.MaxLogit, reducer.ClassIndex);
             else

@@ -5,6 +5,7 @@ using Spectre.Console;
 using Strayspot.Scoring.Logits;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Frames;
+using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Cli;
@@ -62,9 +63,9 @@ public static class CalibrateVerb
             }
             try
             {
-                using var model = SegmentationModel.LoadFolder(folder.FullName, new ModelRuntimeOptions { IntraOpThreads = threadCount });
+                using var local = LocalModel.Open(ModelVersion.ReadForCalibration(folder.FullName), ParallelSettings.FromThreads(threadCount));
                 var frames = Calibrator.ListFrames(parseResult.GetValue(framesFolder)!.FullName);
-                var calibrator = new Calibrator(model, new FrameDecoder(), reducerFactory, options);
+                var calibrator = new Calibrator(local.Runner, local.Lease, new FrameDecoder(), reducerFactory, options);
                 var artifact = RunWithProgress(calibrator, frames, outPath, stdout, cancel);
                 stdout.WriteLine($"Calibrated on {artifact.FrameCount} frames; wrote {outPath}.");
                 foreach (var c in artifact.Classes)

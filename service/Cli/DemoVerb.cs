@@ -19,10 +19,10 @@ public static class DemoVerb
         {
             string root = p.GetValue(output)!.FullName;
             var (modelFolder, frames) = BundledDemo.Extract(Path.Combine(root, "model"), Path.Combine(root, "frames"));
-            using var bundle = ModelBundle.Load(modelFolder);
+            using var local = LocalModel.Open(modelFolder);
             string scores = Path.Combine(root, "scores");
             var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
-                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Scorer.Defaults, scores, progress));
+                progress => ScoreVerb.ScoreAll(local, frames, local.Version.Defaults, scores, progress));
             Console.WriteLine($"Demo model:  {modelFolder}");
             Console.WriteLine($"Frames:      {Path.Combine(root, "frames")}");
             Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");

@@ -43,16 +43,15 @@ public static class EvaluateVerb
                 TargetFpr = fpr,
                 WriteProfile = p.GetValue(writeProfile),
             };
-            var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
             string modelFolder = p.GetValue(model)!.FullName, outFolder = p.GetValue(output)!.FullName;
             string datasetFolder = p.GetValue(dataset)!.FullName;
             Evaluator.Validate(settings);
             if (!Directory.Exists(modelFolder))
                 throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
-            using var bundle = Inference.ModelBundle.Load(modelFolder, runtime);
-            var set = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
-            Console.WriteLine($"evaluating {bundle.Name} on {set.Items.Count} frame(s) ({set.Layout} layout{(set.HasLabels ? ", with class labels" : "")})");
-            var report = FrameProgress.Run("evaluating", set.Items.Count, Console.Out, progress => Evaluator.Run(bundle, set, outFolder, settings, progress));
+            using var local = Inference.LocalModel.Open(modelFolder, Inference.ParallelSettings.FromThreads(p.GetValue(threads)));
+            var set = EvaluationDataset.Open(datasetFolder, local.Version.ClassCount);
+            Console.WriteLine($"evaluating {local.Version.Name} on {set.Items.Count} frame(s) ({set.Layout} layout{(set.HasLabels ? ", with class labels" : "")})");
+            var report = FrameProgress.Run("evaluating", set.Items.Count, Console.Out, progress => Evaluator.Run(local.Runner, local.Lease, set, outFolder, settings, progress));
             Print(report);
             Console.WriteLine($"wrote {EvaluationOutputs.MarkdownFile}, {EvaluationOutputs.CsvFile}, {EvaluationOutputs.JsonFile}, {EvaluationOutputs.FramesFile}, " +
                               $"{EvaluationOutputs.RocFile}, {EvaluationOutputs.PrecisionRecallFile} into {outFolder}");

@@ -20,7 +20,7 @@ public static class ScoreVerb
         var model = new Argument<DirectoryInfo>("model") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
         var frames = new Argument<string[]>("frames") { Description = "frame files, or folders of .png/.jpg/.jpeg/.webp", Arity = ArgumentArity.OneOrMore };
         var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
-        var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default: cores)" };
+        var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default or 0: every core)" };
         var scoring = new ScoringOptionsBinding();
         var command = new Command("score", "Score frames through a model and write reports and PNG artifacts.");
         command.Arguments.Add(model);
@@ -31,12 +31,11 @@ public static class ScoreVerb
         command.SetAction(p => CliApp.Guard(() =>
         {
             var files = ExpandFrames(p.GetValue(frames)!);
-            var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
-            using var bundle = ModelBundle.Load(p.GetValue(model)!.FullName, runtime);
-            if (bundle.Warning is not null) Console.Error.WriteLine($"warning: {bundle.Warning}");
-            var options = scoring.Apply(p, bundle.Scorer.Defaults);
+            using var local = LocalModel.Open(p.GetValue(model)!.FullName, ParallelSettings.FromThreads(p.GetValue(threads)));
+            if (local.Version.Warning is not null) Console.Error.WriteLine($"warning: {local.Version.Warning}");
+            var options = scoring.Apply(p, local.Version.Defaults);
             string outFolder = p.GetValue(output)!.FullName;
-            var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress));
+            var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(local, files, options, outFolder, progress));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
             foreach (var r in ranking.Take(5))
                 Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {r.Frame}");
@@ -49,12 +48,12 @@ public static class ScoreVerb
     public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
 
     /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
-    public static IReadOnlyList<RankedFrame> ScoreAll(ModelBundle bundle, IReadOnlyList<string> files, ScoringOptions options,
+    public static IReadOnlyList<RankedFrame> ScoreAll(LocalModel model, IReadOnlyList<string> files, ScoringOptions options,
         string outFolder, IProgress<FrameCount>? progress = null)
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
-        var output = new FrameOutput(bundle);
+        var output = new FrameFolderWriter(model.Version);
         var ranked = new List<RankedFrame>(files.Count);
         var stems = new HashSet<string>(StringComparer.Ordinal);
         for (int i = 0; i < files.Count; i++)
@@ -63,8 +62,9 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = decoder.DecodeFile(files[i]);
-            var report = output.Write(frame, stem, folder, options);
-            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, FrameOutput.ReportFile)));
+            var report = model.Runner.Score(model.Lease, frame, options,
+                (scored, timings) => output.WriteAll(scored, timings, options, stem, folder, frame.Image));
+            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, Rendering.ArtifactWriter.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
         ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));

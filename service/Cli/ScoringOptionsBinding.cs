@@ -50,16 +50,9 @@ public sealed class ScoringOptionsBinding
         return o;
     }
 
-    public static ScoreMethod ParseMethod(string text) => text.Trim().ToLowerInvariant() switch
-    {
-        "msp" => ScoreMethod.Msp,
-        "maxlogit" or "max-logit" => ScoreMethod.MaxLogit,
-        "entropy" => ScoreMethod.Entropy,
-        "energy" => ScoreMethod.Energy,
-        "sml" => ScoreMethod.Sml,
-        _ => throw new ScoringInputException(ScoringErrorCodes.Options,
-            $"Unknown method '{text}'; choose msp, maxlogit, entropy, energy or sml."),
-    };
+    public static ScoreMethod ParseMethod(string text) => ScoringMethods.TryParse(text, cliAliases: true, out var method)
+        ? method
+        : throw new ScoringInputException(ScoringErrorCodes.Options, $"Unknown method '{text}'; choose {ScoringMethods.Names}.");
 
     /// <summary>Parses "WIDTHxHEIGHT", e.g. 2048x1024.</summary>
     public static (int Width, int Height) ParseSize(string text)

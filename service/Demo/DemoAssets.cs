@@ -153,8 +153,9 @@ public static class DemoAssets
                 paths.Add(path);
             }
             // One thread per session: the same sums on any machine size.
-            using var model = SegmentationModel.LoadFolder(modelFolder, new ModelRuntimeOptions { IntraOpThreads = 1, WarmUp = false });
-            var calibrator = new Calibrator(model, new FrameDecoder(), () => new PixelReductionMaxLogitReducer(),
+            using var local = Inference.LocalModel.Open(Inference.ModelVersion.ReadForCalibration(modelFolder),
+                new Inference.ParallelSettings { IntraOpThreads = 1, WarmUp = false });
+            var calibrator = new Calibrator(local.Runner, local.Lease, new FrameDecoder(), () => new PixelReductionMaxLogitReducer(),
                 new CalibrationOptions { CheckpointEvery = 0, Workers = Math.Min(2, Environment.ProcessorCount) });
             return calibrator.Run(paths, Path.Combine(modelFolder, CalibrationFile))
                    ?? throw new InvalidOperationException("Demo calibration stopped before the last frame.");

@@ -34,7 +34,8 @@ public sealed record EvaluationJob
 /// Evaluations as durable background jobs: one at a time, state under the data root. An evaluation keeps no
 /// checkpoint, so a job that was running when the service stopped starts again from its first frame.
 /// </summary>
-public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ILogger<EvaluationJobs> log) : BackgroundService
+public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions, FrameRunner runner,
+    ILogger<EvaluationJobs> log) : BackgroundService
 {
     public static readonly IReadOnlyList<string> OutputFiles =
     [
@@ -99,9 +100,10 @@ public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalo
             _jobs.Save(job = job with { State = "running", FramesDone = 0 });
             var running = job;
             var settings = new EvaluationSettings { Exact = job.Exact, TargetTpr = job.TargetTpr, TargetFpr = job.TargetFpr };
-            Evaluator.Run(entry.Folder, SafePath.Resolve(options.Value.DataRoot, job.Dataset), Path.Combine(_jobs.FolderOf(job.Id), "out"),
-                settings, new Progress(p => _jobs.Save(running = running with { FramesDone = p.Done, FramesTotal = p.Total })),
-                new ModelRuntimeOptions { IntraOpThreads = Math.Max(1, options.Value.IntraOpThreads) });
+            using var model = sessions.Borrow(entry);
+            var dataset = EvaluationDataset.Open(SafePath.Resolve(options.Value.DataRoot, job.Dataset), model.Version.ClassCount);
+            Evaluator.Run(runner, model, dataset, Path.Combine(_jobs.FolderOf(job.Id), "out"),
+                settings, new Progress(p => _jobs.Save(running = running with { FramesDone = p.Done, FramesTotal = p.Total })));
             _jobs.Save(running with
             {
                 State = "done",

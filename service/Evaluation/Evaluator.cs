@@ -20,15 +20,16 @@ public static class Evaluator
     /// <summary>PPV at or below this makes a found region a false positive: the lowest level of the region F1 summary.</summary>
     public const double FalsePositivePpv = 0.25;
 
+    /// <summary>Opens a model folder on its own (a registry for this run) and evaluates it.</summary>
     public static EvaluationReport Run(string modelFolder, string datasetFolder, string outFolder, EvaluationSettings settings,
-        IProgress<FrameCount>? progress = null, ModelRuntimeOptions? runtime = null)
+        IProgress<FrameCount>? progress = null, ParallelSettings? parallel = null)
     {
         Validate(settings);
         if (!Directory.Exists(modelFolder))
             throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
-        using var bundle = ModelBundle.Load(modelFolder, runtime);
-        var dataset = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
-        return Run(bundle, dataset, outFolder, settings, progress);
+        using var local = LocalModel.Open(modelFolder, parallel);
+        var dataset = EvaluationDataset.Open(datasetFolder, local.Version.ClassCount);
+        return Run(local.Runner, local.Lease, dataset, outFolder, settings, progress);
     }
 
     public static void Validate(EvaluationSettings settings)
@@ -39,27 +40,28 @@ public static class Evaluator
             throw new ScoringInputException(EvaluationErrorCodes.Argument, $"--target-fpr must be in (0, 1); got {f}.");
     }
 
-    public static EvaluationReport Run(ModelBundle bundle, EvaluationDataset dataset, string outFolder, EvaluationSettings settings,
+    /// <summary>Evaluates the borrowed model version; every frame goes through <paramref name="runner"/>.</summary>
+    public static EvaluationReport Run(FrameRunner runner, ModelLease model, EvaluationDataset dataset, string outFolder, EvaluationSettings settings,
         IProgress<FrameCount>? progress = null)
     {
         Validate(settings);
+        var version = model.Version;
         var notes = new List<string>();
-        var profileOptions = bundle.Profile.Effective;
-        bool sml = bundle.Statistics is not null;
+        var profileOptions = version.Profile.Effective;
+        bool sml = version.Statistics is not null;
         var methods = sml ? EvaluatedMethods.All : EvaluatedMethods.All.Where(m => !EvaluatedMethods.NeedsStatistics(m)).ToList();
         var primary = sml ? EvaluatedMethod.Full : EvaluatedMethod.MaxLogit;
         if (!sml) notes.Add("The model has no calibration.json or statistics.json: the SML methods were left out and the operating point is for max logit.");
-        var scorer = new MultiMethodScorer(bundle.Statistics, new MultiMethodOptions
+        var scorer = new MultiMethodScorer(version.Statistics, new MultiMethodOptions
         {
             Base = profileOptions, Methods = methods, Exact = settings.Exact, Bins = settings.Bins,
+            MaxDegreeOfParallelism = model.Parallel.ScoringThreads,
         });
         Directory.CreateDirectory(outFolder);
         int count = dataset.Items.Count;
         var frameScores = new float[count];
         using var spill = new FrameSpill(outFolder);
         var decoder = new FrameDecoder();
-        var preprocessor = new FramePreprocessor(bundle.Model.Descriptor.Input);
-        float[]? crop = null;
         long start = System.Diagnostics.Stopwatch.GetTimestamp();
         for (int i = 0; i < count; i++)
         {
@@ -69,13 +71,7 @@ public static class Evaluator
             if (mask.Length != frame.Width * frame.Height)
                 throw new ScoringInputException(DatasetErrorCodes.Invalid,
                     $"{item.FramePath} decodes to {frame.Width}×{frame.Height} (after its EXIF orientation) but its mask has {mask.Length} pixels.");
-            var input = preprocessor.Prepare(frame);
-            using (var lease = bundle.Model.Run(input))
-            {
-                // Exactly FrameScorer's path: padding cut off, scored at the frame's own size.
-                var logits = input.Box.CropToContent(lease.View, ref crop);
-                scorer.Score(logits, frame.Height, frame.Width);
-            }
+            runner.ScoreAllMethods(model, frame, scorer, primary);
             scorer.Accumulate(mask);
             var map = scorer.Map(primary);
             frameScores[i] = FrameScore.Compute(map);
@@ -92,16 +88,16 @@ public static class Evaluator
         if (!settings.Exact && metrics.Any(m => m.Clamped > 0))
             notes.Add("Some scores fell outside a method's histogram range and were counted in its end bins (see 'clamped'); --exact avoids this.");
 
-        var second = SecondPass(spill, dataset, bundle, profileOptions, profileThreshold, frameScores);
+        var second = SecondPass(spill, dataset, version, profileOptions, profileThreshold, frameScores);
         long secondPass = System.Diagnostics.Stopwatch.GetTimestamp();
         var operatingPoint = new OperatingPoint(EvaluatedMethods.Name(primary), settings.TargetKind, settings.TargetValue,
             metricThreshold, profileThreshold, second.Tpr, second.Fpr, second.Flagged);
 
         string? written = null;
         if (settings.WriteProfile)
-            written = WriteProfile(bundle, primary, profileOptions, profileThreshold, dataset, settings);
+            written = WriteProfile(version, primary, profileOptions, profileThreshold, dataset, settings);
 
-        var report = new EvaluationReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version, dataset.Root, dataset.Layout,
+        var report = new EvaluationReport(version.Name, version.WeightsSha256 ?? "", version.Profile.Version, dataset.Root, dataset.Layout,
             count, settings.Exact ? "exact" : "streaming", rows, operatingPoint, second.Regions, second.Segmentation, written, notes)
         {
             FrameRows = second.Frames,
@@ -139,10 +135,10 @@ public static class Evaluator
         double Tpr, double Fpr, long Flagged);
 
     /// <summary>Everything that needs the threshold: region metrics, achieved rates, per-frame rows, segmentation quality.</summary>
-    private static SecondPassResult SecondPass(FrameSpill spill, EvaluationDataset dataset, ModelBundle bundle, ScoringOptions options,
+    private static SecondPassResult SecondPass(FrameSpill spill, EvaluationDataset dataset, ModelVersion version, ScoringOptions options,
         float threshold, float[] frameScores)
     {
-        int classCount = bundle.Model.ClassCount;
+        int classCount = version.ClassCount;
         var regionMetrics = new RegionMetrics();
         var finder = new RegionFinder();
         var filter = options.RegionFilter();
@@ -219,7 +215,7 @@ public static class Evaluator
         if (quality is not null)
         {
             var q = quality.Compute();
-            var names = bundle.ClassNames;
+            var names = version.ClassNames;
             segmentation = new SegmentationSummary(q.ClosedSetMeanIoU, q.OpenSetMeanIoU, q.FlaggedPixels, q.FlaggedCorrect,
                 q.Classes.Select(c => new NamedClassIoU(c.ClassId, names[c.ClassId], c.ClosedSet, c.OpenSet)).ToList());
         }
@@ -228,13 +224,13 @@ public static class Evaluator
     }
 
     /// <summary>Saves a new profile version: the primary method's options with the recommended threshold, the rest kept.</summary>
-    private static string WriteProfile(ModelBundle bundle, EvaluatedMethod primary, ScoringOptions current, float threshold,
+    private static string WriteProfile(ModelVersion model, EvaluatedMethod primary, ScoringOptions current, float threshold,
         EvaluationDataset dataset, EvaluationSettings settings)
     {
         var now = settings.Now ?? DateTimeOffset.UtcNow;
         string version = ScoringProfile.VersionAt(now);
         // Two saves within one second must still give two versions.
-        while (version == bundle.Profile.Version) { now = now.AddSeconds(1); version = ScoringProfile.VersionAt(now); }
+        while (version == model.Profile.Version) { now = now.AddSeconds(1); version = ScoringProfile.VersionAt(now); }
         string target = settings.TargetFpr is double f
             ? $"FPR {f.ToString(System.Globalization.CultureInfo.InvariantCulture)}"
             : $"TPR {settings.TargetTpr.ToString(System.Globalization.CultureInfo.InvariantCulture)}";
@@ -245,7 +241,7 @@ public static class Evaluator
             CreatedUtc = now,
             Note = $"threshold from evaluation of {dataset.Name} at {target}",
         };
-        profile.Save(bundle.Folder);
+        profile.Save(model.Folder);
         return version;
     }
 }

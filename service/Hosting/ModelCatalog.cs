@@ -30,10 +30,11 @@ public sealed record CatalogEntry(
 {
     /// <summary>SHA-256 of model.onnx when the folder has one (logits-only folders do not).</summary>
     public string? Sha256 { get; init; }
-    /// <summary>When this entry was read; pooled pipelines built from older statistics are not reused.</summary>
-    public DateTime LoadedUtc { get; init; } = DateTime.UtcNow;
 
-    public bool IsUsable => Error is null && Descriptor is not null;
+    /// <summary>What the frame runner borrows: weights, descriptor, statistics and profile as one version; null when unusable.</summary>
+    public Inference.ModelVersion? Version { get; init; }
+
+    public bool IsUsable => Error is null && Descriptor is not null && Version is not null;
 }
 
 /// <summary>
@@ -102,7 +103,8 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
                     throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
                         $"{CalibrationFile} was measured with model SHA-256 {artifact.ModelSha256}, but {SegmentationModel.ModelFileName} is {sha}; calibrate again.");
             }
-            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha };
+            var version = Inference.ModelVersion.Of(name, folder, descriptor, sha, statistics, calibration?.File, profile);
+            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha, Version = version };
         }
         catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)
         {

@@ -1,33 +1,32 @@
-using System.Collections.Concurrent;
-using Microsoft.Extensions.Options;
+using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 
 namespace Strayspot.Service.Hosting;
 
 /// <summary>
-/// The ONNX Runtime sessions of the installed models that have a model.onnx: loaded and warmed once, in the
-/// background so /healthz answers meanwhile, shared by all requests (a session's Run is thread-safe).
+/// The catalog's models in the process's <see cref="ModelRegistry"/>: each ONNX model's session loaded and warmed
+/// once, in the background so /healthz answers meanwhile, and borrowed by every request, batch and job. A reload
+/// loads changed versions; a replaced session is disposed by the registry when its last borrower returns it.
 /// </summary>
-public sealed class ModelSessions(ModelCatalog catalog, IOptions<ServiceOptions> options, ILogger<ModelSessions> log) : IDisposable
+public sealed class ModelSessions(ModelCatalog catalog, ModelRegistry registry, ILogger<ModelSessions> log)
 {
-    private readonly ConcurrentDictionary<string, Loaded> _loaded = new(StringComparer.Ordinal);
     private volatile bool _synced;
-
-    /// <summary>A model's session, or the reason it has none.</summary>
-    private sealed record Loaded(string Sha256, SegmentationModel? Model, string? Error);
 
     /// <summary>False until the first load pass over the catalog has finished.</summary>
     public bool Synced => _synced;
 
+    public ModelRegistry Registry => registry;
+
     public static bool HasOnnx(CatalogEntry entry) => entry.Sha256 is not null;
 
-    /// <summary>The warm session of a model with model.onnx; null while loading; throws the load error if it failed.</summary>
-    public SegmentationModel? Get(CatalogEntry entry)
-    {
-        if (!_loaded.TryGetValue(entry.Name, out var l) || l.Sha256 != entry.Sha256) return null;
-        if (l.Error is not null) throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{entry.Name}' could not be loaded: {l.Error}");
-        return l.Model;
-    }
+    /// <summary>The model's warm version for a request; null while its session loads; throws the load error if it failed.</summary>
+    public ModelLease? TryBorrow(CatalogEntry entry) => registry.Borrow(Usable(entry), SessionUse.IfLoaded);
+
+    /// <summary>The model's version without its session, for logits computed elsewhere.</summary>
+    public ModelLease BorrowPools(CatalogEntry entry) => registry.Borrow(Usable(entry), SessionUse.None)!;
+
+    /// <summary>The model's version for background work (batches, jobs): loads the session when it is not loaded yet.</summary>
+    public ModelLease Borrow(CatalogEntry entry) => registry.Borrow(Usable(entry))!;
 
     /// <summary>Problems that keep the service from being ready: models still loading or failed.</summary>
     public IEnumerable<string> Problems()
@@ -35,45 +34,35 @@ public sealed class ModelSessions(ModelCatalog catalog, IOptions<ServiceOptions>
         if (!_synced) yield return "The models' ONNX sessions are still loading.";
         foreach (var e in catalog.Models.Where(m => m.IsUsable && HasOnnx(m)))
         {
-            if (!_loaded.TryGetValue(e.Name, out var l) || l.Sha256 != e.Sha256) { if (_synced) yield return $"Model '{e.Name}' is not loaded yet."; }
-            else if (l.Error is not null) yield return $"Model '{e.Name}' could not be loaded: {l.Error}";
+            if (registry.LoadError(e.Version!) is { } error) yield return $"Model '{e.Name}' could not be loaded: {error}";
+            else if (!registry.IsReady(e.Version!) && _synced) yield return $"Model '{e.Name}' is not loaded yet.";
         }
     }
 
-    /// <summary>Loads every usable model whose weights are new or changed; unchanged sessions are kept.</summary>
+    /// <summary>Loads every usable model whose version is new or changed; unchanged sessions are kept.</summary>
     public void Sync()
     {
-        var runtime = new ModelRuntimeOptions
+        var models = catalog.Models;
+        registry.RetireExcept(models.Where(m => m.IsUsable).Select(m => m.Name).ToHashSet(StringComparer.Ordinal));
+        foreach (var e in models.Where(m => m.IsUsable && HasOnnx(m)))
         {
-            IntraOpThreads = options.Value.IntraOpThreads > 0 ? options.Value.IntraOpThreads : Environment.ProcessorCount,
-            WarmUp = true,
-        };
-        foreach (var e in catalog.Models.Where(m => m.IsUsable && HasOnnx(m)))
-        {
-            if (_loaded.TryGetValue(e.Name, out var have) && have.Sha256 == e.Sha256) continue;
-            Loaded loaded;
+            if (registry.IsReady(e.Version!)) continue;
             try
             {
-                var model = SegmentationModel.LoadFolder(e.Folder, runtime);
-                loaded = new Loaded(e.Sha256!, model, null);
-                log.LogInformation("Model {Model} loaded and warm in {LoadMs:0} ms", e.Name, model.LoadTime.TotalMilliseconds);
+                var clock = System.Diagnostics.Stopwatch.StartNew();
+                registry.Load(e.Version!);
+                log.LogInformation("Model {Model} loaded and warm in {LoadMs:0} ms", e.Name, clock.Elapsed.TotalMilliseconds);
             }
             catch (Exception ex) when (ex is ModelException or IOException or UnauthorizedAccessException)
             {
-                loaded = new Loaded(e.Sha256!, null, ex.Message);
                 log.LogWarning("Model {Model} could not be loaded: {Reason}", e.Name, ex.Message);
             }
-            // A replaced session may still serve a request in flight: it is left to the finalizer, not disposed here.
-            _loaded[e.Name] = loaded;
         }
         _synced = true;
     }
 
-    public void Dispose()
-    {
-        foreach (var l in _loaded.Values) l.Model?.Dispose();
-        _loaded.Clear();
-    }
+    private static ModelVersion Usable(CatalogEntry entry) => entry.Version
+        ?? throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{entry.Name}' cannot be used: {entry.Error}");
 }
 
 /// <summary>Loads the catalog before the server takes requests, then the ONNX sessions in the background.</summary>

@@ -101,14 +101,18 @@ public static class ServiceHost
         services.AddSingleton(TimeProvider.System);
         services.AddSingleton<ModelCatalog>();
         services.AddHostedService<ModelCatalogLoader>();
+        // One parallel policy and one model registry per process: every session and pipeline is built from them.
+        services.AddSingleton(sp => Inference.ParallelSettings.FromThreads(sp.GetRequiredService<IOptions<ServiceOptions>>().Value.IntraOpThreads));
+        services.AddSingleton(sp => new Inference.ModelRegistry(sp.GetRequiredService<Inference.ParallelSettings>()));
         services.AddSingleton<ModelSessions>();
         services.AddHostedService<ModelSessionLoader>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
-        services.AddSingleton<PipelinePool>();
         services.AddSingleton<DriftWatch>();
         services.AddSingleton<ServiceMetrics>();
+        services.AddSingleton<Inference.IFrameObserver, ServiceFrameObserver>();
+        services.AddSingleton(sp => new Inference.FrameRunner(sp.GetRequiredService<Inference.IFrameObserver>()));
         services.AddOpenTelemetry().WithMetrics(m => m
             .AddMeter(ServiceMetrics.MeterName, "Microsoft.AspNetCore.Hosting", "Microsoft.AspNetCore.Server.Kestrel", "System.Runtime")
             .AddPrometheusExporter());

@@ -32,10 +32,11 @@ public sealed class ServiceMetrics : IDisposable
             "Calibration drift per model: pixel-weighted RMS shift of the max logit, in calibrated standard deviations.");
     }
 
-    public void FrameScored(string model, string method, int regions)
+    /// <param name="regions">Null for frames scored without regions (evaluation).</param>
+    public void FrameScored(string model, string method, int? regions)
     {
         _frames.Add(1, new KeyValuePair<string, object?>("model", model), new KeyValuePair<string, object?>("method", method));
-        _regions.Add(regions, new KeyValuePair<string, object?>("model", model));
+        if (regions is int r) _regions.Add(r, new KeyValuePair<string, object?>("model", model));
     }
 
     public void Stage(string stage, TimeSpan elapsed) =>

@@ -22,6 +22,13 @@ public static class ArtifactWriter
 
     public static readonly IReadOnlyList<string> All = ["classes", "mask", "heat", "overlay", "score", "score16"];
 
+    /// <summary>The frame report's file, named <c>report</c> beside the artifacts in manifests and review links.</summary>
+    public const string Report = "report";
+    public const string ReportFile = "report.json";
+
+    /// <summary>The file of an artifact or of the report (<see cref="Report"/>), or null for an unknown name.</summary>
+    public static string? FileOf(string name) => name == Report ? ReportFile : Files.GetValueOrDefault(name);
+
     /// <summary>
     /// Writes the named artifacts (each atomically) and returns artifact name → file name for those written.
     /// The overlay needs the original <paramref name="frame"/> and is skipped without it.

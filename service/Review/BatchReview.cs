@@ -154,7 +154,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             return (path, ContentTypes.Of(path));
         }
         string folder = Path.Combine(batches.BatchFolder(id), Path.GetDirectoryName(frame.ReportPath!)!);
-        string? file = name == "report" ? FrameOutput.ReportFile : ArtifactWriter.Files.GetValueOrDefault(name);
+        string? file = ArtifactWriter.FileOf(name);
         if (file is null)
             throw new ReviewException(Api.ErrorCodes.ArtifactNotFound, $"Frames have no file '{name}'; they have {string.Join(", ", FrameFiles)}.");
         string full = Path.Combine(folder, file);

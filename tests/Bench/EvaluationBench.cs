@@ -10,7 +10,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// The evaluation's cost: all seven methods over N demo frames at 1024×512 against scoring the same frames once
-/// with one method (FrameScorer), and the streaming mode's memory as the frame count grows.
+/// with one method (the frame runner), and the streaming mode's memory as the frame count grows.
 /// </summary>
 public static class EvaluationBench
 {
@@ -34,8 +34,8 @@ public static class EvaluationBench
                 DemoPng.SaveGray(Path.Combine(data, $"mask_{i:D3}.png"), f.AnomalyMask, f.Frame.Width, f.Frame.Height);
             }
             int reps = Math.Max(1, runs / 15);
-            using var bundle = ModelBundle.Load(model);
-            var dataset = EvaluationDataset.Open(data, bundle.Model.ClassCount);
+            using var bundle = LocalModel.Open(model);
+            var dataset = EvaluationDataset.Open(data, bundle.Version.ClassCount);
             var decoder = new FrameDecoder();
 
             double once = Measure.MedianMs(reps, () =>
@@ -43,18 +43,18 @@ public static class EvaluationBench
                 foreach (var item in dataset.Items)
                 {
                     using var frame = decoder.DecodeFile(item.FramePath);
-                    bundle.Scorer.Score(frame, (s, _) => s.FrameScore);
+                    bundle.Runner.Score(bundle.Lease, frame, null, (s, _) => s.FrameScore);
                 }
             });
             var parts = new List<EvaluationTimings>();
             double evaluate = Measure.MedianMs(reps, () =>
-                parts.Add(Evaluator.Run(bundle, dataset, Path.Combine(work, "out"), new EvaluationSettings()).Timings!));
+                parts.Add(Evaluator.Run(bundle.Runner, bundle.Lease, dataset, Path.Combine(work, "out"), new EvaluationSettings()).Timings!));
             var last = parts[^1];
 
             Console.WriteLine();
             Console.WriteLine($"| case ({Frames} demo frames, 1024×512, {reps} runs) | ms per frame | ratio |");
             Console.WriteLine("|---|---|---|");
-            Console.WriteLine($"| score once, one method (FrameScorer: decode, network, SML + BS + DS, regions) | {once / Frames:0.0} | 1.00× |");
+            Console.WriteLine($"| score once, one method (frame runner: decode, network, SML + BS + DS, regions) | {once / Frames:0.0} | 1.00× |");
             Console.WriteLine($"| evaluate, seven methods (decode, mask, network once, seven maps, seven accumulators, spill, regions, outputs) | {evaluate / Frames:0.0} | **{evaluate / once:0.00}×** |");
             Console.WriteLine($"| evaluate, parts of the last run: model pass / threshold pass / files (fixed cost, plots) | " +
                 $"{last.ModelPass.TotalMilliseconds / Frames:0.0} / {last.ThresholdPass.TotalMilliseconds / Frames:0.0} / {last.Outputs.TotalMilliseconds / Frames:0.0} | " +
@@ -69,16 +69,16 @@ public static class EvaluationBench
     }
 
     /// <summary>The scoring core alone on the same logits: seven maps + accumulation against one pipeline pass.</summary>
-    private static void Core(ModelBundle bundle, FrameDecoder decoder, EvaluationDataset dataset, int reps)
+    private static void Core(LocalModel bundle, FrameDecoder decoder, EvaluationDataset dataset, int reps)
     {
         using var frame = decoder.DecodeFile(dataset.Items[0].FramePath);
         var mask = EvaluationDataset.ReadChecked(dataset.Items[0].MaskPath);
-        var input = new FramePreprocessor(bundle.Model.Descriptor.Input).Prepare(frame);
-        using var lease = bundle.Model.Run(input);
+        var input = new FramePreprocessor(bundle.Version.Descriptor.Input).Prepare(frame);
+        using var lease = bundle.Lease.Session.Run(input);
         float[]? crop = null;
         var logits = input.Box.CropToContent(lease.View, ref crop);
-        var pipeline = new FramePipeline(bundle.Profile.Effective, bundle.Statistics);
-        var scorer = new MultiMethodScorer(bundle.Statistics, new MultiMethodOptions { Base = bundle.Profile.Effective });
+        var pipeline = new FramePipeline(bundle.Version.Profile.Effective, bundle.Version.Statistics);
+        var scorer = new MultiMethodScorer(bundle.Version.Statistics, new MultiMethodOptions { Base = bundle.Version.Profile.Effective });
         int runs = Math.Max(5, reps * 5);
         double one = Measure.MedianMs(runs, () => pipeline.Score(logits, frame.Height, frame.Width));
         double seven = Measure.MedianMs(runs, () => { scorer.Score(logits, frame.Height, frame.Width); scorer.Accumulate(mask); });
@@ -86,17 +86,17 @@ public static class EvaluationBench
     }
 
     /// <summary>Streaming accumulators hold fixed memory: the heap after N and after 4N accumulated frames.</summary>
-    private static void Memory(ModelBundle bundle, FrameDecoder decoder, EvaluationDataset dataset)
+    private static void Memory(LocalModel bundle, FrameDecoder decoder, EvaluationDataset dataset)
     {
         using var frame = decoder.DecodeFile(dataset.Items[0].FramePath);
         var mask = EvaluationDataset.ReadChecked(dataset.Items[0].MaskPath);
-        var input = new FramePreprocessor(bundle.Model.Descriptor.Input).Prepare(frame);
-        using var lease = bundle.Model.Run(input);
+        var input = new FramePreprocessor(bundle.Version.Descriptor.Input).Prepare(frame);
+        using var lease = bundle.Lease.Session.Run(input);
         float[]? crop = null;
         var logits = input.Box.CropToContent(lease.View, ref crop);
         foreach (bool exact in new[] { false, true })
         {
-            var scorer = new MultiMethodScorer(bundle.Statistics, new MultiMethodOptions { Base = bundle.Profile.Effective, Exact = exact });
+            var scorer = new MultiMethodScorer(bundle.Version.Statistics, new MultiMethodOptions { Base = bundle.Version.Profile.Effective, Exact = exact });
             var heap = new List<(int Frames, long Heap, long Accumulators)>();
             int done = 0;
             foreach (int target in new[] { 4, 16 })

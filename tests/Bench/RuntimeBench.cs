@@ -42,14 +42,14 @@ public static class RuntimeBench
             Row("demo session load", loadCold, "without the warm-up run");
             Row("demo session load + warm-up run", loadWarm, "what the service does at start");
 
-            using var bundle = ModelBundle.Load(modelFolder, options);
+            using var bundle = LocalModel.Open(modelFolder, new ParallelSettings { IntraOpThreads = options.IntraOpThreads });
             using var frame = decoder.Decode(Encode(Scene(1024, 512, 12), new PngEncoder()));
-            var demoPreprocessor = new FramePreprocessor(bundle.Model.Descriptor.Input);
+            var demoPreprocessor = new FramePreprocessor(bundle.Version.Descriptor.Input);
             var input = demoPreprocessor.Prepare(frame);
-            double inference = Measure.MedianMs(runs, () => { using var lease = bundle.Model.Run(input); });
+            double inference = Measure.MedianMs(runs, () => { using var lease = bundle.Lease.Session.Run(input); });
             Row("demo model inference, 1024×512", inference, "target ≤ 50 ms");
             var stages = new List<FrameTimings>();
-            double whole = Measure.MedianMs(runs, () => stages.Add(bundle.Scorer.Score(frame, (_, t) => t)));
+            double whole = Measure.MedianMs(runs, () => stages.Add(bundle.Runner.Score(bundle.Lease, frame, null, (_, t) => t)));
             double scoring = Measure.Median(stages.Select(t => t.Scoring.TotalMilliseconds).ToList());
             double network = Measure.Median(stages.Select(t => t.Inference.TotalMilliseconds).ToList());
             Row("whole frame path, 1024×512 (preprocess + inference + full method + regions)", whole,
@@ -57,14 +57,14 @@ public static class RuntimeBench
 
             // The descriptor's surface classes mark each region on or off a surface: its cost, alternating with and
             // without so both see the same machine.
-            // A scorer of its own for each, so each reuses its pipeline as the service does.
-            var unmarkedScorer = new FrameScorer(bundle.Model, bundle.Statistics, bundle.Scorer.Defaults with { MarkedSurfaceClasses = null });
+            // Each option set has its own pooled pipeline, reused as the service does.
+            var unmarked = bundle.Version.Defaults with { MarkedSurfaceClasses = null };
             var withMarks = new List<double>();
             var withoutMarks = new List<double>();
             for (int i = 0; i < runs + 2; i++)
             {
-                var a = bundle.Scorer.Score(frame, (_, t) => t).Scoring.TotalMilliseconds;
-                var b = unmarkedScorer.Score(frame, (_, t) => t).Scoring.TotalMilliseconds;
+                var a = bundle.Runner.Score(bundle.Lease, frame, null, (_, t) => t).Scoring.TotalMilliseconds;
+                var b = bundle.Runner.Score(bundle.Lease, frame, unmarked, (_, t) => t).Scoring.TotalMilliseconds;
                 if (i < 2) continue;
                 withMarks.Add(a);
                 withoutMarks.Add(b);
@@ -79,7 +79,7 @@ public static class RuntimeBench
             for (int i = 0; i < calibCount; i++)
                 File.WriteAllBytes(Path.Combine(calibFrames, $"f{i:00}.png"), Encode(Scene(1024, 512, 100 + i), new PngEncoder()));
             var files = Calibrator.ListFrames(calibFrames);
-            var calibrator = new Calibrator(bundle.Model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions { CheckpointEvery = 0 });
+            var calibrator = new Calibrator(bundle.Runner, bundle.Lease, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions { CheckpointEvery = 0 });
             var clock = Stopwatch.StartNew();
             calibrator.Run(files, Path.Combine(root, "calibration.json"));
             Row("calibration throughput, 1024×512 PNG frames", clock.Elapsed.TotalMilliseconds / calibCount,

@@ -26,13 +26,13 @@ public static class ServiceBench
             var frames = Enumerable.Range(0, 4).Select(i => DemoPng.Encode(new ApronSceneGenerator(1024, 512).Render(70 + i))).ToArray();
 
             // In process: decode + the whole frame path, as the endpoint does, without HTTP.
-            using var bundle = ModelBundle.Load(Path.Combine(models, "demo"));
+            using var bundle = LocalModel.Open(Path.Combine(models, "demo"));
             var decoder = new FrameDecoder();
             int next = 0;
             double InProcess() => Measure.MedianMs(runs, () =>
             {
                 using var f = decoder.Decode(frames[next++ % frames.Length]);
-                bundle.Scorer.Score(f, (s, _) => s.FrameScore);
+                bundle.Runner.Score(bundle.Lease, f, null, (s, _) => s.FrameScore);
             });
             double inProcessBefore = InProcess();
 
@@ -60,7 +60,7 @@ public static class ServiceBench
                 Console.WriteLine();
                 Console.WriteLine("| case | p50 | p99 | throughput | note |");
                 Console.WriteLine("|---|---|---|---|---|");
-                Console.WriteLine($"| in process: decode + frame path, 1024×512 PNG | {inProcess:0.0} ms | | {1000 / inProcess:0.0} frames/s | FrameScorer, no HTTP |");
+                Console.WriteLine($"| in process: decode + frame path, 1024×512 PNG | {inProcess:0.0} ms | | {1000 / inProcess:0.0} frames/s | frame runner, no HTTP |");
                 Console.WriteLine($"| HTTP, 1 client | {one.P50:0.0} ms | {one.P99:0.0} ms | {one.Throughput:0.0} frames/s | overhead over in process: {(one.P50 / inProcess - 1) * 100:0}% (target ≤ 15%) |");
                 Console.WriteLine($"| HTTP, 4 clients | {four.P50:0.0} ms | {four.P99:0.0} ms | {four.Throughput:0.0} frames/s | {four.Refused} refused with 429 |");
                 Console.WriteLine();

@@ -40,7 +40,7 @@ public class BatchesApiTests
             Assert.Equal("default", line.GetProperty("profileVersion").GetString());
             Assert.Equal("shift1/" + line.GetProperty("frameId").GetString(), line.GetProperty("source").GetString());
             var artifacts = line.GetProperty("artifacts");
-            foreach (string key in new[] { "classMap", "mask", "heatMap", "overlay", "report" })
+            foreach (string key in new[] { "classes", "mask", "heat", "overlay", "report" })
                 Assert.True(File.Exists(Path.Combine(batchFolder, artifacts.GetProperty(key).GetString()!)), key);
             var report = JsonDocument.Parse(File.ReadAllText(Path.Combine(batchFolder, artifacts.GetProperty("report").GetString()!))).RootElement;
             Assert.Equal(line.GetProperty("frameScore").GetSingle(), report.GetProperty("frameScore").GetSingle());

@@ -3,6 +3,7 @@ using SixLabors.ImageSharp.PixelFormats;
 using Strayspot.Scoring.Standardization;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Frames;
+using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 using Strayspot.Tests.Support;
 
@@ -28,25 +29,30 @@ public class CalibratorTests
         return (dir, model, folder);
     }
 
-    private static Calibrator Make(SegmentationModel model, CalibrationOptions options) =>
-        new(model, new FrameDecoder(), () => new NaiveMaxLogitReducer(), options);
+    private static readonly ParallelSettings OneThreadEach = new() { IntraOpThreads = 1 };
+
+    private static LocalModel Open(string folder) => LocalModel.Open(ModelVersion.ReadForCalibration(folder), OneThreadEach);
+
+    private static Calibrator Make(LocalModel model, CalibrationOptions options) =>
+        new(model.Runner, model.Lease, new FrameDecoder(), () => new NaiveMaxLogitReducer(), options);
 
     [Fact]
     public void ResumedRunEqualsUnbrokenRunExactly()
     {
         var (dir, modelFolder, framesFolder) = Setup();
         using var _ = dir;
-        using var model = SegmentationModel.LoadFolder(modelFolder, OneThread);
+        using var local = Open(modelFolder);
+        var model = local.Lease.Session;
         var frames = Calibrator.ListFrames(framesFolder);
 
-        var unbroken = Make(model, new CalibrationOptions { CheckpointEvery = 0, Workers = 2, MinimumCount = 1 }).Run(frames, dir["unbroken.json"])!;
+        var unbroken = Make(local, new CalibrationOptions { CheckpointEvery = 0, Workers = 2, MinimumCount = 1 }).Run(frames, dir["unbroken.json"])!;
 
         string outPath = dir["resumed.json"];
-        var killed = Make(model, new CalibrationOptions { CheckpointEvery = 2, Workers = 2, MinimumCount = 1, StopAfterFrames = 3 }).Run(frames, outPath);
+        var killed = Make(local, new CalibrationOptions { CheckpointEvery = 2, Workers = 2, MinimumCount = 1, StopAfterFrames = 3 }).Run(frames, outPath);
         Assert.Null(killed);
         Assert.False(File.Exists(outPath));
         Assert.True(File.Exists(outPath + ".checkpoint.json"));
-        var resumed = Make(model, new CalibrationOptions { CheckpointEvery = 2, Workers = 2, MinimumCount = 1 }).Run(frames, outPath)!;
+        var resumed = Make(local, new CalibrationOptions { CheckpointEvery = 2, Workers = 2, MinimumCount = 1 }).Run(frames, outPath)!;
 
         Assert.Equal(unbroken.Classes, resumed.Classes); // bit-identical doubles
         Assert.Equal(7, resumed.FrameCount);
@@ -59,9 +65,10 @@ public class CalibratorTests
     {
         var (dir, modelFolder, framesFolder) = Setup(frames: 4);
         using var _ = dir;
-        using var model = SegmentationModel.LoadFolder(modelFolder, OneThread);
+        using var local = Open(modelFolder);
+        var model = local.Lease.Session;
         var frames = Calibrator.ListFrames(framesFolder);
-        var artifact = Make(model, new CalibrationOptions { CheckpointEvery = 3, Workers = 2, MinimumCount = 1 }).Run(frames, dir["c.json"])!;
+        var artifact = Make(local, new CalibrationOptions { CheckpointEvery = 3, Workers = 2, MinimumCount = 1 }).Run(frames, dir["c.json"])!;
 
         // Reference: each frame separately, every pixel of every frame listed, then plain two-pass float64.
         var values = new List<float>[model.ClassCount];
@@ -97,8 +104,9 @@ public class CalibratorTests
     {
         var (dir, modelFolder, framesFolder) = Setup(frames: 2, classes: 4);
         using var _ = dir;
-        using var model = SegmentationModel.LoadFolder(modelFolder, OneThread);
-        var artifact = Make(model, new CalibrationOptions { MinimumCount = 1_000_000 }).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"])!;
+        using var local = Open(modelFolder);
+        var model = local.Lease.Session;
+        var artifact = Make(local, new CalibrationOptions { MinimumCount = 1_000_000 }).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"])!;
         Assert.Equal(model.ModelSha256, artifact.ModelSha256);
         Assert.Equal(64, artifact.DescriptorSha256.Length);
         Assert.Equal(["c0", "c1", "c2", "c3"], artifact.FallbackClasses); // none reaches a million pixels
@@ -113,8 +121,8 @@ public class CalibratorTests
         var (dir, modelFolder, framesFolder) = Setup(frames: 1);
         using var _ = dir;
         CalibrationArtifact artifact;
-        using (var model = SegmentationModel.LoadFolder(modelFolder, OneThread))
-            artifact = Make(model, new CalibrationOptions()).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"])!;
+        using (var local = Open(modelFolder))
+            artifact = Make(local, new CalibrationOptions()).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"])!;
         // Same shape, other weights.
         string other = Path.Combine(dir.Path, "other");
         var g = new TestSegmentationGraph { Classes = 3, Stride = 2 };
@@ -132,9 +140,10 @@ public class CalibratorTests
         var (dir, modelFolder, framesFolder) = Setup(frames: 3);
         using var _ = dir;
         File.WriteAllBytes(Path.Combine(framesFolder, "f01.png"), [0x89, 0x50, 0x4E, 0x47, 1, 2, 3]);
-        using var model = SegmentationModel.LoadFolder(modelFolder, OneThread);
+        using var local = Open(modelFolder);
+        var model = local.Lease.Session;
         var e = Assert.Throws<ModelException>(() =>
-            Make(model, new CalibrationOptions { CheckpointEvery = 0 }).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"]));
+            Make(local, new CalibrationOptions { CheckpointEvery = 0 }).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"]));
         Assert.True(e.Code is ModelErrorCodes.FrameCorrupt or ModelErrorCodes.FrameFormat, e.Code);
         Assert.Contains("f01.png", e.Message);
         Assert.False(File.Exists(dir["cal.json"]));
@@ -146,9 +155,10 @@ public class CalibratorTests
     {
         var (dir, modelFolder, framesFolder) = Setup(frames: 2);
         using var _ = dir;
-        using var model = SegmentationModel.LoadFolder(modelFolder, OneThread);
+        using var local = Open(modelFolder);
+        var model = local.Lease.Session;
         var frames = Calibrator.ListFrames(framesFolder);
-        var unfiltered = Make(model, new CalibrationOptions()).Run(frames, dir["all.json"])!;
+        var unfiltered = Make(local, new CalibrationOptions()).Run(frames, dir["all.json"])!;
         // Labels equal to the prediction everywhere except an ignored top row: counts drop by exactly that row.
         string labels = Path.Combine(dir.Path, "labels");
         Directory.CreateDirectory(labels);
@@ -170,7 +180,7 @@ public class CalibratorTests
             label.SaveAsPng(Path.Combine(labels, Path.GetFileNameWithoutExtension(f) + ".png"));
             ignored += frame.Width;
         }
-        var filtered = Make(model, new CalibrationOptions { LabelsFolder = labels, IgnoreLabel = 255 }).Run(frames, dir["lab.json"])!;
+        var filtered = Make(local, new CalibrationOptions { LabelsFolder = labels, IgnoreLabel = 255 }).Run(frames, dir["lab.json"])!;
         Assert.True(filtered.LabelFiltered);
         Assert.Equal(unfiltered.Classes.Sum(c => c.Count) - ignored, filtered.Classes.Sum(c => c.Count));
     }

@@ -78,7 +78,7 @@ public sealed class DemoAssetsTests(DemoFixture fixture)
     [Fact]
     public void CommittedFolderLoadsWithItsCalibrationBoundToTheModel()
     {
-        using var bundle = ModelBundle.Load(Committed, new ModelRuntimeOptions { IntraOpThreads = 1, WarmUp = false });
+        var bundle = ModelVersion.Read(Committed);
         Assert.Equal(DemoAssets.CalibrationFile, bundle.StatisticsSource);
         Assert.Null(bundle.Warning);
         var stats = bundle.Statistics!;

@@ -31,8 +31,8 @@ public sealed class EvaluatorTests : IDisposable
         Assert.Empty(Directory.GetFiles(output, "*.tmp"));
         Assert.Equal(7, report.Methods.Count);
 
-        // Recompute every method's pixel metrics through FrameScorer (the `score` path), one method at a time.
-        using var bundle = ModelBundle.Load(model);
+        // Recompute every method's pixel metrics through the pipeline (the `score` path), one method at a time.
+        using var local = LocalModel.Open(model);
         var dataset = EvaluationDataset.Open(data);
         var decoder = new FrameDecoder();
         var byHand = EvaluatedMethods.All.ToDictionary(m => m, _ => new ExactPixelMetrics());
@@ -44,13 +44,13 @@ public sealed class EvaluatorTests : IDisposable
             var mask = EvaluationDataset.ReadChecked(item.MaskPath);
             foreach (var m in EvaluatedMethods.All)
             {
-                var options = EvaluatedMethods.OptionsFor(m, bundle.Profile.Effective) with { Threshold = report.OperatingPoint.ProfileThreshold };
-                bundle.Scorer.Score(frame, (s, _) =>
+                var options = EvaluatedMethods.OptionsFor(m, local.Version.Profile.Effective) with { Threshold = report.OperatingPoint.ProfileThreshold };
+                local.Runner.Score(local.Lease, frame, options, (s, _) =>
                 {
                     byHand[m].Add(s.AnomalyScore, mask);
                     if (m == EvaluatedMethod.Full) { frameScores.Add(s.FrameScore); flaggedAtProfileThreshold += s.FlaggedPixels; }
                     return 0;
-                }, options);
+                });
             }
         }
         using var json = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(output, "metrics.json")));

@@ -1,0 +1,33 @@
+using Strayspot.Service.Models;
+
+namespace Strayspot.Service.Inference;
+
+/// <summary>
+/// How many cores one frame may use, decided once per process: the service sets it from Service:IntraOpThreads,
+/// the command line from --threads. Every ONNX Runtime session and every scoring pipeline reads it from here.
+/// </summary>
+public sealed record ParallelSettings
+{
+    /// <summary>ONNX Runtime intra-op threads per inference; 0 in configuration means every core.</summary>
+    public int IntraOpThreads { get; init; } = Environment.ProcessorCount;
+    /// <summary>Upper bound on threads per frame in the scoring core's parallel stages (−1: the runtime decides).</summary>
+    public int ScoringThreads { get; init; } = -1;
+    /// <summary>Run each new session once with a dummy input before it serves frames.</summary>
+    public bool WarmUp { get; init; } = true;
+
+    public static ParallelSettings Default { get; } = new();
+
+    /// <summary>A configured thread count where 0 (or null) means every core.</summary>
+    public static ParallelSettings FromThreads(int? threads, bool warmUp = true)
+    {
+        if (threads is < 0)
+            throw new ArgumentOutOfRangeException(nameof(threads), $"Thread count must be 0 (every core) or more; got {threads}.");
+        return new ParallelSettings
+        {
+            IntraOpThreads = threads is > 0 ? threads.Value : Environment.ProcessorCount,
+            WarmUp = warmUp,
+        };
+    }
+
+    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp };
+}
