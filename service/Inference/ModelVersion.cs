@@ -39,7 +39,9 @@ public sealed class ModelVersion
         }
         defaults.Validate();
         Defaults = defaults;
-        Key = KeyOf(name, weightsSha256, descriptor, statistics, profile);
+        string descriptorJson = JsonSerializer.Serialize(descriptor);
+        SessionKey = name + "@" + Hash(weightsSha256 + "\n" + descriptorJson);
+        Key = KeyOf(name, weightsSha256, descriptorJson, statistics, profile);
     }
 
     public string Name { get; }
@@ -57,6 +59,9 @@ public sealed class ModelVersion
     public int ClassCount => Descriptor.Classes.Count;
     public bool HasWeights => WeightsSha256 is not null;
     public string Key { get; }
+    /// <summary>What the ONNX Runtime session depends on (weights and descriptor): versions that differ only in
+    /// statistics or profile share one session.</summary>
+    public string SessionKey { get; }
 
     public string ModelPath => Path.Combine(Folder, SegmentationModel.ModelFileName);
 
@@ -137,13 +142,15 @@ public sealed class ModelVersion
                 "calibrate the model or choose another method.");
     }
 
-    private static string KeyOf(string name, string? weights, ModelDescriptor descriptor, ClassStatistics? statistics, ScoringProfile profile)
+    private static string KeyOf(string name, string? weights, string descriptorJson, ClassStatistics? statistics, ScoringProfile profile)
     {
         var text = new StringBuilder();
         text.Append(name).Append('\n').Append(weights ?? "-").Append('\n');
-        text.Append(JsonSerializer.Serialize(descriptor)).Append('\n');
+        text.Append(descriptorJson).Append('\n');
         if (statistics is not null) text.Append(JsonSerializer.Serialize(statistics.Classes)).Append(statistics.MinimumCount);
         text.Append('\n').Append(JsonSerializer.Serialize(profile)).Append(JsonSerializer.Serialize(profile.Effective));
-        return name + "@" + Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes(text.ToString())))[..16];
+        return name + "@" + Hash(text.ToString());
     }
+
+    private static string Hash(string text) => Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes(text)))[..16];
 }

@@ -21,6 +21,9 @@ public sealed class SegmentationModel : IDisposable
     private readonly string[] _outputNames;
     // Never terminated, so sharing it across threads is safe; callers who cancel pass their own.
     private readonly RunOptions _defaultRunOptions = new();
+    // Live sessions per model file in this process: what the checks of "one session per model" count.
+    private static readonly System.Collections.Concurrent.ConcurrentDictionary<string, int> LiveByPath = new(StringComparer.Ordinal);
+    private int _disposed;
 
     private SegmentationModel(InferenceSession session, ModelDescriptor descriptor, string modelPath, string sha256, OnnxGraphFacts facts)
     {
@@ -31,7 +34,11 @@ public sealed class SegmentationModel : IDisposable
         Facts = facts;
         _inputNames = [descriptor.Input.Tensor];
         _outputNames = [descriptor.Output.Tensor];
+        LiveByPath.AddOrUpdate(Path.GetFullPath(modelPath), 1, (_, n) => n + 1);
     }
+
+    /// <summary>ONNX Runtime sessions of the model file at <paramref name="modelPath"/> alive in this process now.</summary>
+    public static int LiveSessions(string modelPath) => LiveByPath.GetValueOrDefault(Path.GetFullPath(modelPath));
 
     public ModelDescriptor Descriptor { get; }
     public string ModelPath { get; }
@@ -208,6 +215,8 @@ public sealed class SegmentationModel : IDisposable
 
     public void Dispose()
     {
+        if (Interlocked.Exchange(ref _disposed, 1) != 0) return;
+        LiveByPath.AddOrUpdate(Path.GetFullPath(ModelPath), 0, (_, n) => n - 1);
         _session.Dispose();
         _defaultRunOptions.Dispose();
     }
