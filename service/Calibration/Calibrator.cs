@@ -37,8 +37,6 @@ public readonly record struct CalibrationProgress(int FramesDone, int FramesTota
 /// </summary>
 public sealed class Calibrator
 {
-    public static readonly string[] FrameExtensions = [".png", ".jpg", ".jpeg", ".webp"];
-
     private readonly FrameRunner _runner;
     private readonly ModelLease _model;
     private readonly FrameDecoder _decoder;
@@ -57,16 +55,15 @@ public sealed class Calibrator
             throw new ArgumentOutOfRangeException(nameof(options), "Workers must be ≥ 1 and CheckpointEvery ≥ 0.");
     }
 
-    /// <summary>Image files directly in <paramref name="folder"/>, in ordinal name order.</summary>
+    /// <summary>
+    /// Image files directly in <paramref name="folder"/>, in ordinal name order. Not walked into subfolders: label
+    /// maps are matched to frames by file name.
+    /// </summary>
     public static IReadOnlyList<string> ListFrames(string folder)
     {
-        if (!Directory.Exists(folder))
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' does not exist.");
-        var files = Directory.EnumerateFiles(folder)
-            .Where(f => FrameExtensions.Contains(Path.GetExtension(f).ToLowerInvariant()))
-            .OrderBy(f => Path.GetFileName(f), StringComparer.Ordinal).ToList();
+        var files = new FolderFrameSource(folder, recursive: false).Frames().Select(f => f.Path!).ToList();
         if (files.Count == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' holds no {string.Join("/", FrameExtensions)} files.");
+            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' holds no {FrameFormats.Listed} files.");
         return files;
     }
 

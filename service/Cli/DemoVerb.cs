@@ -22,7 +22,7 @@ public static class DemoVerb
             using var local = LocalModel.Open(modelFolder);
             string scores = Path.Combine(root, "scores");
             var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
-                progress => ScoreVerb.ScoreAll(local, frames, local.Version.Defaults, scores, progress));
+                progress => ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames(frames), local.Version.Defaults, scores, progress));
             Console.WriteLine($"Demo model:  {modelFolder}");
             Console.WriteLine($"Frames:      {Path.Combine(root, "frames")}");
             Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");

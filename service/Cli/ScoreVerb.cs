@@ -18,7 +18,7 @@ public static class ScoreVerb
     public static Command Create()
     {
         var model = new Argument<DirectoryInfo>("model") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
-        var frames = new Argument<string[]>("frames") { Description = "frame files, or folders of .png/.jpg/.jpeg/.webp", Arity = ArgumentArity.OneOrMore };
+        var frames = new Argument<string[]>("frames") { Description = $"frame files ({FrameFormats.Listed}), folders of them (subfolders included) or .zip/.tar archives of them", Arity = ArgumentArity.OneOrMore };
         var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
         var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default or 0: every core)" };
         var scoring = new ScoringOptionsBinding();
@@ -31,6 +31,7 @@ public static class ScoreVerb
         command.SetAction(p => CliApp.Guard(() =>
         {
             var files = ExpandFrames(p.GetValue(frames)!);
+            if (files.Count == 0) throw new ModelException(ModelErrorCodes.FrameFormat, $"The frames given hold no {FrameFormats.Listed} files.");
             using var local = LocalModel.Open(p.GetValue(model)!.FullName, ParallelSettings.FromThreads(p.GetValue(threads)));
             if (local.Version.Warning is not null) Console.Error.WriteLine($"warning: {local.Version.Warning}");
             var options = scoring.Apply(p, local.Version.Defaults);
@@ -47,8 +48,8 @@ public static class ScoreVerb
 
     public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
 
-    /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
-    public static IReadOnlyList<RankedFrame> ScoreAll(LocalModel model, IReadOnlyList<string> files, ScoringOptions options,
+    /// <summary>Scores each frame into its own subfolder (named by the frame's file stem) and writes ranking.json.</summary>
+    public static IReadOnlyList<RankedFrame> ScoreAll(LocalModel model, IReadOnlyList<SourceFrame> files, ScoringOptions options,
         string outFolder, IProgress<FrameCount>? progress = null)
     {
         Directory.CreateDirectory(outFolder);
@@ -58,13 +59,13 @@ public static class ScoreVerb
         var stems = new HashSet<string>(StringComparer.Ordinal);
         for (int i = 0; i < files.Count; i++)
         {
-            string stem = Path.GetFileNameWithoutExtension(files[i]);
+            string stem = Path.GetFileNameWithoutExtension(files[i].Id);
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
-            using var frame = decoder.DecodeFile(files[i]);
+            using var frame = files[i].Decode(decoder);
             var report = model.Runner.Score(model.Lease, frame, options,
                 (scored, timings) => output.WriteAll(scored, timings, options, stem, folder, frame.Image));
-            ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, Rendering.ArtifactWriter.ReportFile)));
+            ranked.Add(new RankedFrame(files[i].Path ?? files[i].Id, report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, Rendering.ArtifactWriter.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
         ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));
@@ -72,19 +73,7 @@ public static class ScoreVerb
         return ranked;
     }
 
-    /// <summary>Files as given; folders expanded to their frames in name order. Fails listing every missing path at once.</summary>
-    public static IReadOnlyList<string> ExpandFrames(IEnumerable<string> paths)
-    {
-        var files = new List<string>();
-        var missing = new List<string>();
-        foreach (string path in paths)
-        {
-            if (Directory.Exists(path)) files.AddRange(Calibrator.ListFrames(path));
-            else if (File.Exists(path)) files.Add(Path.GetFullPath(path));
-            else missing.Add(path);
-        }
-        if (missing.Count > 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"No such frame file or folder: {string.Join(", ", missing)}.");
-        return files;
-    }
+    /// <summary>The frames of files, folders (walked) and archives as given, in order; fails listing every missing path at once.</summary>
+    public static IReadOnlyList<SourceFrame> ExpandFrames(IEnumerable<string> paths) =>
+        FrameSources.FromPaths(paths).SelectMany(source => source.Frames()).ToList();
 }

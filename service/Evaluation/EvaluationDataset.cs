@@ -40,7 +40,7 @@ public sealed class EvaluationDataset
 {
     public const string FramesFolder = "frames", MasksFolder = "masks", LabelsFolder = "labels";
     public const string FramePrefix = "frame_", MaskPrefix = "mask_", LabelsPrefix = "labels_";
-    private static readonly string[] FrameExtensions = [".png", ".jpg", ".jpeg", ".webp"];
+    private static readonly string[] FrameExtensions = [.. Frames.FrameFormats.Extensions];
     private static readonly Configuration Formats = new(new PngConfigurationModule(), new JpegConfigurationModule(), new WebpConfigurationModule());
     private const int MaxListed = 50;
 
