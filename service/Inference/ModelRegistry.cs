@@ -29,7 +29,7 @@ public sealed class ModelRegistry : IDisposable
     private readonly object _gate = new();
     private readonly Dictionary<string, ModelSlot> _current = new(StringComparer.Ordinal);
     private readonly Dictionary<string, SharedSession> _sessions = new(StringComparer.Ordinal);
-    private readonly Dictionary<string, string> _loadErrors = new(StringComparer.Ordinal);
+    private readonly Dictionary<string, (string Code, string Message)> _loadErrors = new(StringComparer.Ordinal);
     private readonly object _loading = new();
     private bool _disposed;
 
@@ -57,7 +57,7 @@ public sealed class ModelRegistry : IDisposable
         {
             ObjectDisposedException.ThrowIf(_disposed, this);
             if (_loadErrors.TryGetValue(version.SessionKey, out var error) && needSession)
-                throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{version.Name}' could not be loaded: {error}");
+                throw new ModelException(error.Code, $"Model '{version.Name}' could not be loaded: {error.Message}");
             _sessions.TryGetValue(version.SessionKey, out var session);
             if (needSession && session is null) return null; // IfLoaded, or a load that lost a race with a reload
             if (!_current.TryGetValue(version.Name, out var slot) || slot.Version.Key != version.Key)
@@ -83,7 +83,7 @@ public sealed class ModelRegistry : IDisposable
     /// <summary>The load error of a version's session, null when it loaded or was not tried.</summary>
     public string? LoadError(ModelVersion version)
     {
-        lock (_gate) return _loadErrors.GetValueOrDefault(version.SessionKey);
+        lock (_gate) return _loadErrors.TryGetValue(version.SessionKey, out var e) ? e.Message : null;
     }
 
     /// <summary>True when <paramref name="version"/> has a warm session here (or needs none).</summary>
@@ -113,7 +113,7 @@ public sealed class ModelRegistry : IDisposable
             lock (_gate)
                 if (_sessions.ContainsKey(version.SessionKey) || _loadErrors.ContainsKey(version.SessionKey)) return;
             SegmentationModel? model = null;
-            string? error = null;
+            (string Code, string Message)? error = null;
             try
             {
                 model = SegmentationModel.Load(version.ModelPath, version.Descriptor, Parallel.Runtime());
@@ -125,13 +125,13 @@ public sealed class ModelRegistry : IDisposable
             {
                 model?.Dispose();
                 model = null;
-                error = e.Message;
+                error = (e is ModelException m ? m.Code : ModelErrorCodes.ModelInvalid, e.Message);
             }
             lock (_gate)
             {
                 if (_disposed) { model?.Dispose(); return; }
                 if (model is not null) _sessions[version.SessionKey] = new SharedSession(version.SessionKey, version.Name, model);
-                else _loadErrors[version.SessionKey] = error!;
+                else _loadErrors[version.SessionKey] = error!.Value;
             }
         }
     }
