@@ -46,6 +46,9 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ITestOutputHelper o
         await Expect(first.Locator(".meta")).ToContainTextAsync($"1/{order.Count} regions decided");
         await Expect(page.Locator("#summary-counts")).ToContainTextAsync("0 of 4 frames reviewed (1 more in progress)");
         await session.ScreenshotAsync("one region decided");
+        await page.Keyboard.PressAsync("z");
+        await Expect(page.Locator("#stage")).ToHaveAttributeAsync("data-zoomed", "false");
+        await session.ScreenshotAsync("whole frame, one region decided", fullPage: false);
 
         // A region decided out of order is skipped by the queue.
         await page.Locator($"#region-table tbody tr[data-region='{order[2]}']").ClickAsync();
