@@ -23,7 +23,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
     internal const string Batch = "apron-demo";
 
     /// <summary>The service on a real socket, with the demo model and a done batch of the demo frames.</summary>
-    internal sealed class LiveService : IAsyncDisposable
+    public sealed class LiveService : IAsyncDisposable
     {
         public required WebApplication App { get; init; }
         public required string Root { get; init; }

@@ -16,14 +16,33 @@ namespace Strayspot.Tests.Service.Review;
 /// per frame, tags that never overlap, and a layout that shows the legend and threshold without scrolling.
 /// </summary>
 [Collection(BrowserCollection.Name)]
-public sealed class ReviewQueueTests(BrowserFixture browser, ITestOutputHelper output)
+public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.SharedService shared, ITestOutputHelper output)
+    : IClassFixture<ReviewQueueTests.SharedService>
 {
+    /// <summary>
+    /// One service and demo batch for the whole class, started on first use (so a run without Chromium starts none):
+    /// the queue test's decisions change nothing the other tests look at.
+    /// </summary>
+    public sealed class SharedService : IAsyncLifetime
+    {
+        private readonly Lazy<Task<LiveService>> _live = new(() => StartAsync());
+
+        public Task<LiveService> GetAsync() => _live.Value;
+
+        public Task InitializeAsync() => Task.CompletedTask;
+
+        public async Task DisposeAsync()
+        {
+            if (_live.IsValueCreated) await (await _live.Value).DisposeAsync();
+        }
+    }
+
     private static readonly Regex Current = new(@"\bcurrent\b");
 
     [BrowserFact]
     public async Task A_verdict_moves_to_the_next_undecided_region_and_then_to_the_next_frame_that_needs_review()
     {
-        await using var s = await StartAsync();
+        var s = await shared.GetAsync();
         await using var session = await browser.OpenAsync(output);
         var page = session.Page;
         await OpenPageAsync(page, s);
@@ -96,7 +115,7 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ITestOutputHelper o
     [BrowserFact]
     public async Task Region_numbers_never_overlap_on_any_demo_frame_whole_or_zoomed()
     {
-        await using var s = await StartAsync();
+        var s = await shared.GetAsync();
         await using var session = await browser.OpenAsync(output);
         var page = session.Page;
         await OpenPageAsync(page, s);
@@ -147,7 +166,7 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ITestOutputHelper o
     [BrowserFact]
     public async Task At_common_laptop_sizes_the_legend_and_threshold_show_without_scrolling_and_no_space_is_left_empty()
     {
-        await using var s = await StartAsync();
+        var s = await shared.GetAsync();
         await using var session = await browser.OpenAsync(output);
         var page = session.Page;
         foreach (var (width, height) in new[] { (1280, 720), (1600, 1000) })
