@@ -34,7 +34,10 @@ public static class ScoreVerb
             var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
             using var bundle = ModelBundle.Load(p.GetValue(model)!.FullName, runtime);
             if (bundle.Warning is not null) Console.Error.WriteLine($"warning: {bundle.Warning}");
-            var options = scoring.Apply(p, bundle.Scorer.Defaults);
+            var options = scoring.Apply(p, bundle.Defaults);
+            bundle.EnsureCanScore(options);
+            foreach (var w in bundle.WarningsFor(0, 0, options).Where(w => w.Code == ScoringWarnings.ThresholdOutOfRange))
+                Console.Error.WriteLine($"warning [{w.Code}]: {w.Message}");
             string outFolder = p.GetValue(output)!.FullName;
             var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");

@@ -46,9 +46,16 @@ public static class Evaluator
         var notes = new List<string>();
         var profileOptions = bundle.Profile.Effective;
         bool sml = bundle.Statistics is not null;
-        var methods = sml ? EvaluatedMethods.All : EvaluatedMethods.All.Where(m => !EvaluatedMethods.NeedsStatistics(m)).ToList();
+        IReadOnlyList<EvaluatedMethod> methods = sml ? EvaluatedMethods.All : EvaluatedMethods.All.Where(m => !EvaluatedMethods.NeedsStatistics(m)).ToList();
         var primary = sml ? EvaluatedMethod.Full : EvaluatedMethod.MaxLogit;
         if (!sml) notes.Add("The model has no calibration.json or statistics.json: the SML methods were left out and the operating point is for max logit.");
+        if (bundle.Model.OutputsProbabilities)
+        {
+            // [setup] Softmax outputs carry no logits: only the methods defined on probabilities are measured.
+            methods = methods.Where(m => m is EvaluatedMethod.Msp or EvaluatedMethod.Entropy).ToList();
+            primary = EvaluatedMethod.Msp;
+            notes.Add("The model outputs probabilities (output.kind): only msp and entropy are defined on them, so max logit, energy and the SML methods were left out and the operating point is for msp.");
+        }
         var scorer = new MultiMethodScorer(bundle.Statistics, new MultiMethodOptions
         {
             Base = profileOptions, Methods = methods, Exact = settings.Exact, Bins = settings.Bins,

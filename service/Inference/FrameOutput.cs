@@ -37,11 +37,16 @@ public sealed class FrameOutput
     public FrameReport Write(DecodedFrame frame, string frameId, string folder, ScoringOptions? options = null,
         Action<FrameScoring>? inspect = null)
     {
-        var used = options ?? _bundle.Scorer.Defaults;
+        var used = options ?? _bundle.Defaults;
+        _bundle.EnsureCanScore(used); // [setup] refuse before any file is written
         var report = _bundle.Scorer.Score(frame, (scored, timings) =>
         {
             var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, _colors, frame.Image, folder);
-            var r = FrameReport.From(scored, used, _names, frameId, Model) with { Artifacts = artifacts };
+            var r = FrameReport.From(scored, used, _names, frameId, Model) with
+            {
+                Artifacts = artifacts,
+                Warnings = _bundle.WarningsFor(frame.Width, frame.Height, used),
+            };
             r.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
             r.TimingsMs["inference"] = timings.Inference.TotalMilliseconds;
             inspect?.Invoke(scored);
