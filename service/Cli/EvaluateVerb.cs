@@ -47,8 +47,7 @@ public static class EvaluateVerb
             string modelFolder = p.GetValue(model)!.FullName, outFolder = p.GetValue(output)!.FullName;
             string datasetFolder = p.GetValue(dataset)!.FullName;
             Evaluator.Validate(settings);
-            if (!Directory.Exists(modelFolder))
-                throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
+            if (!Directory.Exists(modelFolder)) Models.SegmentationModel.EnsureFolder(modelFolder);
             using var bundle = Inference.ModelBundle.Load(modelFolder, runtime);
             var set = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
             Console.WriteLine($"evaluating {bundle.Name} on {set.Items.Count} frame(s) ({set.Layout} layout{(set.HasLabels ? ", with class labels" : "")})");

@@ -24,8 +24,7 @@ public static class Evaluator
         IProgress<FrameCount>? progress = null, ModelRuntimeOptions? runtime = null)
     {
         Validate(settings);
-        if (!Directory.Exists(modelFolder))
-            throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
+        if (!Directory.Exists(modelFolder)) SegmentationModel.EnsureFolder(modelFolder);
         using var bundle = ModelBundle.Load(modelFolder, runtime);
         var dataset = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
         return Run(bundle, dataset, outFolder, settings, progress);

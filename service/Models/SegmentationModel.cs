@@ -55,11 +55,20 @@ public sealed class SegmentationModel : IDisposable
         System.Text.Json.JsonSerializer.Serialize(m).Trim('"');
     public TimeSpan LoadTime { get; private set; }
 
+    /// <summary>Refuses a path that is not a model folder; given the model file itself, names the folder to pass.</summary>
+    public static void EnsureFolder(string folder)
+    {
+        if (File.Exists(folder))
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"'{folder}' is a file; pass the model folder that holds {ModelFileName} and {ModelDescriptor.FileName}: {Path.GetDirectoryName(Path.GetFullPath(folder))}");
+        if (!Directory.Exists(folder))
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+    }
+
     /// <summary>Loads <c>model.onnx</c> with <c>descriptor.json</c> from a model folder.</summary>
     public static SegmentationModel LoadFolder(string folder, ModelRuntimeOptions? options = null)
     {
-        if (!Directory.Exists(folder))
-            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+        EnsureFolder(folder);
         string descriptorPath = Path.Combine(folder, ModelDescriptor.FileName);
         if (!File.Exists(descriptorPath))
             throw new ModelException(ModelErrorCodes.DescriptorInvalid, $"Model folder '{folder}' has no {ModelDescriptor.FileName}.");
