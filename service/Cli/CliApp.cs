@@ -20,6 +20,7 @@ public static class CliApp
         root.Subcommands.Add(ScoreLogitsVerb.Create());
         root.Subcommands.Add(CalibrateVerb.Create(() => new Calibration.PixelReductionMaxLogitReducer()));
         root.Subcommands.Add(InspectVerb.Create());
+        root.Subcommands.Add(CheckInputVerb.Create());
         root.Subcommands.Add(EvaluateVerb.Create());
         root.Subcommands.Add(ServeVerb.Create());
         root.Subcommands.Add(HealthcheckVerb.Create());

@@ -103,14 +103,24 @@ public static class Evaluator
         var operatingPoint = new OperatingPoint(EvaluatedMethods.Name(primary), settings.TargetKind, settings.TargetValue,
             metricThreshold, profileThreshold, second.Tpr, second.Fpr, second.Flagged);
 
-        string? written = null;
-        if (settings.WriteProfile)
+        var tradeOff = OperatingTradeOff.From(primaryMetrics.Curves, second.Fpr);
+        string? written = null, refused = null;
+        if (settings.WriteProfile && tradeOff.FlagsTooMuch && !settings.ForceProfile)
+        {
+            refused = string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                $"profile.json was not written: its threshold flags {100 * second.Fpr:0.#}% of ordinary pixels, more than {100 * OperatingTradeOff.MaxFlaggedOrdinaryShare:0}%. ") +
+                "Choose a stricter point (--target-fpr, or a lower --target-tpr), or pass --force-profile to write it anyway.";
+            notes.Add(refused);
+        }
+        else if (settings.WriteProfile)
             written = WriteProfile(bundle, primary, profileOptions, profileThreshold, dataset, settings);
 
         var report = new EvaluationReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version, dataset.Root, dataset.Layout,
             count, settings.Exact ? "exact" : "streaming", rows, operatingPoint, second.Regions, second.Segmentation, written, notes)
         {
             FrameRows = second.Frames,
+            TradeOff = tradeOff,
+            ProfileRefused = refused,
             Curves = metrics.Where(m => m.Pixels.Curves is not null).Select(m => (m.Name, m.Pixels.Curves!)).ToList(),
         };
         EvaluationOutputs.WriteAll(report, settings, outFolder);
