@@ -51,7 +51,7 @@ public sealed class Calibrator
         _options = options ?? new CalibrationOptions();
         if (model.OutputsProbabilities)
             throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
-                $"Model '{model.Descriptor.Name}' outputs probabilities (output.kind): calibration measures the max-logit statistics of the sml method, " +
+                $"Model '{model.FolderName}' outputs probabilities (output.kind): calibration measures the max-logit statistics of the sml method, " +
                 "which softmax outputs cannot give. Score it with --method msp or --method entropy, which need no calibration, or export it without the final Softmax.");
         if (_options.Workers < 1 || _options.CheckpointEvery < 0)
             throw new ArgumentOutOfRangeException(nameof(options), "Workers must be ≥ 1 and CheckpointEvery ≥ 0.");

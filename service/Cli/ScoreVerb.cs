@@ -50,14 +50,15 @@ public static class ScoreVerb
             var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress, chosen));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
             foreach (var r in ranking.Take(5))
-                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {r.Frame}");
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {r.Frame}");
             Console.WriteLine($"ranking: {Path.Combine(outFolder, "ranking.json")}");
             return CliApp.ExitOk;
         }));
         return command;
     }
 
-    public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
+    /// <summary>One line of ranking.json; <c>regionCount</c> is a count (a frame report's <c>regions</c> is the list).</summary>
+    public sealed record RankedFrame(string Frame, float FrameScore, int RegionCount, double AnomalousShare, string Report);
 
     /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
     /// <summary>What <c>score</c> writes per frame unless told otherwise: the mask and the picture a person looks at.

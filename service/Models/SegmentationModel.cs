@@ -42,12 +42,15 @@ public sealed class SegmentationModel : IDisposable
     /// <summary>The output is softmax probabilities: <see cref="Run(Memory{float}, long[], RunOptions?)"/> hands out their clamped logarithms.</summary>
     public bool OutputsProbabilities => Descriptor.Output.Kind == "probabilities";
 
+    /// <summary>The model folder's name: how results, the API and messages name a model.</summary>
+    public string FolderName => Path.GetFileName(Path.GetDirectoryName(Path.GetFullPath(ModelPath))) ?? Descriptor.Name;
+
     /// <summary>Refuses a scoring method the model's output cannot support, naming the ones it can.</summary>
     public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method)
     {
         if (OutputsProbabilities && !Strayspot.Scoring.Pipeline.ScoreMethodInputs.WorksOnProbabilities(method))
             throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
-                $"Model '{Descriptor.Name}' outputs probabilities (output.kind), so the {MethodName(method)} method cannot be used: it needs the raw logits " +
+                $"Model '{FolderName}' outputs probabilities (output.kind), so the {MethodName(method)} method cannot be used: it needs the raw logits " +
                 "that the final softmax discards. Use --method msp or --method entropy, or export the model without its final Softmax and set output.kind to 'logits'.");
     }
 

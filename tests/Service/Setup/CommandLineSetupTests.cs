@@ -42,6 +42,23 @@ public sealed class CommandLineSetupTests
     }
 
     [Fact]
+    public void OptionsAreNamedAfterTheirJsonFieldsAndRankingCountsRegions()
+    {
+        using var s = new SetupFolder(new TestSegmentationGraph { Classes = 3 }, frames: 1);
+        var (code, _, err) = CliRun.Capture("score", s.Model, s.Frames, "--out", s.Dir["out"], "--method", "msp", "--threshold", "-0.9",
+            "--minimum-region-area", "3", "--boundary-iterations", "2", "--kernel-size", "5", "--threads", "1");
+        Assert.True(code == 0, err);
+        var report = JsonDocument.Parse(File.ReadAllText(Path.Combine(s.Dir["out"], "f00", "report.json"))).RootElement;
+        var parameters = report.GetProperty("parameters");
+        Assert.Equal(3, parameters.GetProperty("minimumRegionArea").GetInt32());
+        Assert.Equal(2, parameters.GetProperty("boundarySuppression").GetProperty("iterations").GetInt32());
+        Assert.Equal(5, parameters.GetProperty("smoothing").GetProperty("kernelSize").GetInt32());
+        var ranked = JsonDocument.Parse(File.ReadAllText(Path.Combine(s.Dir["out"], "ranking.json"))).RootElement[0];
+        Assert.Equal(report.GetProperty("regions").GetArrayLength(), ranked.GetProperty("regionCount").GetInt32());
+        Assert.False(ranked.TryGetProperty("regions", out _));
+    }
+
+    [Fact]
     public void ModelFileGivenForItsFolderNamesTheFolder()
     {
         using var s = new SetupFolder(new TestSegmentationGraph { Classes = 3 });
