@@ -129,17 +129,8 @@ public sealed class WriteProfileTests
     public void ProfileFlaggingMostOrdinaryPixelsIsRefusedUnlessForced()
     {
         using var s = new SetupFolder(new TestSegmentationGraph { Classes = 3 });
-        string data = s.Dir["dataset"];
-        Directory.CreateDirectory(data);
-        for (int i = 0; i < 2; i++)
-        {
-            using var img = TestImages.Noise(24, 16, seed: 50 + i);
-            img.SaveAsPng(Path.Combine(data, $"frame_{i:D3}.png"));
-            using var mask = new Image<L8>(24, 16);
-            for (int y = 2; y < 12; y++) for (int x = 3; x < 15; x++) mask[x, y] = new L8(1);
-            mask.SaveAsPng(Path.Combine(data, $"mask_{i:D3}.png"));
-        }
-        // Noise frames: the score says nothing about the mask, so 95% TPR costs about 95% FPR.
+        string data = s.WriteDataset();
+        // A toy graph's score says next to nothing about debris, so 95% TPR costs most ordinary pixels.
         var (code, stdout, err) = CliRun.Capture("evaluate", s.Model, data, "--out", s.Dir["eval"], "--write-profile", "--threads", "1");
         Assert.Equal(2, code);
         Assert.Contains("trade-off of maxlogit", stdout);

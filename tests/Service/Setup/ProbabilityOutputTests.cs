@@ -96,16 +96,7 @@ public sealed class ProbabilityOutputTests
     public void EvaluationMeasuresOnlyMspAndEntropyForProbabilities()
     {
         using var s = new SetupFolder(new TestSegmentationGraph { Classes = 3, Softmax = true });
-        string data = s.Dir["dataset"];
-        Directory.CreateDirectory(data);
-        for (int i = 0; i < 2; i++)
-        {
-            using var img = TestImages.Noise(24, 16, seed: 90 + i);
-            img.SaveAsPng(Path.Combine(data, $"frame_{i:D3}.png"));
-            using var mask = new Image<L8>(24, 16);
-            for (int y = 4; y < 10; y++) for (int x = 5; x < 12; x++) mask[x, y] = new L8(1);
-            mask.SaveAsPng(Path.Combine(data, $"mask_{i:D3}.png"));
-        }
+        string data = s.WriteDataset();
         var report = Evaluator.Run(s.Model, data, s.Dir["eval"], new EvaluationSettings(), runtime: SetupFolder.OneThread);
         Assert.Equal(["msp", "entropy"], report.Methods.Select(m => m.Method));
         Assert.Equal("msp", report.OperatingPoint.Method);

@@ -38,6 +38,9 @@ internal sealed class SetupFolder : IDisposable
             .Run(Calibrator.ListFrames(Frames), Path.Combine(Model, CalibrationArtifact.FileName))!;
     }
 
+    /// <summary>A small labelled dataset (flat layout) of demo held-out frames with debris masks.</summary>
+    public string WriteDataset() => Strayspot.Tests.Service.Evaluation.EvaluationFixtures.WriteFlatDataset(Dir["dataset"], 2);
+
     public void Dispose() => Dir.Dispose();
 }
 
