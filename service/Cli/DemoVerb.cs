@@ -28,7 +28,7 @@ public static class DemoVerb
             Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");
             Console.WriteLine("Frames by frame score, highest first:");
             foreach (var r in ranking)
-                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {Path.GetFileName(r.Frame)}");
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {Path.GetFileName(r.Frame)}");
             return CliApp.ExitOk;
         }));
 

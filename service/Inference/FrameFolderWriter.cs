@@ -14,9 +14,11 @@ namespace Strayspot.Service.Inference;
 public sealed class FrameFolderWriter
 {
     private readonly IReadOnlyList<Rgb24> _colors;
+    private readonly ModelVersion _model;
 
     public FrameFolderWriter(ModelVersion model)
     {
+        _model = model;
         _colors = ArtifactWriter.ColorsOf(model.Descriptor);
         ClassNames = model.ClassNames;
         Model = new ModelReport(model.Name, model.WeightsSha256 ?? "", model.Profile.Version);
@@ -28,7 +30,10 @@ public sealed class FrameFolderWriter
     /// <summary>The frame report with every stage time: preprocess and inference (when the network ran) and the scoring core's.</summary>
     public FrameReport Report(FrameScoring scored, FrameTimings timings, ScoringOptions options, string frameId, LogitsReport? logits = null)
     {
-        var report = FrameReport.From(scored, options, ClassNames, frameId, Model, logits);
+        var report = FrameReport.From(scored, options, ClassNames, frameId, Model, logits) with
+        {
+            Warnings = _model.WarningsFor(scored.Width, scored.Height, options),
+        };
         if (timings.Preprocess > TimeSpan.Zero || timings.Inference > TimeSpan.Zero)
         {
             report.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
@@ -47,10 +52,11 @@ public sealed class FrameFolderWriter
         return report with { Artifacts = ArtifactWriter.Write(scored, artifacts, _colors, image, folder) };
     }
 
-    /// <summary>Every artifact and <c>report.json</c>, as <c>score</c> and batches keep them.</summary>
-    public FrameReport WriteAll(FrameScoring scored, FrameTimings timings, ScoringOptions options, string frameId, string folder, Image<Rgb24>? image)
+    /// <summary>The chosen artifacts (default every one) and <c>report.json</c>, as <c>score</c> and batches keep them.</summary>
+    public FrameReport WriteAll(FrameScoring scored, FrameTimings timings, ScoringOptions options, string frameId, string folder, Image<Rgb24>? image,
+        IReadOnlyList<string>? artifacts = null)
     {
-        var report = Write(scored, timings, options, frameId, folder, ArtifactWriter.All, image);
+        var report = Write(scored, timings, options, frameId, folder, artifacts ?? ArtifactWriter.All, image);
         AtomicFile.WriteAllBytes(Path.Combine(folder, ArtifactWriter.ReportFile), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
         return report;
     }

@@ -32,7 +32,7 @@ public sealed class FrameRunner(IFrameObserver? observer = null)
     {
         var slot = model.Slot;
         var used = options ?? slot.Version.Defaults;
-        slot.Version.EnsureCanScore(used);
+        Models.ModelReadiness.EnsureCanScore(model.Session, slot.Version.Statistics, used, slot.Version.Folder);
         var pipeline = slot.RentPipeline(used, out string key);
         try
         {

@@ -20,8 +20,9 @@ public sealed class ModelVersion
     public const string StatisticsFile = "statistics.json";
 
     private ModelVersion(string name, string folder, ModelDescriptor descriptor, string? weightsSha256,
-        ClassStatistics? statistics, string? statisticsSource, ScoringProfile profile)
+        ClassStatistics? statistics, string? statisticsSource, ScoringProfile profile, CalibrationArtifact? calibration = null)
     {
+        Calibration = calibration;
         Name = name;
         Folder = folder;
         Descriptor = descriptor;
@@ -32,11 +33,11 @@ public sealed class ModelVersion
         ClassNames = descriptor.Classes.Select(c => c.Name).ToList();
         var defaults = profile.Effective;
         // Without statistics SML cannot run: fall back to max logit and say so, rather than refuse to start.
+        // The profile's method may not run here (SML without statistics, or a method that needs logits on a
+        // probabilities model): the version still loads so another method can be asked for; scoring with the
+        // defaults is refused by ModelReadiness with the fix named.
         if (defaults.Method == ScoreMethod.Sml && statistics is null)
-        {
-            defaults = defaults with { Method = ScoreMethod.MaxLogit };
-            Warning = "no calibration.json or statistics.json: scoring with max logit until the model is calibrated";
-        }
+            Warning = $"not calibrated: the sml method is refused until 'strayspot calibrate {folder} <frames-folder>' has run";
         defaults.Validate();
         Defaults = defaults;
         string descriptorJson = JsonSerializer.Serialize(descriptor);
@@ -58,6 +59,14 @@ public sealed class ModelVersion
     public IReadOnlyList<string> ClassNames { get; }
     public int ClassCount => Descriptor.Classes.Count;
     public bool HasWeights => WeightsSha256 is not null;
+    /// <summary>The calibration the statistics come from (null for statistics.json or none).</summary>
+    public CalibrationArtifact? Calibration { get; }
+    /// <summary>The model ends in softmax: only the methods defined on probabilities apply.</summary>
+    public bool OutputsProbabilities => Descriptor.Output.Kind == "probabilities";
+
+    /// <summary>The report warnings for one frame of this size scored with <paramref name="options"/>.</summary>
+    public List<Reports.ReportWarning> WarningsFor(int frameWidth, int frameHeight, ScoringOptions options) =>
+        Reports.ScoringWarnings.For(frameWidth, frameHeight, options, ClassCount, Calibration, StatisticsSource);
     public string Key { get; }
     /// <summary>What the ONNX Runtime session depends on (weights and descriptor): versions that differ only in
     /// statistics or profile share one session.</summary>
@@ -85,8 +94,7 @@ public sealed class ModelVersion
     private static ModelVersion Read(string folder, bool withStatistics)
     {
         folder = Path.GetFullPath(folder);
-        if (!Directory.Exists(folder))
-            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+        SegmentationModel.EnsureFolder(folder);
         string descriptorPath = Path.Combine(folder, ModelDescriptor.FileName);
         if (!File.Exists(descriptorPath))
             throw new ModelException(ModelErrorCodes.DescriptorInvalid, $"Model folder '{folder}' has no {ModelDescriptor.FileName}.");
@@ -97,6 +105,7 @@ public sealed class ModelVersion
             throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model file '{modelPath}' does not exist.");
         string sha = HashFile(modelPath);
         ClassStatistics? statistics = null;
+        CalibrationArtifact? artifact = null;
         string? source = null;
         string calibration = Path.Combine(folder, CalibrationArtifact.FileName);
         string plain = Path.Combine(folder, StatisticsFile);
@@ -105,8 +114,8 @@ public sealed class ModelVersion
                 ScoringProfile.Default.WithSurfacesOf(descriptor));
         if (File.Exists(calibration))
         {
-            var artifact = CalibrationArtifact.Load(calibration);
-            artifact.EnsureMatches(sha, descriptor.Classes.Count);
+            artifact = CalibrationArtifact.Load(calibration);
+            artifact.EnsureMatches(descriptor, sha, folder);
             statistics = artifact.ToStatistics();
             source = CalibrationArtifact.FileName;
         }
@@ -119,7 +128,7 @@ public sealed class ModelVersion
             throw new ModelException(ModelErrorCodes.CalibrationInvalid,
                 $"{source} describes {statistics.Count} classes but the model has {descriptor.Classes.Count}.");
         var profile = ScoringProfile.LoadOrDefault(folder).WithSurfacesOf(descriptor);
-        return new ModelVersion(Path.GetFileName(Path.TrimEndingDirectorySeparator(folder)), folder, descriptor, sha, statistics, source, profile);
+        return new ModelVersion(Path.GetFileName(Path.TrimEndingDirectorySeparator(folder)), folder, descriptor, sha, statistics, source, profile, artifact);
     }
 
     public static string HashFile(string path)

@@ -90,7 +90,8 @@ public class FrameSourcesTests
         string model = new TestSegmentationGraph { Classes = 3, Stride = 2 }.WriteFolder(Path.Combine(dir.Path, "model"));
         var seen = new Counting();
         using var local = LocalModel.Open(model, new ParallelSettings { IntraOpThreads = 1, WarmUp = false }, seen);
-        var ranking = ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames([folder]), local.Version.Defaults, Path.Combine(dir.Path, "out"));
+        var ranking = ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames([folder]),
+            local.Version.Defaults with { Method = Strayspot.Scoring.Pipeline.ScoreMethod.MaxLogit }, Path.Combine(dir.Path, "out"));
         Assert.Equal(3, ranking.Count);
         Assert.Equal(3, seen.Frames);
         Assert.Equal(3 * 20 * 12, seen.Pixels);
