@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), runtime, service, evaluation, review, all.
+/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, evaluation, review, all.
 /// </summary>
 public static class Program
 {
@@ -16,12 +16,13 @@ public static class Program
         switch (suite)
         {
             case "scoring": ScoringBench.Run(runs); return 0;
+            case "chain": PostHocChainBench.Run(runs); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
             case "service": ServiceBench.Run(runs); return 0;
             case "evaluation": EvaluationBench.Run(runs); return 0;
             case "review": ReviewBench.Run(runs); return 0;
-            case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, evaluation, review, all"); return 2;
+            case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, evaluation, review, all"); return 2;
         }
     }
 }
