@@ -22,8 +22,10 @@ public static class PostHocChainBench
         var stats = new ClassStatistics(Enumerable.Range(0, Classes)
             .Select(c => new ClassStatistic($"class_{c}", 10_000, 8 + 0.1 * c, 1.5 + 0.05 * c)).ToList());
         var options = new ScoringOptions { Method = Strayspot.Scoring.Pipeline.ScoreMethod.Sml };
+        // Both sides get the same threads: DOTNET_PROCESSOR_COUNT=1 compares them on one core.
+        Cv2.SetNumThreads(Environment.ProcessorCount);
         Console.WriteLine();
-        Console.WriteLine($"Post-hoc chain against OpenCV {Cv2.GetVersionString()} ({Cv2.GetNumThreads()} OpenCV threads), C={Classes}, SML + boundary suppression + dilated smoothing + regions.");
+        Console.WriteLine($"Post-hoc chain against OpenCV {Cv2.GetVersionString()} ({Cv2.GetNumThreads()} OpenCV threads, {Environment.ProcessorCount} .NET processors), C={Classes}, SML + boundary suppression + dilated smoothing + regions.");
         Console.WriteLine();
         Console.WriteLine("| case | logits | ours | OpenCV | OpenCV / ours | ours: reduction, SML, BS, DS, regions | max score difference, mask pixels differing, components (ours/OpenCV) |");
         Console.WriteLine("|---|---|---|---|---|---|---|");
