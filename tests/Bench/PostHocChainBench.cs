@@ -19,8 +19,7 @@ public static class PostHocChainBench
 
     public static void Run(int runs)
     {
-        var stats = new ClassStatistics(Enumerable.Range(0, Classes)
-            .Select(c => new ClassStatistic($"class_{c}", 10_000, 8 + 0.1 * c, 1.5 + 0.05 * c)).ToList());
+        var stats = ScoringBench.Statistics(Classes);
         var options = new ScoringOptions { Method = Strayspot.Scoring.Pipeline.ScoreMethod.Sml };
         // Both sides get the same threads: DOTNET_PROCESSOR_COUNT=1 compares them on one core.
         Cv2.SetNumThreads(Environment.ProcessorCount);
