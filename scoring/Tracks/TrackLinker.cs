@@ -11,10 +11,14 @@ namespace Strayspot.Scoring.Tracks;
 public sealed class TrackLinker
 {
     private readonly TrackLinkOptions _options;
-    private readonly List<List<TrackSighting>> _open = new();
-    private readonly List<List<TrackSighting>> _closed = new();
+    // Ids are given at creation: new tracks are made in sample order and, within a sample, in region-id order,
+    // so creation order is the order of first sighting and a caller can key per-track state on the id at once.
+    private readonly List<(int Id, List<TrackSighting> Sightings)> _open = new();
+    private readonly List<(int Id, List<TrackSighting> Sightings)> _closed = new();
+    private readonly List<int> _assigned = new();
     private readonly List<(int Track, int Region, double Overlap, double Distance)> _pairs = new();
     private int _lastSample = -1;
+    private int _count;
 
     public TrackLinker(TrackLinkOptions? options = null)
     {
@@ -24,9 +28,10 @@ public sealed class TrackLinker
 
     /// <summary>
     /// Adds the regions of the next sampled frame. <paramref name="sample"/> must grow from call to call (a gap in it
-    /// counts as missed frames).
+    /// counts as missed frames). Returns the track id each region went to (index = position in
+    /// <paramref name="regions"/>), valid until the next call.
     /// </summary>
-    public void Add(int sample, long frameIndex, double timeSeconds, int frameWidth, int frameHeight, IReadOnlyList<Region> regions)
+    public IReadOnlyList<int> Add(int sample, long frameIndex, double timeSeconds, int frameWidth, int frameHeight, IReadOnlyList<Region> regions)
     {
         if (sample <= _lastSample)
             throw new ArgumentException($"Sampled frames must come in order: {sample} after {_lastSample}.", nameof(sample));
@@ -36,7 +41,7 @@ public sealed class TrackLinker
         // Close tracks that have been missing for longer than the tolerance.
         for (int t = _open.Count - 1; t >= 0; t--)
         {
-            if (sample - _open[t][^1].Sample - 1 > _options.MissedFrames)
+            if (sample - _open[t].Sightings[^1].Sample - 1 > _options.MissedFrames)
             {
                 _closed.Add(_open[t]);
                 _open.RemoveAt(t);
@@ -46,7 +51,7 @@ public sealed class TrackLinker
         _pairs.Clear();
         for (int t = 0; t < _open.Count; t++)
         {
-            var last = _open[t][^1];
+            var last = _open[t].Sightings[^1];
             for (int r = 0; r < regions.Count; r++)
             {
                 var g = regions[r];
@@ -66,6 +71,8 @@ public sealed class TrackLinker
             return c != 0 ? c : a.Region.CompareTo(b.Region);
         });
 
+        _assigned.Clear();
+        for (int r = 0; r < regions.Count; r++) _assigned.Add(0);
         Span<bool> trackTaken = _open.Count <= 256 ? stackalloc bool[_open.Count] : new bool[_open.Count];
         Span<bool> regionTaken = regions.Count <= 256 ? stackalloc bool[regions.Count] : new bool[regions.Count];
         foreach (var p in _pairs)
@@ -73,26 +80,27 @@ public sealed class TrackLinker
             if (trackTaken[p.Track] || regionTaken[p.Region]) continue;
             trackTaken[p.Track] = true;
             regionTaken[p.Region] = true;
-            _open[p.Track].Add(Sighting(sample, frameIndex, timeSeconds, regions[p.Region]));
+            _open[p.Track].Sightings.Add(Sighting(sample, frameIndex, timeSeconds, regions[p.Region]));
+            _assigned[p.Region] = _open[p.Track].Id;
         }
         for (int r = 0; r < regions.Count; r++)
-            if (!regionTaken[r])
-                _open.Add([Sighting(sample, frameIndex, timeSeconds, regions[r])]);
+        {
+            if (regionTaken[r]) continue;
+            _open.Add((++_count, [Sighting(sample, frameIndex, timeSeconds, regions[r])]));
+            _assigned[r] = _count;
+        }
+        return _assigned;
     }
 
     /// <summary>Every track, open or closed, numbered 1..N in order of first sighting (then of region id).</summary>
     public IReadOnlyList<Track> Tracks()
     {
-        var all = new List<List<TrackSighting>>(_closed.Count + _open.Count);
+        var all = new List<(int Id, List<TrackSighting> Sightings)>(_closed.Count + _open.Count);
         all.AddRange(_closed);
         all.AddRange(_open);
-        all.Sort((a, b) =>
-        {
-            int c = a[0].Sample.CompareTo(b[0].Sample);
-            return c != 0 ? c : a[0].RegionId.CompareTo(b[0].RegionId);
-        });
+        all.Sort((a, b) => a.Id.CompareTo(b.Id));
         var tracks = new List<Track>(all.Count);
-        for (int i = 0; i < all.Count; i++) tracks.Add(Summarize(i + 1, all[i]));
+        foreach (var (id, sightings) in all) tracks.Add(Summarize(id, sightings));
         return tracks;
     }
 

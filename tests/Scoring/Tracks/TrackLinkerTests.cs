@@ -82,7 +82,8 @@ public class TrackLinkerTests
         // Both qualify; a continues the track and b starts a second one.
         var linker = new TrackLinker();
         linker.Add(0, 0, 0, W, H, [Box(1, 50, 50, 10, 10)]);
-        linker.Add(1, 1, 1, W, H, [Box(1, 56, 50, 10, 10), Box(2, 52, 50, 10, 10)]);
+        var assigned = linker.Add(1, 1, 1, W, H, [Box(1, 56, 50, 10, 10), Box(2, 52, 50, 10, 10)]);
+        Assert.Equal([2, 1], assigned);
         var tracks = linker.Tracks();
         Assert.Equal(2, tracks.Count);
         Assert.Equal(2, tracks[0].FramesSeen);
