@@ -100,7 +100,7 @@ public sealed partial class VideoRecording : IRecording
             stderr.Wait();
             CheckLimits(cancel, total, wait);
             if (process.ExitCode != 0)
-                throw new ModelException(sample == 0 ? RecordingErrorCodes.RecordingFormat : RecordingErrorCodes.RecordingCorrupt,
+                throw new ModelException(RecordingErrorCodes.RecordingCorrupt,
                     $"{Name}: the decoder failed after {sample} frame(s): {log.LastComplaint(_path, Path.GetFileName(_path))}");
             if (sample == 0)
                 throw new ModelException(RecordingErrorCodes.RecordingCorrupt, $"{Name}: no frame could be decoded: {log.LastComplaint(_path, Path.GetFileName(_path))}");
