@@ -14,7 +14,7 @@ public sealed class ApronDriveBy
     private readonly ApronDebrisFrame _scene;
     private readonly int[] _objectOf;
 
-    public ApronDriveBy(int frameWidth = 512, int frameHeight = 256, int panoramaWidth = 1536, int step = 16,
+    public ApronDriveBy(int frameWidth = 512, int frameHeight = 512, int panoramaWidth = 1536, int step = 16,
         double frameRate = 10, int seed = 2026, int debris = 4)
     {
         if (frameWidth > panoramaWidth || step < 1 || frameRate <= 0)

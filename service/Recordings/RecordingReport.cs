@@ -33,7 +33,7 @@ public sealed record TrackReport
     [JsonPropertyName("bestRegion")] public int BestRegion { get; init; }
     [JsonPropertyName("bestBox")] public BoxReport BestBox { get; init; } = new(0, 0, 0, 0);
     [JsonPropertyName("bestOverlay")] public string? BestOverlay { get; init; }
-    /// <summary>Frame id and region id of every sighting, in time order.</summary>
+    /// <summary>Every sighting (frame, region, box, score), in time order.</summary>
     [JsonPropertyName("sightings")] public IReadOnlyList<SightingReport> Sightings { get; init; } = [];
 
     public static TrackReport From(Track t, bool kept, string recording, IReadOnlyList<string>? classNames, string? overlay) => new()
@@ -43,14 +43,18 @@ public sealed record TrackReport
         ClassBeneathName = classNames is not null && t.ClassBeneath >= 0 && t.ClassBeneath < classNames.Count ? classNames[t.ClassBeneath] : null,
         BestFrameId = RecordingFrame.IdOf(recording, t.Best.FrameIndex), BestTime = t.Best.TimeSeconds, BestRegion = t.Best.RegionId,
         BestBox = new BoxReport(t.Best.Left, t.Best.Top, t.Best.Width, t.Best.Height), BestOverlay = overlay,
-        Sightings = t.Sightings.Select(s => new SightingReport(RecordingFrame.IdOf(recording, s.FrameIndex), s.TimeSeconds, s.RegionId)).ToList(),
+        Sightings = t.Sightings.Select(s => new SightingReport(RecordingFrame.IdOf(recording, s.FrameIndex), s.FrameIndex, s.TimeSeconds, s.RegionId,
+            new BoxReport(s.Left, s.Top, s.Width, s.Height), s.MaxScore)).ToList(),
     };
 }
 
 public sealed record SightingReport(
     [property: JsonPropertyName("frameId")] string FrameId,
+    [property: JsonPropertyName("index")] long Index,
     [property: JsonPropertyName("timeSeconds")] double TimeSeconds,
-    [property: JsonPropertyName("region")] int Region);
+    [property: JsonPropertyName("region")] int Region,
+    [property: JsonPropertyName("box")] BoxReport Box,
+    [property: JsonPropertyName("maxScore")] float MaxScore);
 
 /// <summary>A stretch of time worth labelling: kept tracks whose spans overlap or nearly meet, merged.</summary>
 public sealed record TimeSegment(
