@@ -122,8 +122,7 @@ public static class BatchArchive
     }
 
     private static bool IsFrame(string[] parts) =>
-        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) &&
-        Calibrator.FrameExtensions.Contains(Path.GetExtension(parts[^1]).ToLowerInvariant());
+        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) && BatchRecordings.IsInput(parts[^1]);
 
     private static string WriteEntry(Stream source, string[] parts, string destination, Budget budget)
     {
