@@ -47,8 +47,10 @@ public static class BatchArchive
         {
             throw new BatchException(ErrorCodes.ArchiveInvalid, $"The archive cannot be read: {e.Message}");
         }
+        if (fileName is not null && Recordings.VideoRecording.IsVideoFile(fileName))
+            return [BatchRecordings.TakeUpload(archivePath, CheckName(Path.GetFileName(fileName), out _), destination, limits.MaxBytes)];
         throw new BatchException(ErrorCodes.ArchiveInvalid,
-            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive.");
+            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive, nor a video file.");
     }
 
     private static List<string> ExtractZip(string archivePath, string destination, ArchiveLimits limits)

@@ -49,5 +49,18 @@ public static class BatchRecordings
         return (float.IsFinite(score) ? score : 0f, tracks);
     }
 
+    /// <summary>A single uploaded video (not an archive) becomes a batch of one recording; returns its relative path.</summary>
+    public static string TakeUpload(string upload, string[] nameParts, string destination, long maxBytes)
+    {
+        if (nameParts.Length != 1)
+            throw new BatchException(Api.ErrorCodes.ArchiveInvalid, "The uploaded recording has no file name.");
+        long length = new FileInfo(upload).Length;
+        if (length > maxBytes)
+            throw new BatchException(Api.ErrorCodes.ArchiveTooLarge,
+                $"The uploaded recording is {length:N0} bytes; at most {maxBytes:N0} are accepted (Service:Batches:MaxArchiveBytes).");
+        File.Copy(upload, Path.Combine(destination, nameParts[0]), overwrite: true);
+        return nameParts[0];
+    }
+
     public static bool IsRecordingReport(string reportPath) => reportPath.EndsWith("/" + RecordingRun.TracksFile, StringComparison.Ordinal);
 }

@@ -1,3 +1,5 @@
+using System.Net;
+using System.Net.Http.Headers;
 using System.Text.Json;
 using Strayspot.Service.Demo;
 using Strayspot.Tests.Support;
@@ -36,5 +38,34 @@ public class RecordingBatchTests
         var times = File.ReadLines(Path.Combine(batchFolder, artifacts.GetProperty("frames").GetString()!))
             .Select(l => JsonDocument.Parse(l).RootElement.GetProperty("timeSeconds").GetDouble()).ToList();
         Assert.Equal(Enumerable.Range(0, drive.FrameCount).Select(i => i / 10.0), times.Select(t => Math.Round(t, 3)));
+    }
+
+    [VideoFact]
+    public async Task A_video_uploaded_on_its_own_is_a_batch_of_one_recording()
+    {
+        await using var s = await StartAsync();
+        var drive = new ApronDriveBy(frameWidth: 256, frameHeight: 128, panoramaWidth: 320, step: 16, debris: 2);
+        string mp4 = Path.Combine(s.DataRoot, "upload.mp4");
+        VideoFiles.EncodeMp4(mp4, 256, 128, drive.FrameRate, Enumerable.Range(0, drive.FrameCount).Select(drive.Rgb));
+        using var content = new MultipartFormDataContent();
+        content.Add(new StringContent(Model), "model");
+        content.Add(new StringContent("up-1"), "batchId");
+        var file = new ByteArrayContent(File.ReadAllBytes(mp4));
+        file.Headers.ContentType = new MediaTypeHeaderValue("video/mp4");
+        content.Add(file, "file", "pass.mp4");
+        var r = await s.Client.PostAsync("/v1/batches", content);
+        Assert.True(r.StatusCode == HttpStatusCode.Created, await r.Content.ReadAsStringAsync());
+        await WaitForStateAsync(s.Client, "up-1", "done");
+        var line = Assert.Single(await ManifestAsync(s.Client, "up-1"));
+        Assert.Equal("pass.mp4", line.GetProperty("frameId").GetString());
+        Assert.True(line.GetProperty("artifacts").TryGetProperty("tracks", out _));
+
+        // Not a video and not an archive: refused with the archive code, as before.
+        using var bad = new MultipartFormDataContent();
+        bad.Add(new StringContent(Model), "model");
+        bad.Add(new ByteArrayContent("plain text"u8.ToArray()), "file", "notes.txt");
+        var refused = await s.Client.PostAsync("/v1/batches", bad);
+        Assert.Equal(HttpStatusCode.BadRequest, refused.StatusCode);
+        Assert.Contains("archive-invalid", await refused.Content.ReadAsStringAsync());
     }
 }
