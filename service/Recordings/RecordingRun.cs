@@ -40,7 +40,6 @@ public static class RecordingRun
         var times = new List<double>();
         var scores = new List<double>();
         var best = new Dictionary<int, float>();
-        var colors = ArtifactWriter.ColorsOf(bundle.Model.Descriptor);
         var names = bundle.ClassNames;
         double decodeMs = 0, scoreMs = 0;
         int scored = 0;
@@ -60,15 +59,20 @@ public static class RecordingRun
                         var assigned = linker.Add(rf.Sample, rf.Index, rf.TimeSeconds, s.Width, s.Height, regions);
                         var reports = new List<RegionReport>(regions.Count);
                         var trackIds = new int[regions.Count];
+                        string? written = null;
                         for (int i = 0; i < regions.Count; i++)
                         {
                             reports.Add(RegionReport.From(regions[i], names));
                             int id = trackIds[i] = assigned[i];
                             if (best.TryGetValue(id, out float top) && top >= regions[i].MaxScore) continue;
                             best[id] = regions[i].MaxScore;
+                            string path = Path.Combine(folder, TracksFolder, OverlayName(id));
+                            // The overlay shows the whole frame, so one rendering serves every track that peaks in it.
+                            if (written is not null) { File.Copy(written, path, overwrite: true); continue; }
                             var (low, high) = ArtifactWriter.HeatRange(s);
                             using var overlay = ArtifactRenderer.Overlay(rf.Frame.Image, s.AnomalyScore, s.Mask, low, high);
-                            AtomicFile.Write(Path.Combine(folder, TracksFolder, OverlayName(id)), st => ArtifactRenderer.SavePng(overlay, st));
+                            AtomicFile.Write(path, st => ArtifactRenderer.SavePng(overlay, st));
+                            written = path;
                         }
                         return new RecordingFrameLine(rf.Id, rf.Index, Math.Round(rf.TimeSeconds, 6), s.FrameScore, s.AnomalousShare, reports, trackIds);
                     }, options, cancel);
