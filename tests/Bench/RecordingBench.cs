@@ -72,7 +72,7 @@ public static class RecordingBench
             Console.WriteLine("## Recordings: resident memory along a long recording (1024×512, drive-by looped, 1 frame in 4 scored)");
             Console.WriteLine();
             string longer = Path.Combine(dir, "long.mp4");
-            Ffmpeg("-stream_loop", "29", "-i", drive, "-c", "copy", longer);
+            Ffmpeg("-stream_loop", "14", "-i", drive, "-c", "copy", longer);
             var sampling = RecordingSampling.Every(4);
             var video = VideoRecording.Open(longer, new RecordingOptions { Sampling = sampling });
             var rss = new List<(int Frames, double Mib)>();
@@ -80,7 +80,7 @@ public static class RecordingBench
             var final = RecordingRun.Score(bundle, video, longer, sampling, bundle.Scorer.Defaults, new TrackingSettings(), Path.Combine(dir, "out-long"),
                 new Progress(n =>
                 {
-                    if (n == 10 || n % 60 == 0) rss.Add((n, Process.GetCurrentProcess().WorkingSet64 / 1048576.0));
+                    if (n == 5 || n % 20 == 0) rss.Add((n, Process.GetCurrentProcess().WorkingSet64 / 1048576.0));
                 }));
             Console.WriteLine($"| frames scored | resident MiB |");
             Console.WriteLine("|---|---|");
