@@ -31,7 +31,10 @@ public sealed record FfmpegTools(string Ffmpeg, string Ffprobe)
         return new FfmpegTools(ffmpeg, ffprobe);
     }
 
-    private static string? Executable(string path) =>
-        File.Exists(path) && (File.GetUnixFileMode(path) & (UnixFileMode.UserExecute | UnixFileMode.GroupExecute | UnixFileMode.OtherExecute)) != 0
+    private static string? Executable(string path)
+    {
+        if (OperatingSystem.IsWindows()) return File.Exists(path + ".exe") ? path + ".exe" : null;
+        return File.Exists(path) && (File.GetUnixFileMode(path) & (UnixFileMode.UserExecute | UnixFileMode.GroupExecute | UnixFileMode.OtherExecute)) != 0
             ? path : null;
+    }
 }
