@@ -98,6 +98,7 @@ public static class ErrorCodes
         new(ModelErrorCodes.FrameCorrupt, 400, "The frame's image data is corrupt"),
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
+        new(ModelErrorCodes.MethodNeedsLogits, 422, "The method needs logits, but the model outputs probabilities"),
         // Codes raised reading recordings (ModelException.Code; in batches they go into the failed line's error).
         new(Recordings.RecordingErrorCodes.RecordingFormat, 415, "The file is not a recording this service reads"),
         new(Recordings.RecordingErrorCodes.RecordingCorrupt, 400, "The recording's data is corrupt"),

@@ -69,8 +69,8 @@ public static class RecordingRun
                             string path = Path.Combine(folder, TracksFolder, OverlayName(id));
                             // The overlay shows the whole frame, so one rendering serves every track that peaks in it.
                             if (written is not null) { File.Copy(written, path, overwrite: true); continue; }
-                            var (low, high) = ArtifactWriter.HeatRange(s);
-                            using var overlay = ArtifactRenderer.Overlay(rf.Frame.Image, s.AnomalyScore, s.Mask, low, high);
+                            using var overlay = OverlayRenderer.Render(rf.Frame.Image, s.AnomalyScore, s.Mask, regions,
+                                HeatScale.For(s, ArtifactOptions.Default.HeatScale));
                             AtomicFile.Write(path, st => ArtifactRenderer.SavePng(overlay, st));
                             written = path;
                         }
