@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, load, evaluation, review, all.
+/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, load, evaluation, review, recordings, all.
 /// </summary>
 public static class Program
 {
@@ -29,8 +29,9 @@ public static class Program
             case "service": ServiceBench.Run(runs); return 0;
             case "evaluation": EvaluationBench.Run(runs); return 0;
             case "review": ReviewBench.Run(runs); return 0;
-            case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, load, evaluation, review, all"); return 2;
+            case "recordings": RecordingBench.Run(runs); return 0;
+            case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); RecordingBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, load, evaluation, review, recordings, all"); return 2;
         }
     }
 }
