@@ -111,7 +111,7 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
             (numbers[i], classes[i], scores[i]) = (regions[i].Id, regions[i].ClassBeneath, RegionIndex.FiniteScore(regions[i].MaxScore));
         return db.Run(c => Convert.ToInt64(PostgresDatabase.Scalar(c, null, """
             WITH f AS (UPDATE frames SET state = @doneF, frame_score = @score, region_count = @rc, report_path = @rp, regions_json = @rj,
-                           error = NULL, scored_at = @now, lease_owner = NULL, lease_until = NULL
+                           error = NULL, scored_at = @now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL
                        WHERE batch_id = @id AND seq = @seq AND state = @pending AND lease_owner = @owner RETURNING batch_id, seq),
                  b AS (UPDATE batches SET done_count = done_count + 1, updated = @now WHERE id = @id AND EXISTS (SELECT 1 FROM f)),
                  r AS (INSERT INTO frame_regions (batch_id, seq, region, class_beneath, max_score)
@@ -125,7 +125,7 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
     }
 
     public bool FailFrame(FrameClaim claim, string error) => db.Run(c => Convert.ToInt64(PostgresDatabase.Scalar(c, null, """
-        WITH f AS (UPDATE frames SET state = @failed, error = @err, scored_at = @now, lease_owner = NULL, lease_until = NULL
+        WITH f AS (UPDATE frames SET state = @failed, error = @err, scored_at = @now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL
                    WHERE batch_id = @id AND seq = @seq AND state = @pending AND lease_owner = @owner RETURNING 1),
              b AS (UPDATE batches SET failed_count = failed_count + 1, updated = @now WHERE id = @id AND EXISTS (SELECT 1 FROM f))
         SELECT count(*) FROM f

@@ -197,7 +197,7 @@ public sealed class PostgresDatabase : IDisposable
         // The region index was written with every done mark from the first PostgreSQL version on: nothing to fill.
         new(2, _ => { }),
         new(3, tx => Exec(c, tx, """
-            ALTER TABLE frames ADD COLUMN lease_owner text, ADD COLUMN lease_until timestamptz;
+            ALTER TABLE frames ADD COLUMN lease_owner text, ADD COLUMN lease_until timestamptz, ADD COLUMN scored_by text;
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
     ];

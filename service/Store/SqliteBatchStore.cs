@@ -165,7 +165,7 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
             using var tx = db.Begin();
             string now = db.Now();
             int n = db.Exec(tx, "UPDATE frames SET state = $doneF, frame_score = $score, region_count = $rc, report_path = $rp, " +
-                                "regions_json = $rj, error = NULL, scored_at = $now, lease_owner = NULL, lease_until = NULL " +
+                                "regions_json = $rj, error = NULL, scored_at = $now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL " +
                                 "WHERE batch_id = $id AND seq = $seq AND state = $pending AND lease_owner = $o",
                 ("$doneF", FrameStates.Done), ("$score", (double)result.FrameScore), ("$rc", result.RegionCount), ("$rp", result.ReportPath),
                 ("$rj", result.RegionsJson), ("$now", now), ("$id", claim.BatchId), ("$seq", claim.Seq), ("$pending", FrameStates.Pending),
@@ -186,7 +186,7 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
         {
             using var tx = db.Begin();
             string now = db.Now();
-            int n = db.Exec(tx, "UPDATE frames SET state = $failed, error = $err, scored_at = $now, lease_owner = NULL, lease_until = NULL " +
+            int n = db.Exec(tx, "UPDATE frames SET state = $failed, error = $err, scored_at = $now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL " +
                                 "WHERE batch_id = $id AND seq = $seq AND state = $pending AND lease_owner = $o",
                 ("$failed", FrameStates.Failed), ("$err", error), ("$now", now), ("$id", claim.BatchId), ("$seq", claim.Seq),
                 ("$pending", FrameStates.Pending), ("$o", claim.Owner));

@@ -186,6 +186,7 @@ public sealed class SqliteDatabase : IDisposable
         new(3, tx => Exec(tx, """
             ALTER TABLE frames ADD COLUMN lease_owner TEXT;
             ALTER TABLE frames ADD COLUMN lease_until TEXT;
+            ALTER TABLE frames ADD COLUMN scored_by TEXT;
             CREATE INDEX frames_open ON frames(batch_id, state, seq);
             """)),
     ];

@@ -2,7 +2,8 @@ namespace Strayspot.Service.Store;
 
 /// <summary>
 /// The schema versions both engines go through, in order. Each engine keeps a <c>schema_version</c> table and
-/// applies, at open, each step above the version it holds, one transaction per step; the step lists of the engines
+/// applies, at open, each step above the version it holds (SQLite: one transaction per step; PostgreSQL: all in one
+/// transaction under an advisory lock, so replicas starting together take turns); the step lists of the engines
 /// must name these versions one for one (a test holds them to it).
 /// </summary>
 public static class StoreSchema
@@ -11,7 +12,7 @@ public static class StoreSchema
     [
         (1, "batches, frames, regions, decisions and their log"),
         (2, "region index filled from the frames' stored regions"),
-        (3, "frame claims: lease owner and expiry"),
+        (3, "frame claims: lease owner and expiry, and who scored each frame"),
     ];
 
     public static int Latest => Versions[^1].Version;

@@ -43,8 +43,9 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
 
             int doneAtKill, pendingAtKill;
             Dictionary<string, DateTimeOffset> doneInStore;
-            using (var store = new BatchStore(Path.Combine(data, ".strayspot", "batches.db")))
+            using (var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(Path.Combine(data, ".strayspot", "batches.db")))
             {
+                var store = database.Batches;
                 var b = store.Get("night-1")!;
                 Assert.Equal(BatchStates.Running, b.State);
                 doneAtKill = b.DoneCount;
