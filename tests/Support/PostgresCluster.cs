@@ -65,7 +65,11 @@ public sealed class PostgresCluster : IDisposable
         "-o", $"-p {Port} -k {_folder} -c listen_addresses=127.0.0.1 -c fsync=off -c max_connections=200", "start");
 
     /// <summary>A fast shutdown: sessions are ended, as when the database server is restarted under its clients.</summary>
-    public void Stop() => AsPostgres(Path.Combine(Bin, "pg_ctl"), "-D", _data, "-m", "fast", "-w", "stop");
+    public void Stop()
+    {
+        AsPostgres(Path.Combine(Bin, "pg_ctl"), "-D", _data, "-m", "fast", "-w", "stop");
+        NpgsqlConnection.ClearAllPools(); // this process's pooled sessions died with the server
+    }
 
     public string ServerLog => File.Exists(Path.Combine(_data, "server.log")) ? File.ReadAllText(Path.Combine(_data, "server.log")) : "";
 

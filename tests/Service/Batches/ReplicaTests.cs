@@ -24,11 +24,15 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     {
         using var fleet = new Fleet(postgres.Cluster);
         var names = WriteFrames(Path.Combine(fleet.Data, "yard"), 60, debris: 6, width: Small, height: Small / 2);
+        var clock = System.Diagnostics.Stopwatch.StartNew();
         var replicas = await fleet.StartAsync(3);
+        output.WriteLine($"three replicas ready in {clock.ElapsedMilliseconds} ms");
         using var a = replicas[0].Client();
         using var c = replicas[2].Client();
+        clock.Restart();
         await PostFolderAsync(a, "yard", batchId: "yard-1");
         await WaitForStateAsync(c, "yard-1", "done", TimeSpan.FromSeconds(60));
+        output.WriteLine($"60 frames done in {clock.ElapsedMilliseconds} ms");
 
         var byOwner = fleet.ScoredBy("yard-1");
         output.WriteLine("frames scored per replica: " + string.Join(", ", byOwner.Select(kv => $"{kv.Key}={kv.Value}")));
@@ -67,6 +71,8 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             }
             Assert.True(victim is not null, "no replica held a claim; nothing was tested");
             victim.Kill();
+            held = fleet.Held(id, victim.Id); // read again: it may have finished one frame and taken the next before it died
+            Assert.NotEmpty(held);
             output.WriteLine($"round {round}: killed replica {victim.Id} holding frame(s) {string.Join(", ", held)}");
             replicas.Add(fleet.Start()); // as an orchestrator would; the other two finish meanwhile
 
