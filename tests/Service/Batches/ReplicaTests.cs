@@ -150,6 +150,34 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         Assert.Equal(log[^1].GetProperty("note").GetString(), current.GetProperty("note").GetString());
     }
 
+    [PostgresFact]
+    public async Task A_worker_takes_only_batch_work_and_exits_when_none_is_left()
+    {
+        using var fleet = new Fleet(postgres.Cluster);
+        var names = WriteFrames(Path.Combine(fleet.Data, "late"), 8, width: Small, height: Small / 2);
+
+        using (var idle = fleet.Start(verb: "work"))
+        {
+            using var client = await idle.ReadyClientAsync();
+            Assert.Equal(HttpStatusCode.NotFound, (await client.GetAsync("/v1/models")).StatusCode); // no scoring API on a worker
+            await idle.StopAsync();
+        }
+
+        // Queued straight into the store, as the service does on POST /v1/batches (sources relative to the data folder).
+        using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
+            store.Batches.Submit("late-1", Model, "folder:late", null, names.Select(n => new Strayspot.Service.Batches.NewFrame(n, "late/" + n)).ToList());
+        var worker = fleet.Start(verb: "work", args: ["--until-idle"]);
+        await worker.WaitForExitAsync(TimeSpan.FromSeconds(90));
+        Assert.True(worker.ExitCode == 0, worker.Log);
+
+        using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
+            Assert.Equal(("done", 8), (store.Batches.Get("late-1")!.State, store.Batches.Get("late-1")!.DoneCount));
+        Assert.All(fleet.ScoredBy("late-1").Keys, o => Assert.Contains($"/{worker.Id}/", o));
+        var manifest = File.ReadAllLines(Path.Combine(fleet.Data, "batches", "late-1", "manifest.jsonl"));
+        Assert.Equal(names.Order(StringComparer.Ordinal),
+            manifest.Select(l => JsonDocument.Parse(l).RootElement.GetProperty("frameId").GetString()!).Order(StringComparer.Ordinal));
+    }
+
     private static async Task AssertEveryFrameOnceAsync(HttpClient client, string id, List<string> names, Fleet fleet)
     {
         var lines = await ManifestAsync(client, id);
@@ -177,7 +205,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         public string Models => Path.Combine(_root, "models");
         public string Data => Path.Combine(_root, "data");
 
-        public ServiceProcess Start()
+        public string Connection => _connection;
+
+        public ServiceProcess Start(string verb = "serve", string[]? args = null)
         {
             var p = ServiceProcess.Start(Models, Data, FreePort(), new Dictionary<string, string>
             {
@@ -185,7 +215,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
                 ["STRAYSPOT_Service__StoreConnection"] = _connection,
                 ["STRAYSPOT_Service__Batches__LeaseTime"] = "00:00:01.500",
                 ["STRAYSPOT_Service__MaxConcurrentFrames"] = "1",
-            });
+            }, verb, args ?? []);
             _started.Add(p);
             return p;
         }

@@ -84,8 +84,12 @@ public sealed class ServiceProcess : IDisposable
         await _process.WaitForExitAsync(cts.Token);
     }
 
+    private bool _disposed;
+
     public void Dispose()
     {
+        if (_disposed) return;
+        _disposed = true;
         if (!_process.HasExited) Kill();
         _process.Dispose();
     }
