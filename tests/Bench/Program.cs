@@ -2,7 +2,8 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), runtime, service, evaluation, review, all.
+/// one run as a Markdown table. Suites: scoring (default), runtime, service, evaluation, review, all; replicas (worker processes on
+/// PostgreSQL: started on its own, not by all).
 /// </summary>
 public static class Program
 {
@@ -20,8 +21,9 @@ public static class Program
             case "service": ServiceBench.Run(runs); return 0;
             case "evaluation": EvaluationBench.Run(runs); return 0;
             case "review": ReviewBench.Run(runs); return 0;
+            case "replicas": ReplicaBench.Run(Math.Min(runs, 5)); return 0;
             case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, evaluation, review, all"); return 2;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, evaluation, review, replicas, all"); return 2;
         }
     }
 }
