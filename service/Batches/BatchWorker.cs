@@ -33,8 +33,7 @@ public sealed class BatchWorker(
     private readonly SemaphoreSlim _bundleLoad = new(1, 1);
     private readonly FrameDecoder _decoder = new(new FrameDecoderOptions { MaxPixels = service.Value.MaxPixels });
 
-    /// <summary>Who holds this process's claims: host, process and a random part (process ids repeat across containers).</summary>
-    public string Owner { get; } = $"{Environment.MachineName}/{Environment.ProcessId}/{Guid.NewGuid().ToString("N")[..8]}";
+    private static string Owner => ClaimOwner.ThisProcess;
 
     protected override async Task ExecuteAsync(CancellationToken stopping)
     {

@@ -135,6 +135,11 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
     public void RecordCallback(string id, string state, int attempts) => db.Run(c => PostgresDatabase.Exec(c, null,
         "UPDATE batches SET callback_state = @s, callback_attempts = @a WHERE id = @id", ("s", state), ("a", attempts), ("id", id)));
 
+    public bool ClaimCallback(string id, string owner, TimeSpan lease) => db.Run(c => PostgresDatabase.Exec(c, null,
+        "UPDATE batches SET callback_owner = @o, callback_until = now() + @lease WHERE id = @id AND callback_state = @pending " +
+        "AND (callback_owner IS NULL OR callback_owner = @o OR callback_until < now())",
+        ("o", owner), ("lease", lease), ("id", id), ("pending", CallbackStates.Pending)) == 1);
+
     public IReadOnlyList<RegionBrief> RegionBriefs(string batchId) => db.Run(c => PostgresDatabase.Query(c, null,
         "SELECT seq, region, class_beneath, max_score FROM frame_regions WHERE batch_id = @id ORDER BY seq, region",
         r => new RegionBrief(r.GetInt32(0), r.GetInt32(1), r.GetString(2), (float)r.GetDouble(3)), ("id", batchId)));

@@ -20,6 +20,8 @@ public sealed class PostgresDatabase : IDisposable
         _time = time;
         var builder = new NpgsqlConnectionStringBuilder(connectionString);
         Describe = $"postgres://{builder.Host}:{builder.Port}/{builder.Database}";
+        // The stores never change session state, so a pooled connection needs no reset: saves a statement per call.
+        builder.NoResetOnClose = true;
         _source = NpgsqlDataSource.Create(builder);
         Run(Migrate);
     }
@@ -200,5 +202,6 @@ public sealed class PostgresDatabase : IDisposable
             ALTER TABLE frames ADD COLUMN lease_owner text, ADD COLUMN lease_until timestamptz, ADD COLUMN scored_by text;
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
+        new(4, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN callback_owner text, ADD COLUMN callback_until timestamptz")),
     ];
 }

@@ -203,6 +203,14 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
             db.Exec(null, "UPDATE batches SET callback_state = $s, callback_attempts = $a WHERE id = $id", ("$s", state), ("$a", attempts), ("$id", id));
     }
 
+    public bool ClaimCallback(string id, string owner, TimeSpan lease)
+    {
+        lock (db.Gate)
+            return db.Exec(null, "UPDATE batches SET callback_owner = $o, callback_until = $until WHERE id = $id AND callback_state = $pending " +
+                                 "AND (callback_owner IS NULL OR callback_owner = $o OR callback_until < $now)",
+                ("$o", owner), ("$until", Until(lease)), ("$id", id), ("$pending", CallbackStates.Pending), ("$now", db.Now())) == 1;
+    }
+
     public IReadOnlyList<RegionBrief> RegionBriefs(string batchId)
     {
         lock (db.Gate)

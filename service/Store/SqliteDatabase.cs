@@ -31,6 +31,7 @@ public sealed class SqliteDatabase : IDisposable
         Exec(null, "PRAGMA foreign_keys=ON;");
         Migrate();
         Exec(null, "UPDATE frames SET lease_owner = NULL, lease_until = NULL WHERE lease_owner IS NOT NULL");
+        Exec(null, "UPDATE batches SET callback_owner = NULL, callback_until = NULL WHERE callback_owner IS NOT NULL");
     }
 
     public string File { get; }
@@ -188,6 +189,10 @@ public sealed class SqliteDatabase : IDisposable
             ALTER TABLE frames ADD COLUMN lease_until TEXT;
             ALTER TABLE frames ADD COLUMN scored_by TEXT;
             CREATE INDEX frames_open ON frames(batch_id, state, seq);
+            """)),
+        new(4, tx => Exec(tx, """
+            ALTER TABLE batches ADD COLUMN callback_owner TEXT;
+            ALTER TABLE batches ADD COLUMN callback_until TEXT;
             """)),
     ];
 

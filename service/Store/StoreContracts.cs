@@ -55,6 +55,9 @@ public interface IBatchStore
 
     void RecordCallback(string id, string state, int attempts);
 
+    /// <summary>Takes the delivery of a due callback for <paramref name="lease"/>; false when another holds it (or it is not due).</summary>
+    bool ClaimCallback(string id, string owner, TimeSpan lease);
+
     /// <summary>The regions of a batch's scored frames: class beneath and highest score, by frame then region.</summary>
     IReadOnlyList<RegionBrief> RegionBriefs(string batchId);
 
@@ -80,6 +83,12 @@ public interface IDecisionStore
 
     /// <summary>Every write to the batch's decisions, oldest first, from <paramref name="after"/> on (exclusive).</summary>
     IReadOnlyList<DecisionEntry> Log(string batchId, long after = 0, int limit = 1000);
+}
+
+/// <summary>Who holds claims: host, process and a random part (process ids repeat across containers).</summary>
+public static class ClaimOwner
+{
+    public static readonly string ThisProcess = $"{Environment.MachineName}/{Environment.ProcessId}/{Guid.NewGuid().ToString("N")[..8]}";
 }
 
 /// <summary>A frame taken by <see cref="Owner"/>; only its owner may finish it.</summary>

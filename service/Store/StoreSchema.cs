@@ -13,6 +13,7 @@ public static class StoreSchema
         (1, "batches, frames, regions, decisions and their log"),
         (2, "region index filled from the frames' stored regions"),
         (3, "frame claims: lease owner and expiry, and who scored each frame"),
+        (4, "callback claims: one replica delivers a batch's callback"),
     ];
 
     public static int Latest => Versions[^1].Version;

@@ -78,7 +78,8 @@ public static class ReviewBench
         {
             // Back to schema version 1, as a file from before the region index: the next open runs the steps that fill it.
             back.CommandText = "DELETE FROM schema_version WHERE version > 1; DROP INDEX frames_open; ALTER TABLE frames DROP COLUMN lease_owner; " +
-                               "ALTER TABLE frames DROP COLUMN lease_until; ALTER TABLE frames DROP COLUMN scored_by;";
+                               "ALTER TABLE frames DROP COLUMN lease_until; ALTER TABLE frames DROP COLUMN scored_by; " +
+                               "ALTER TABLE batches DROP COLUMN callback_owner; ALTER TABLE batches DROP COLUMN callback_until;";
             back.ExecuteNonQuery();
         }
         using var tx = c.BeginTransaction();

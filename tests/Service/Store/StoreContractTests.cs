@@ -139,7 +139,11 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
         var b = s.Get("b")!;
         Assert.Equal((BatchStates.Cancelled, "stopped by a person", CallbackStates.Pending), (b.State, b.Error, b.CallbackState));
         Assert.Equal(["b"], s.CallbacksDue().Select(x => x.Id));
+        Assert.True(s.ClaimCallback("b", "a", Lease));
+        Assert.False(s.ClaimCallback("b", "b", Lease)); // one replica delivers
+        Assert.True(s.ClaimCallback("b", "a", Lease));
         s.RecordCallback("b", CallbackStates.Delivered, 1);
+        Assert.False(s.ClaimCallback("b", "a", Lease));
         Assert.Empty(s.CallbacksDue());
         Assert.Empty(s.Runnable());
     }
