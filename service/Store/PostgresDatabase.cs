@@ -86,17 +86,10 @@ public sealed class PostgresDatabase : IDisposable
         params (string Name, object? Value)[] args)
     {
         using var cmd = Command(c, tx, sql, args);
-        var list = new List<T>();
-        using var r = cmd.ExecuteReader();
-        while (r.Read()) list.Add(row(r));
-        return list;
+        return DbRows.Read(cmd, row);
     }
 
-    public static string? Str(NpgsqlDataReader r, string column)
-    {
-        int i = r.GetOrdinal(column);
-        return r.IsDBNull(i) ? null : r.GetString(i);
-    }
+    public static string? Str(NpgsqlDataReader r, string column) => DbRows.Str(r, column);
 
     public static DateTimeOffset Time(NpgsqlDataReader r, string column) => r.GetFieldValue<DateTimeOffset>(r.GetOrdinal(column));
 

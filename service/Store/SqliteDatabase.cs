@@ -76,17 +76,10 @@ public sealed class SqliteDatabase : IDisposable
     public List<T> Query<T>(SqliteTransaction? tx, string sql, Func<SqliteDataReader, T> row, params (string Name, object? Value)[] args)
     {
         using var cmd = Command(tx, sql, args);
-        var list = new List<T>();
-        using var r = cmd.ExecuteReader();
-        while (r.Read()) list.Add(row(r));
-        return list;
+        return DbRows.Read(cmd, row);
     }
 
-    public static string? Str(SqliteDataReader r, string column)
-    {
-        int i = r.GetOrdinal(column);
-        return r.IsDBNull(i) ? null : r.GetString(i);
-    }
+    public static string? Str(SqliteDataReader r, string column) => DbRows.Str(r, column);
 
     public void Dispose()
     {
