@@ -113,6 +113,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             output.WriteLine($"readiness while the database is down: {(int)status} {body}");
             Assert.Equal(HttpStatusCode.ServiceUnavailable, status);
             Assert.Contains("cannot be reached", body);
+            var asked = await a.GetAsync("/v1/batches/night-1");
+            Assert.Equal(HttpStatusCode.ServiceUnavailable, asked.StatusCode); // a clear "try again", not a 500
+            Assert.Contains("not-ready", await asked.Content.ReadAsStringAsync());
             await Task.Delay(1000); // replicas back off meanwhile
         }
         finally
