@@ -57,8 +57,10 @@ public class HealthAndModelsApiTests
         Assert.Equal(2, json.GetArrayLength());
         Assert.Equal("apron-a", json[0].GetProperty("name").GetString());
         Assert.False(json[0].GetProperty("hasStatistics").GetBoolean());
+        Assert.Equal("uncalibrated", json[0].GetProperty("calibration").GetString());
         Assert.Equal("apron-b", json[1].GetProperty("name").GetString());
         Assert.True(json[1].GetProperty("hasStatistics").GetBoolean());
+        Assert.NotEqual("uncalibrated", json[1].GetProperty("calibration").GetString());
         Assert.Equal(4, json[1].GetProperty("classCount").GetInt32());
         Assert.Equal("default", json[1].GetProperty("profileVersion").GetString());
         Assert.Equal("sml", json[1].GetProperty("method").GetString());
@@ -149,5 +151,13 @@ public class HealthAndModelsApiTests
 
         var docs = await s.Client.GetAsync("/docs/index.html");
         Assert.Equal(HttpStatusCode.OK, docs.StatusCode);
+        // Our own title bar; the explorer's stock bar and logo hidden; its licence notice kept, with the text beside it.
+        string page = await docs.Content.ReadAsStringAsync();
+        Assert.Contains("<h1>Strayspot API</h1>", page);
+        Assert.Contains(".swagger-ui .topbar { display: none; }", page);
+        Assert.Contains("Apache License, Version 2.0", page);
+        var licence = await s.Client.GetAsync("/docs/LICENSE");
+        Assert.Equal(HttpStatusCode.OK, licence.StatusCode);
+        Assert.Contains("Apache License", await licence.Content.ReadAsStringAsync());
     }
 }
