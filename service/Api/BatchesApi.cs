@@ -31,6 +31,7 @@ public static class BatchesApi
     public static void AddServices(IServiceCollection services, IConfiguration configuration)
     {
         services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section));
+        services.AddOptions<Store.StoreOptions>().Bind(configuration.GetSection(Store.StoreOptions.Section));
         services.AddSingleton<BatchService>();
         services.AddSingleton<BatchCallbacks>();
         services.AddHostedService<BatchWorker>();
@@ -74,7 +75,7 @@ public static class BatchesApi
                 }
                 if (!Review.Verdicts.IsKnown(verdict))
                     return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
-                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Store.Decisions(id), verdict);
+                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
                 using var buffer = new MemoryStream();
                 Manifest.WriteTo(buffer, lines);
                 return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);

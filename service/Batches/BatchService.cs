@@ -5,6 +5,7 @@ using Microsoft.Extensions.Options;
 using Strayspot.Service.Api;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Batches;
 
@@ -23,29 +24,35 @@ public sealed partial class BatchService : IDisposable
     private readonly ConcurrentDictionary<string, CancellationTokenSource> _running = new(StringComparer.Ordinal);
     private readonly Lock _submit = new();
 
-    public BatchService(IOptions<ServiceOptions> service, IOptions<BatchOptions> options, ModelCatalog catalog)
+    public BatchService(IOptions<ServiceOptions> service, IOptions<BatchOptions> options, IOptions<StoreOptions> store, ModelCatalog catalog)
     {
         _options = options.Value;
-        var problems = _options.Validate().ToList();
+        var problems = _options.Validate().Concat(store.Value.Validate()).ToList();
         if (problems.Count > 0) throw new OptionsValidationException(BatchOptions.Section, typeof(BatchOptions), problems);
         _catalog = catalog;
         DataRoot = Path.GetFullPath(service.Value.DataRoot);
         Root = _options.ResolveRoot(DataRoot);
-        string database = _options.ResolveDatabase(DataRoot);
+        string database = store.Value.Store == BatchDatabase.Postgres ? "the PostgreSQL store (Service:StoreConnection)" : _options.ResolveDatabase(DataRoot);
         try
         {
             Directory.CreateDirectory(Root);
-            Store = new BatchStore(database);
+            Database = store.Value.Store == BatchDatabase.Postgres
+                ? BatchDatabase.OpenPostgres(store.Value.StoreConnection!)
+                : BatchDatabase.OpenSqlite(database);
         }
-        catch (Exception e) when (e is Microsoft.Data.Sqlite.SqliteException or IOException or UnauthorizedAccessException)
+        catch (Exception e) when (e is Microsoft.Data.Sqlite.SqliteException or IOException or UnauthorizedAccessException
+                                      or StoreUnavailableException or Npgsql.NpgsqlException or ArgumentException or InvalidOperationException)
         {
             // Refused like a bad setting: the serve verb prints it and exits, instead of a stack trace.
             throw new OptionsValidationException(BatchOptions.Section, typeof(BatchOptions),
-                [$"The batch folder '{Root}' or database '{database}' cannot be used (Service:Batches:Root, Service:Batches:DatabasePath): {e.Message}"]);
+                [$"The batch folder '{Root}' or {database} cannot be used (Service:Batches:Root, Service:Batches:DatabasePath, Service:Store): {e.Message}"]);
         }
     }
 
-    public BatchStore Store { get; }
+    /// <summary>The store of batches and decisions, SQLite or PostgreSQL (Service:Store).</summary>
+    public BatchDatabase Database { get; }
+    public IBatchStore Store => Database.Batches;
+    public IDecisionStore Decisions => Database.Decisions;
     public BatchOptions Options => _options;
     public string DataRoot { get; }
     public string Root { get; }
@@ -59,7 +66,7 @@ public sealed partial class BatchService : IDisposable
 
     /// <summary>Rewrites the batch's manifest from the store (frames so far, with their decisions); returns its path.</summary>
     public string WriteManifest(BatchRecord batch) =>
-        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Store.Decisions(batch.Id));
+        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Current(batch.Id));
 
     /// <summary>An absolute path for a stored source: relative ones are resolved under DataRoot (links checked again).</summary>
     public string ResolveSource(string source) => Path.IsPathRooted(source) ? source : SafePath.Resolve(DataRoot, source);
@@ -171,7 +178,7 @@ public sealed partial class BatchService : IDisposable
 
     internal void Untrack(string id) => _running.TryRemove(id, out _);
 
-    public void Dispose() => Store.Dispose();
+    public void Dispose() => Database.Dispose();
 
     private (BatchRecord, bool, int) Submit(string id, string model, string source, string? callbackUrl, List<NewFrame> frames)
     {

@@ -23,6 +23,7 @@ public static class CliApp
         root.Subcommands.Add(CheckInputVerb.Create());
         root.Subcommands.Add(EvaluateVerb.Create());
         root.Subcommands.Add(ServeVerb.Create());
+        root.Subcommands.Add(WorkVerb.Create());
         root.Subcommands.Add(HealthcheckVerb.Create());
         root.Subcommands.Add(ManifestVerb.Create());
         return root;

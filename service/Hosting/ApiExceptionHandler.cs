@@ -21,6 +21,8 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
             Strayspot.Service.Models.ModelException e => (e.Code, e.Message),
             UnsafePathException e => (ErrorCodes.PathOutsideData, e.Message),
             Batches.BatchException e => (e.Code, e.Message),
+            Store.StoreUnavailableException e => (ErrorCodes.NotReady, e.Message), // 503: the database is away, try again
+
             FrameTimeoutException e => (ErrorCodes.Timeout, e.Message),
             QueueFullException e => (ErrorCodes.QueueFull, e.Message),
             BadHttpRequestException e => (ErrorCodes.ForStatus(e.StatusCode), e.Message),

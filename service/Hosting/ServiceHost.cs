@@ -203,6 +203,8 @@ public static class ServiceHost
         HealthApi.Map(app);
         // Scraped like the health endpoints: no key, so keep the port on a trusted network.
         app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
+        // A worker replica takes batch work only: no scoring traffic reaches it.
+        if (app.Services.GetRequiredService<IOptions<Batches.BatchOptions>>().Value.WorkerOnly) return;
         Review.ReviewPage.Map(app);
         var v1 = app.MapGroup("/v1");
         ModelsApi.Map(v1);
