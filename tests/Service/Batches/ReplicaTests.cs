@@ -57,21 +57,24 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             await PostFolderAsync(client, folder, batchId: id);
             await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 6, TimeSpan.FromSeconds(60));
 
-            // The victim: a replica holding a claim right now (the others keep scoring).
+            // The victim: a replica holding a claim right now (the others keep scoring). It is frozen before its claims
+            // are read, so it cannot finish the frame between the read and the kill.
             ServiceProcess? victim = null;
             List<int> held = [];
             for (int tries = 0; victim is null && tries < 200; tries++)
             {
                 foreach (var r in live.Skip(1))
                 {
+                    if (fleet.Held(id, r.Id).Count == 0) continue;
+                    r.Signal(freeze: true);
                     held = fleet.Held(id, r.Id);
                     if (held.Count > 0) { victim = r; break; }
+                    r.Signal(freeze: false);
                 }
                 if (victim is null) await Task.Delay(10);
             }
             Assert.True(victim is not null, "no replica held a claim; nothing was tested");
             victim.Kill();
-            held = fleet.Held(id, victim.Id); // read again: it may have finished one frame and taken the next before it died
             Assert.NotEmpty(held);
             output.WriteLine($"round {round}: killed replica {victim.Id} holding frame(s) {string.Join(", ", held)}");
             replicas.Add(fleet.Start()); // as an orchestrator would; the other two finish meanwhile

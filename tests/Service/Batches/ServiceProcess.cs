@@ -63,6 +63,13 @@ public sealed class ServiceProcess : IDisposable
         return null!;
     }
 
+    /// <summary>SIGSTOP or SIGCONT: freezes the process so what it holds can be read before it is killed.</summary>
+    public void Signal(bool freeze)
+    {
+        using var kill = System.Diagnostics.Process.Start("kill", [freeze ? "-STOP" : "-CONT", _process.Id.ToString(System.Globalization.CultureInfo.InvariantCulture)]);
+        kill.WaitForExit();
+    }
+
     /// <summary>SIGKILL: no shutdown hooks, no flushing; exactly what a crash or an OOM kill does.</summary>
     public void Kill()
     {
