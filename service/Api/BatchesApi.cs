@@ -26,6 +26,8 @@ public sealed record BatchFrameList([property: JsonPropertyName("frames")] IRead
 public static class BatchesApi
 {
     private static readonly JsonSerializerOptions RequestJson = new(JsonSerializerDefaults.Web);
+    public const string ArchivePart = "file";
+    private static readonly string[] ArchiveFields = ["model", "batchId", "callbackUrl"];
 
     /// <summary>The batch store, worker and callback sender (settings: section Service:Batches).</summary>
     public static void AddServices(IServiceCollection services, IConfiguration configuration)
@@ -119,10 +121,9 @@ public static class BatchesApi
             }
             else if (request.HasFormContentType)
             {
-                var form = await request.ReadFormAsync(ct);
-                var file = form.Files.Count > 0 ? form.Files[0] : null;
-                if (file is null)
-                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "The multipart upload has no file part; send the .zip or .tar as 'file'.");
+                var (form, problem) = await UploadForm.ReadAsync(request, ArchivePart, ".zip or .tar archive of frames", ArchiveFields, ct);
+                if (form is null) return problem!;
+                var file = form.Files.GetFile(ArchivePart)!;
                 string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
                 Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
                 try

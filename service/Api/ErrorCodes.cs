@@ -44,6 +44,7 @@ public static class ErrorCodes
     public const string FrameNotScored = "frame-not-scored";
     public const string RegionNotFound = "region-not-found";
     public const string NoteTooLong = "note-too-long";
+    public const string FormInvalid = "form-invalid";
 
     private static readonly ErrorCode[] Rows =
     [
@@ -55,6 +56,7 @@ public static class ErrorCodes
         new(ArchiveEscape, 400, "An archive entry would land outside its folder"),
         new(CallbackNotAllowed, 400, "The callback URL is not allowed"),
         new(NoteTooLong, 400, "The decision's note is too long"),
+        new(FormInvalid, 400, "The multipart form is malformed or cut short"),
         new(Unauthorized, 401, "An API key is required"),
         new(Forbidden, 403, "The API key lacks a needed scope"),
         new(NotFound, 404, "No such resource"),

@@ -68,7 +68,7 @@ public static class ImageFramesApi
         var session = sessions.Get(entry);
         if (session is null)
             return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
-        var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "image", ct);
+        var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "camera image (PNG, JPEG or WebP)", LogitsForm.FieldsFor(FramePart), ct);
         if (form is null) return problem!;
         var (req, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
         var file = form.Files.GetFile(FramePart);

@@ -108,7 +108,7 @@ public static class LogitsApi
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
             return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
-        var (form, problem) = await UploadForm.ReadAsync(request, LogitsForm.LogitsPart, "logits", ct);
+        var (form, problem) = await UploadForm.ReadAsync(request, LogitsForm.LogitsPart, "float32 NPY logits", LogitsForm.FieldsFor(LogitsForm.LogitsPart), ct);
         if (form is null) return problem!;
 
         var (parsed, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, Available);

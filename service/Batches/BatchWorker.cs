@@ -57,7 +57,7 @@ public sealed class BatchWorker(
             catch (Exception e) when (e is not OperationCanceledException)
             {
                 log.LogError(e, "Batch {BatchId} failed", batch.Id);
-                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: e.Message);
+                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: ClientPaths.Relative(e.Message, batches.DataRoot));
             }
             finally
             {
@@ -150,7 +150,7 @@ public sealed class BatchWorker(
             TryDelete(temp);
             string code = e switch { ModelException m => m.Code, ScoringInputException s => s.Code, UnsafePathException => "path-outside-data", _ => "frame-unreadable" };
             log.LogWarning("Batch {BatchId} frame {FrameId} failed ({Code}): {Reason}", batchId, frame.FrameId, code, e.Message);
-            batches.Store.FailFrame(batchId, frame.Seq, $"{code}: {e.Message}");
+            batches.Store.FailFrame(batchId, frame.Seq, $"{code}: {ClientPaths.Relative(e.Message, folder, batches.DataRoot)}");
         }
         catch
         {
@@ -190,7 +190,7 @@ public sealed class BatchWorker(
             }
             catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
             {
-                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {e.Message}");
+                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {ClientPaths.Relative(e.Message, batches.DataRoot)}");
                 return null;
             }
         }

@@ -134,7 +134,7 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         }
         catch (Exception e) when (e is ModelException or UnsafePathException or IOException or Strayspot.Scoring.Logits.ScoringInputException)
         {
-            Save(job with { State = "failed", Error = e.Message, FinishedUtc = DateTimeOffset.UtcNow });
+            Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Calibration {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }

@@ -111,7 +111,7 @@ public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalo
         }
         catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or IOException)
         {
-            _jobs.Save(job with { State = "failed", Error = e.Message, FinishedUtc = DateTimeOffset.UtcNow });
+            _jobs.Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Evaluation {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }

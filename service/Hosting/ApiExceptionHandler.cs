@@ -11,7 +11,8 @@ public sealed class FrameTimeoutException(string message) : Exception(message);
 /// Turns the exceptions our code raises on bad input into problem+json with their stable code. Anything else
 /// falls through to the default handler: a 500 <c>internal-error</c> problem, logged with its stack.
 /// </summary>
-public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger<ApiExceptionHandler> log) : IExceptionHandler
+public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger<ApiExceptionHandler> log,
+    Microsoft.Extensions.Options.IOptions<ServiceOptions> options) : IExceptionHandler
 {
     public async ValueTask<bool> TryHandleAsync(HttpContext http, Exception exception, CancellationToken ct)
     {
@@ -27,6 +28,8 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
             _ => null,
         };
         if (mapped is not { } m) return false;
+        var o = options.Value;
+        string detail = ClientPaths.Relative(m.detail, o.DataRoot, o.ModelsRoot);
 
         var row = ErrorCodes.Get(m.code);
         // Input errors are the client's business: one line at Information, no stack trace.
@@ -40,7 +43,7 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
             Exception = exception,
             ProblemDetails =
             {
-                Status = row.Status, Title = row.Title, Detail = m.detail, Type = ErrorCodes.TypeUri(m.code),
+                Status = row.Status, Title = row.Title, Detail = detail, Type = ErrorCodes.TypeUri(m.code),
                 Extensions = { ["code"] = m.code },
             },
         });

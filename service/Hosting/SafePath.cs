@@ -70,3 +70,38 @@ public static class SafePath
         return current;
     }
 }
+
+/// <summary>
+/// Error text for clients: absolute server paths are shown relative to the folder the client knows (the data folder, a
+/// batch folder, the models folder). The server log keeps the absolute paths.
+/// </summary>
+public static class ClientPaths
+{
+    /// <summary><paramref name="message"/> with every path under one of <paramref name="roots"/> made relative to it (most specific root first).</summary>
+    public static string Relative(string message, params string?[] roots)
+    {
+        var forms = new List<string>();
+        foreach (string? root in roots)
+        {
+            if (string.IsNullOrEmpty(root)) continue;
+            string full = Path.TrimEndingDirectorySeparator(Path.GetFullPath(root));
+            forms.Add(full);
+            // Paths resolved through links (SafePath) name the real folder.
+            try
+            {
+                if (Directory.ResolveLinkTarget(full, returnFinalTarget: true) is { } target)
+                    forms.Add(Path.TrimEndingDirectorySeparator(target.FullName));
+            }
+            catch (IOException) { }
+        }
+        // Longest first, so a batch folder wins over the data folder that holds it.
+        foreach (string root in forms.Distinct().OrderByDescending(r => r.Length))
+        {
+            if (root.Length <= 1) continue;
+            message = message.Replace(root + Path.DirectorySeparatorChar, "", StringComparison.Ordinal);
+            message = System.Text.RegularExpressions.Regex.Replace(message,
+                System.Text.RegularExpressions.Regex.Escape(root) + @"(?![\w.-])", ".");
+        }
+        return message;
+    }
+}
