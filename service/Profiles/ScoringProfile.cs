@@ -113,6 +113,8 @@ public sealed record ScoringProfile
         }
         if (node is not System.Text.Json.Nodes.JsonObject root)
             throw new ScoringInputException(ScoringErrorCodes.Options, $"{source} must be a JSON object holding 'options'.");
+        // Unknown members and invalid values first: they name the exact mistake.
+        var profile = Read(new MemoryStream(body, writable: false), source);
         if (Member(root, "options") is not System.Text.Json.Nodes.JsonObject options)
             throw new ScoringInputException(ScoringErrorCodes.Options,
                 $"{source} must state 'options' as an object with every scoring setting; a profile is replaced whole, never merged.");
@@ -123,7 +125,6 @@ public sealed record ScoringProfile
                 $"{source} leaves out {string.Join(", ", missing)}; a profile is replaced whole, so state every setting " +
                 "(GET /v1/models/{model} shows the current ones).");
 
-        var profile = Read(new MemoryStream(body, writable: false), source);
         // Read folded the shorthands in; compare what was sent.
         var sent = JsonSerializer.Deserialize<ScoringProfile>(body, JsonOptions)!;
         if (sent.Method is { } m && m != sent.Options.Method)
