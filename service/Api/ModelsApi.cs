@@ -64,7 +64,7 @@ public static class ModelsApi
             .WithDescription("The body is a whole scoring profile, never merged: options with every setting (method, energy " +
                              "temperature, boundary suppression and smoothing with all their parameters, threshold, minimum region " +
                              "area; surface classes optional), as GET /v1/models/{model} shows them; optional version (1-64 of " +
-                             "A-Z a-z 0-9 . _ -) and note. An empty or partial body, unknown members and top-level method/threshold " +
+                             "A-Z a-z 0-9 . _ - : +) and note. An empty or partial body, unknown members and top-level method/threshold " +
                              "shorthands that disagree with options are refused. Without a version the current UTC time becomes " +
                              "the version. Frames scored afterwards report the new version.")
             .ProducesProblem(StatusCodes.Status400BadRequest)

@@ -78,8 +78,8 @@ public sealed record ScoringProfile
         return Read(stream, path);
     }
 
-    /// <summary>Versions name a profile in every report and file: letters, digits, '.', '_' and '-', 1 to 64 characters.</summary>
-    public static readonly System.Text.RegularExpressions.Regex VersionPattern = new("^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$",
+    /// <summary>Versions name a profile in every report: letters, digits, '.', '_', '-', ':' and '+' (ISO times fit), 1 to 64 characters.</summary>
+    public static readonly System.Text.RegularExpressions.Regex VersionPattern = new("^[A-Za-z0-9][A-Za-z0-9._:+-]{0,63}$",
         System.Text.RegularExpressions.RegexOptions.CultureInvariant);
     public const int MaxNoteLength = 2000;
 
@@ -87,7 +87,7 @@ public sealed record ScoringProfile
     {
         if (!VersionPattern.IsMatch(version))
             throw new ScoringInputException(ScoringErrorCodes.Options,
-                $"{source}: 'version' must be 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit; " +
+                $"{source}: 'version' must be 1 to 64 letters, digits, '.', '_', '-', ':' or '+', starting with a letter or digit; " +
                 $"got {(version.Length > 80 ? $"{version.Length} characters" : $"'{version}'")}.");
     }
 
