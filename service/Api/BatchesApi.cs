@@ -91,14 +91,7 @@ public static class BatchesApi
         group.MapPost("/{id}/cancel", Results<Ok<BatchView>, ProblemHttpResult> (string id, BatchService batches) =>
             {
                 if (Find(batches, id) is null) return NotFound(id);
-                try
-                {
-                    return TypedResults.Ok(BatchView.From(batches.Cancel(id)!));
-                }
-                catch (BatchException e)
-                {
-                    return ApiProblems.Create(e.Code, e.Message);
-                }
+                return TypedResults.Ok(BatchView.From(batches.Cancel(id)!));
             })
             .WithName("CancelBatch")
             .WithSummary("Cancels a queued or running batch; the frame being scored finishes, the rest stay pending.")
@@ -107,53 +100,42 @@ public static class BatchesApi
 
     private static async Task<IResult> SubmitAsync(HttpRequest request, BatchService batches, CancellationToken ct)
     {
-        try
+        (BatchRecord batch, bool created, int added) result;
+        if (request.HasJsonContentType())
         {
-            (BatchRecord batch, bool created, int added) result;
-            if (request.HasJsonContentType())
-            {
-                BatchRequest? body;
-                try { body = await request.ReadFromJsonAsync<BatchRequest>(RequestJson, ct); }
-                catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
-                if (body is null || string.IsNullOrWhiteSpace(body.Folder))
-                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
-                result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
-            }
-            else if (request.HasFormContentType)
-            {
-                var (form, problem) = await UploadForm.ReadAsync(request, ArchivePart, ".zip or .tar archive of frames", ArchiveFields, ct);
-                if (form is null) return problem!;
-                var file = form.Files.GetFile(ArchivePart)!;
-                string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
-                Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
-                try
-                {
-                    await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
-                    result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
-                        Blank(form["callbackUrl"].ToString()));
-                }
-                finally
-                {
-                    File.Delete(upload);
-                }
-            }
-            else
-            {
-                return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
-                    $"Content type '{request.ContentType}' is not accepted: send application/json (a folder) or multipart/form-data (an archive).");
-            }
-            var view = BatchView.From(result.batch);
-            var answer = new BatchSubmitted(view, result.created, result.added);
-            return result.created ? TypedResults.Created($"/v1/batches/{view.Id}", answer) : TypedResults.Ok(answer);
+            BatchRequest? body;
+            try { body = await request.ReadFromJsonAsync<BatchRequest>(RequestJson, ct); }
+            catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
+            if (body is null || string.IsNullOrWhiteSpace(body.Folder))
+                return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
+            result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
         }
-        catch (BatchException e)
+        else if (request.HasFormContentType)
         {
-            return ApiProblems.Create(e.Code, e.Message);
+            var (form, problem) = await UploadForm.ReadAsync(request, ArchivePart, ".zip or .tar archive of frames", ArchiveFields, ct);
+            if (form is null) return problem!;
+            var file = form.Files.GetFile(ArchivePart)!;
+            string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
+            Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
+            try
+            {
+                await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
+                result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
+                    Blank(form["callbackUrl"].ToString()));
+            }
+            finally
+            {
+                File.Delete(upload);
+            }
         }
-        catch (UnsafePathException e)
+        else
         {
-            return ApiProblems.Create(ErrorCodes.PathOutsideData, e.Message);
+            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                $"Content type '{request.ContentType}' is not accepted: send application/json (a folder) or multipart/form-data (an archive).");
         }
+        var view = BatchView.From(result.batch);
+        var answer = new BatchSubmitted(view, result.created, result.added);
+        return result.created ? TypedResults.Created($"/v1/batches/{view.Id}", answer) : TypedResults.Ok(answer);
     }
 
     private static BatchRecord? Find(BatchService batches, string id) => BatchService.IsBatchId(id) ? batches.Store.Get(id) : null;

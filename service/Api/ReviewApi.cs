@@ -106,15 +106,5 @@ public static class ReviewApi
 
     private static string? KeyName(HttpContext http) => http.User.Identity?.IsAuthenticated == true ? http.User.Identity.Name : null;
 
-    private static IResult Answer(Func<IResult> answer)
-    {
-        try
-        {
-            return answer();
-        }
-        catch (ReviewException e)
-        {
-            return ApiProblems.Create(e.Code, e.Message);
-        }
-    }
+    private static IResult Answer(Func<IResult> answer) => answer();
 }

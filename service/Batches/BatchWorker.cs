@@ -144,11 +144,11 @@ public sealed class BatchWorker(
             string report_ = $"{BatchService.FramesFolder}/{name}/{FrameOutput.ReportFile}";
             batches.Store.CompleteFrame(batchId, frame.Seq, new FrameResult(score, regionCount, report_, Manifest.RegionsJson(regions ?? [])));
         }
-        catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or FileNotFoundException
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or FileNotFoundException
                                       or DirectoryNotFoundException or InvalidDataException)
         {
             TryDelete(temp);
-            string code = e switch { ModelException m => m.Code, ScoringInputException s => s.Code, UnsafePathException => "path-outside-data", _ => "frame-unreadable" };
+            string code = e is Strayspot.Scoring.CodedException coded ? coded.Code : "frame-unreadable";
             log.LogWarning("Batch {BatchId} frame {FrameId} failed ({Code}): {Reason}", batchId, frame.FrameId, code, e.Message);
             batches.Store.FailFrame(batchId, frame.Seq, $"{code}: {ClientPaths.Relative(e.Message, folder, batches.DataRoot)}");
         }
@@ -188,7 +188,7 @@ public sealed class BatchWorker(
                 _bundles[batch.Model] = (entry.Profile.Version, bundle);
                 return bundle;
             }
-            catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
+            catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException or InvalidDataException)
             {
                 batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {ClientPaths.Relative(e.Message, batches.DataRoot)}");
                 return null;

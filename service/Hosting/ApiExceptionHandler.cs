@@ -8,7 +8,8 @@ namespace Strayspot.Service.Hosting;
 public sealed class FrameTimeoutException(string message) : Exception(message);
 
 /// <summary>
-/// Turns the exceptions our code raises on bad input into problem+json with their stable code. Anything else
+/// Turns the exceptions our code raises on bad input (every domain's <see cref="Strayspot.Scoring.CodedException"/>)
+/// into problem+json with their stable code and the status from <see cref="ErrorCodes"/>. Anything else
 /// falls through to the default handler: a 500 <c>internal-error</c> problem, logged with its stack.
 /// </summary>
 public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger<ApiExceptionHandler> log,
@@ -18,10 +19,7 @@ public sealed class ApiExceptionHandler(IProblemDetailsService problems, ILogger
     {
         (string code, string detail)? mapped = exception switch
         {
-            ScoringInputException e => (e.Code, e.Message),
-            Strayspot.Service.Models.ModelException e => (e.Code, e.Message),
-            UnsafePathException e => (ErrorCodes.PathOutsideData, e.Message),
-            Batches.BatchException e => (e.Code, e.Message),
+            Strayspot.Scoring.CodedException e => (e.Code, e.Message),
             FrameTimeoutException e => (ErrorCodes.Timeout, e.Message),
             QueueFullException e => (ErrorCodes.QueueFull, e.Message),
             BadHttpRequestException e => (ErrorCodes.ForStatus(e.StatusCode), e.Message),

@@ -1,7 +1,17 @@
 namespace Strayspot.Service.Hosting;
 
+/// <summary>A path the service refuses or cannot find; codes in <see cref="PathErrorCodes"/>.</summary>
+public class PathException(string code, string message) : Strayspot.Scoring.CodedException(code, message);
+
 /// <summary>A path from a request that would leave the folder it must stay in.</summary>
-public sealed class UnsafePathException(string message) : Exception(message);
+public sealed class UnsafePathException(string message) : PathException(PathErrorCodes.OutsideData, message);
+
+/// <summary>The stable codes of <see cref="PathException"/>; never rename one.</summary>
+public static class PathErrorCodes
+{
+    public const string OutsideData = "path-outside-data";
+    public const string FolderNotFound = "folder-not-found";
+}
 
 /// <summary>
 /// Resolves a path sent by a client below a root folder and refuses anything that would leave it:
