@@ -32,7 +32,10 @@ public static class BatchesApi
     /// <summary>The batch store, worker and callback sender (settings: section Service:Batches).</summary>
     public static void AddServices(IServiceCollection services, IConfiguration configuration)
     {
-        services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section));
+        // Checked when the host starts, like ServiceOptions: a bad setting stops `serve` with its name, not the first batch.
+        services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section))
+            .ValidateOnStart();
+        services.AddSingleton<Microsoft.Extensions.Options.IValidateOptions<BatchOptions>>(new BatchOptionsValidator());
         services.AddSingleton<BatchService>();
         services.AddSingleton<BatchCallbacks>();
         services.AddHostedService<BatchWorker>();
@@ -144,4 +147,13 @@ public static class BatchesApi
         ApiProblems.Create(ErrorCodes.BatchNotFound, $"There is no batch '{id}'; GET /v1/batches lists them.");
 
     private static string? Blank(string? s) => string.IsNullOrWhiteSpace(s) ? null : s;
+}
+
+/// <summary>Refuses batch settings the worker cannot run with, naming each setting and its value.</summary>
+public sealed class BatchOptionsValidator : Microsoft.Extensions.Options.IValidateOptions<BatchOptions>
+{
+    public Microsoft.Extensions.Options.ValidateOptionsResult Validate(string? name, BatchOptions options) =>
+        options.Validate().ToList() is { Count: > 0 } problems
+            ? Microsoft.Extensions.Options.ValidateOptionsResult.Fail(problems)
+            : Microsoft.Extensions.Options.ValidateOptionsResult.Success;
 }

@@ -120,3 +120,15 @@ public class ListenGuardTests
         Assert.Contains("http://0.0.0.0:0 from Kestrel:Endpoints:side:Url", error);
     }
 }
+
+public class BatchOptionsAtStartTests
+{
+    [Fact]
+    public async Task Bad_batch_settings_stop_the_start_and_name_the_setting()
+    {
+        string root = Path.Combine(Path.GetTempPath(), "strayspot-batchopts-" + Guid.NewGuid().ToString("N"));
+        await using var app = TestService.BuildOnly(root, new Dictionary<string, string?> { ["Service:Batches:ParallelBatches"] = "0" });
+        var e = await Assert.ThrowsAsync<OptionsValidationException>(() => app.StartAsync());
+        Assert.Contains("Service:Batches:ParallelBatches must be 1..64; got 0", e.Message);
+    }
+}
