@@ -177,7 +177,7 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         ["logits: unknown model"] = new("model 'nope'", () => Post("/v1/models/nope/logits", Form(("logits", GoodNpy))), 404, "model-not-found"),
         ["logits: empty file"] = new("0-byte part", () => Post(Logits, Form(("logits", Array.Empty<byte>()))), 400, "npy-format"),
         ["logits: not npy"] = new("text as logits", () => Post(Logits, Form(("logits", Encoding.ASCII.GetBytes("hello world, not an array")))), 400, "npy-format"),
-        ["logits: float64 dtype"] = new("'<f8' header", () => Post(Logits, Form(("logits", NpyHeader("{'descr': '<f8', 'fortran_order': False, 'shape': (4, 2, 2), }")))), 400, "npy-format"),
+        ["logits: int32 dtype"] = new("'<i4' header", () => Post(Logits, Form(("logits", NpyHeader("{'descr': '<i4', 'fortran_order': False, 'shape': (4, 2, 2), }")))), 400, "npy-format"),
         ["logits: shape beyond data"] = new("shape (4, 60000, 60000) over 16 bytes", () => Post(Logits, Form(("logits", NpyHeader("{'descr': '<f4', 'fortran_order': False, 'shape': (4, 60000, 60000), }")))), 400, "npy-format"),
         ["logits: negative dimension"] = new("shape (4, -2, 2)", () => Post(Logits, Form(("logits", NpyHeader("{'descr': '<f4', 'fortran_order': False, 'shape': (4, -2, 2), }")))), 400, "npy-format"),
         ["logits: fortran order"] = new("fortran_order True", () => Post(Logits, Form(("logits", NpyHeader("{'descr': '<f4', 'fortran_order': True, 'shape': (4, 1, 1), }")))), 400, "npy-format"),
