@@ -104,6 +104,7 @@ public static class ErrorCodes
         new(Frames.FrameErrorCodes.Missing, 400, "No frame where one was expected"),
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
+        new(ModelErrorCodes.MethodNeedsLogits, 422, "The method needs logits, but the model outputs probabilities"),
         // Codes raised by evaluation (datasets and metrics).
         new(Evaluation.DatasetErrorCodes.Missing, 404, "No such dataset folder"),
         new(Evaluation.DatasetErrorCodes.Empty, 400, "The dataset holds no frame with a mask"),

@@ -22,13 +22,13 @@ public static class DemoVerb
             using var bundle = ModelBundle.Load(modelFolder);
             string scores = Path.Combine(root, "scores");
             var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
-                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Scorer.Defaults, scores, progress));
+                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Defaults, scores, progress));
             Console.WriteLine($"Demo model:  {modelFolder}");
             Console.WriteLine($"Frames:      {Path.Combine(root, "frames")}");
             Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");
             Console.WriteLine("Frames by frame score, highest first:");
             foreach (var r in ranking)
-                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {Path.GetFileName(r.Frame)}");
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {Path.GetFileName(r.Frame)}");
             return CliApp.ExitOk;
         }));
 
