@@ -41,7 +41,7 @@ public static class BatchesApi
         services.AddHostedService<BatchWorker>();
     }
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapBatchesApi(this RouteGroupBuilder v1)
     {
         var group = v1.MapGroup("/batches").WithTags("Batches");
 

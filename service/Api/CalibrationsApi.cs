@@ -16,7 +16,7 @@ public sealed record CalibrationRequest(
 /// <summary>Calibration jobs: start one per model, follow its progress, activate the result.</summary>
 public static class CalibrationsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapCalibrationsApi(this RouteGroupBuilder v1)
     {
         v1.MapPost("/models/{model}/calibrations", Start)
             .WithTags("Calibrations")

@@ -35,7 +35,7 @@ public sealed record ModelList(IReadOnlyList<ModelSummary> Models);
 /// <summary>The installed models: their descriptors, class statistics and scoring profiles.</summary>
 public static class ModelsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapModelsApi(this RouteGroupBuilder v1)
     {
         var models = v1.MapGroup("/models").WithTags("Models");
 

@@ -25,7 +25,7 @@ public static class ReviewApi
 
     public static void AddServices(IServiceCollection services) => services.AddSingleton<BatchReview>();
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapReviewApi(this RouteGroupBuilder v1)
     {
         var group = v1.MapGroup("/batches/{id}").WithTags("Review");
 

@@ -221,19 +221,20 @@ public static class ServiceHost
         app.UseAuthentication();
         app.UseAuthorization();
 
-        HealthApi.Map(app);
+        app.MapHealthApi();
         // Scraped like the health endpoints: no key, so keep the port on a trusted network.
         app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
         Review.ReviewPage.Map(app);
         var v1 = app.MapGroup("/v1");
-        ModelsApi.Map(v1);
-        FramesApi.Map(v1);
-        CalibrationsApi.Map(v1);
-        EvaluationsApi.Map(v1);
-        LogitsApi.Map(v1);
-        ImageFramesApi.Map(v1);
-        BatchesApi.Map(v1);
-        ReviewApi.Map(v1);
+        // One area a file, each an extension on the /v1 group.
+        v1.MapModelsApi();
+        v1.MapArtifactsApi();
+        v1.MapCalibrationsApi();
+        v1.MapEvaluationsApi();
+        v1.MapLogitsApi();
+        v1.MapImageFramesApi();
+        v1.MapBatchesApi();
+        v1.MapReviewApi();
     }
 }
 

@@ -75,11 +75,11 @@ public static class FuzzTargets
         http.Request.ContentLength = input.Length;
         http.Features.Set<Microsoft.AspNetCore.Http.Features.IFormFeature>(new Microsoft.AspNetCore.Http.Features.FormFeature(http.Request,
             new Microsoft.AspNetCore.Http.Features.FormOptions { ValueCountLimit = 64, MultipartBodyLengthLimit = 1 << 20 }));
-        var (form, problem) = UploadForm.ReadAsync(http.Request, "logits", "float32 NPY logits", LogitsForm.FieldsFor("logits"), CancellationToken.None)
+        var (form, problem) = UploadForm.ReadAsync(http.Request, "logits", "float32 NPY logits", ScoringForm.FieldsFor("logits"), CancellationToken.None)
             .GetAwaiter().GetResult();
         if ((form is null) == (problem is null)) throw new InvalidOperationException("the form reader gave neither a form nor a problem");
         if (form is not null)
-            LogitsForm.Parse(form, new Scoring.Pipeline.ScoringOptions(), 4096L * 4096);
+            ScoringForm.Parse(form, new Scoring.Pipeline.ScoringOptions(), 4096L * 4096);
     }
 
     private static readonly FrameDecoder Decoder = new(new FrameDecoderOptions { MaxPixels = 1 << 20 });

@@ -18,10 +18,10 @@ public sealed record LogitsRequest(
     bool Inline = false);
 
 /// <summary>
-/// Reads the text fields of a logits upload. Every field is checked and every problem is reported at once;
+/// Reads the text fields of a scoring upload, logits or camera image alike. Every field is checked and every problem is reported at once;
 /// an unknown field is an error, so a misspelt option never silently falls back to the profile.
 /// </summary>
-public static class LogitsForm
+public static class ScoringForm
 {
     public const string LogitsPart = "logits";
     public static readonly string[] DefaultArtifacts = ["classes", "mask", "heat"];
