@@ -13,6 +13,14 @@ namespace Strayspot.Tests.Service.Api;
 /// </summary>
 public class ListenGuardTests
 {
+    /// <summary>A host over fresh folders under <paramref name="root"/>; <paramref name="settings"/> gives what the test is about.</summary>
+    private static WebApplication Host(string root, ServiceHostSettings settings, bool testServer)
+    {
+        Directory.CreateDirectory(Path.Combine(root, "models"));
+        settings = settings with { ModelsRoot = Path.Combine(root, "models"), DataRoot = Path.Combine(root, "data"), ConsoleLog = false };
+        return testServer ? ServiceHost.Build(settings, b => b.WebHost.UseTestServer()) : ServiceHost.Build(settings);
+    }
+
     private static string NewRoot() => Path.Combine(Path.GetTempPath(), "strayspot-listen-" + Guid.NewGuid().ToString("N"));
 
     [Theory]
@@ -38,12 +46,10 @@ public class ListenGuardTests
     public async Task The_urls_setting_and_Kestrel_endpoints_are_checked()
     {
         string root = NewRoot();
-        Directory.CreateDirectory(Path.Combine(root, "models"));
-        await using var fromUrls = ServiceHost.Build(new ServiceHostSettings
+        await using var fromUrls = Host(root, new ServiceHostSettings
         {
-            ModelsRoot = Path.Combine(root, "models"), DataRoot = Path.Combine(root, "data"), ConsoleLog = false,
             Configuration = new Dictionary<string, string?> { ["urls"] = "http://127.0.0.1:0;http://0.0.0.0:0" },
-        }, b => b.WebHost.UseTestServer());
+        }, testServer: true);
         var e = await Assert.ThrowsAsync<OptionsValidationException>(() => fromUrls.StartAsync());
         Assert.Contains("http://0.0.0.0:0 from urls", e.Message);
 
@@ -68,13 +74,7 @@ public class ListenGuardTests
     [Fact]
     public async Task A_checked_start_on_loopback_serves()
     {
-        string root = NewRoot();
-        Directory.CreateDirectory(Path.Combine(root, "models"));
-        await using var app = ServiceHost.Build(new ServiceHostSettings
-        {
-            ModelsRoot = Path.Combine(root, "models"), DataRoot = Path.Combine(root, "data"), ConsoleLog = false,
-            Urls = ["http://127.0.0.1:0"],
-        });
+        await using var app = Host(NewRoot(), new ServiceHostSettings { Urls = ["http://127.0.0.1:0"] }, testServer: false);
         await ServiceHost.StartCheckedAsync(app);
         using var client = new HttpClient { BaseAddress = new Uri(app.Urls.Single()) };
         Assert.True((await client.GetAsync("/healthz")).IsSuccessStatusCode);
