@@ -73,7 +73,7 @@ public sealed class BatchWorker(
                 catch (Exception e) when (e is not (OperationCanceledException or StoreUnavailableException))
                 {
                     log.LogError(e, "Batch {BatchId} failed", batch.Id);
-                    batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: e.Message);
+                    batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: ClientPaths.Relative(e.Message, batches.DataRoot));
                 }
                 finally
                 {
@@ -186,13 +186,13 @@ public sealed class BatchWorker(
             if (!batches.Store.CompleteFrame(claim, new FrameResult(scored.FrameScore, scored.RegionCount, report, Manifest.RegionsJson(scored.Regions))))
                 log.LogWarning("Batch {BatchId} frame {FrameId}: the done mark was refused (claim lost)", claim.BatchId, frame.FrameId);
         }
-        catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or FileNotFoundException
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or FileNotFoundException
                                       or DirectoryNotFoundException or InvalidDataException)
         {
             TryDelete(temp);
-            string code = e switch { ModelException m => m.Code, ScoringInputException s => s.Code, UnsafePathException => "path-outside-data", _ => "frame-unreadable" };
+            string code = e is Strayspot.Scoring.CodedException coded ? coded.Code : "frame-unreadable";
             log.LogWarning("Batch {BatchId} frame {FrameId} failed ({Code}): {Reason}", claim.BatchId, frame.FrameId, code, e.Message);
-            batches.Store.FailFrame(claim, $"{code}: {e.Message}");
+            batches.Store.FailFrame(claim, $"{code}: {ClientPaths.Relative(e.Message, folder, batches.DataRoot)}");
         }
         catch
         {
@@ -249,9 +249,9 @@ public sealed class BatchWorker(
                 _bundles[batch.Model] = (entry.Profile.Version, bundle);
                 return bundle;
             }
-            catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
+            catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException or InvalidDataException)
             {
-                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {e.Message}");
+                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {ClientPaths.Relative(e.Message, batches.DataRoot)}");
                 return null;
             }
         }

@@ -61,12 +61,12 @@ public sealed class Calibrator
     public static IReadOnlyList<string> ListFrames(string folder)
     {
         if (!Directory.Exists(folder))
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' does not exist.");
+            throw new Strayspot.Service.Hosting.PathException(Strayspot.Service.Hosting.PathErrorCodes.FolderNotFound, $"Frames folder '{folder}' does not exist.");
         var files = Directory.EnumerateFiles(folder)
             .Where(f => FrameExtensions.Contains(Path.GetExtension(f).ToLowerInvariant()))
             .OrderBy(f => Path.GetFileName(f), StringComparer.Ordinal).ToList();
         if (files.Count == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' holds no {string.Join("/", FrameExtensions)} files.");
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, $"Frames folder '{folder}' holds no {string.Join("/", FrameExtensions)} files.");
         return files;
     }
 
@@ -78,7 +78,7 @@ public sealed class Calibrator
         IProgress<CalibrationProgress>? progress = null, CancellationToken cancel = default)
     {
         if (frames.Count == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, "No frames to calibrate with.");
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, "No frames to calibrate with.");
         bool labelled = _options.LabelsFolder is not null;
         string checkpointPath = _options.CheckpointPath ?? outputPath + ".checkpoint.json";
         int classes = _model.ClassCount;
@@ -163,6 +163,10 @@ public sealed class Calibrator
             {
                 throw new ModelException(e.Code, $"Frame '{path}': {e.Message}", e);
             }
+            catch (Strayspot.Service.Frames.FrameException e) when (!e.Message.Contains(path, StringComparison.Ordinal))
+            {
+                throw new Strayspot.Service.Frames.FrameException(e.Code, $"Frame '{path}': {e.Message}", e);
+            }
         }
 
         private ClassStatisticsAccumulator MeasureFrame(string path, FrameDecoder decoder, int classes, CalibrationOptions options)
@@ -181,7 +185,7 @@ public sealed class Calibrator
             {
                 string labelPath = Path.Combine(options.LabelsFolder, Path.GetFileNameWithoutExtension(path) + ".png");
                 if (!File.Exists(labelPath))
-                    throw new ModelException(ModelErrorCodes.FrameFormat, $"Frame '{Path.GetFileName(path)}' has no label map '{labelPath}'.");
+                    throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, $"Frame '{Path.GetFileName(path)}' has no label map '{labelPath}'.");
                 acc.Add(reducer.MaxLogit, reducer.ClassIndex, LabelMapReader.Read(labelPath, frame.Width, frame.Height), options.IgnoreLabel);
             }
             return acc;

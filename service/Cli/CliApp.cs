@@ -58,7 +58,7 @@ public static class CliApp
         {
             return body();
         }
-        catch (ScoringInputException e)
+        catch (Strayspot.Scoring.CodedException e)
         {
             Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
             return ExitBadInput;
@@ -66,11 +66,6 @@ public static class CliApp
         catch (Exception e) when (e is FileNotFoundException or DirectoryNotFoundException or UnauthorizedAccessException)
         {
             Console.Error.WriteLine($"error [file]: {e.Message}");
-            return ExitBadInput;
-        }
-        catch (Models.ModelException e)
-        {
-            Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
             return ExitBadInput;
         }
     }

@@ -125,7 +125,7 @@ public static class ScoreVerb
             else missing.Add(path);
         }
         if (missing.Count > 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"No such frame file or folder: {string.Join(", ", missing)}.");
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, $"No such frame file or folder: {string.Join(", ", missing)}.");
         return files;
     }
 }

@@ -3,7 +3,7 @@ namespace Strayspot.Service.Recordings;
 /// <summary>
 /// Stable codes for recordings a run refuses, raised as <see cref="Models.ModelException"/> so the command line and
 /// problem+json carry them like the frame codes; never rename one. Too many pixels uses
-/// <see cref="Models.ModelErrorCodes.FrameTooLarge"/>, as for a single frame.
+/// <see cref="Frames.FrameErrorCodes.TooLarge"/>, as for a single frame.
 /// </summary>
 public static class RecordingErrorCodes
 {

@@ -48,7 +48,7 @@ public sealed partial class VideoRecording : IRecording
         var header = VideoHeader.Probe(tools, path, options.HeaderLimit, cancel);
         long pixels = (long)header.Width * header.Height;
         if (pixels > options.MaxPixels)
-            throw new ModelException(ModelErrorCodes.FrameTooLarge,
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.TooLarge,
                 $"{Path.GetFileName(path)}: its frames are {header.Width}×{header.Height} = {pixels:N0} pixels by the stream header; the limit is {options.MaxPixels:N0}.");
         return new VideoRecording(path, options, tools, header);
     }

@@ -10,9 +10,15 @@ using Strayspot.Service.Reports;
 namespace Strayspot.Service.Review;
 
 /// <summary>A refused review request; <see cref="Code"/> is an API error code.</summary>
-public sealed class ReviewException(string code, string message) : Exception(message)
+public sealed class ReviewException(string code, string message) : Strayspot.Scoring.CodedException(code, message);
+
+/// <summary>The stable codes of <see cref="ReviewException"/>; never rename one.</summary>
+public static class ReviewErrorCodes
 {
-    public string Code { get; } = code;
+    public const string FrameNotFound = "frame-not-found";
+    public const string FrameNotScored = "frame-not-scored";
+    public const string RegionNotFound = "region-not-found";
+    public const string NoteTooLong = "note-too-long";
 }
 
 public sealed record ReviewClass(

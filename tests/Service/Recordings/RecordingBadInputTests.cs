@@ -19,8 +19,8 @@ public sealed class RecordingBadInputTests : IDisposable
         return path;
     }
 
-    private static ModelException Refused(string path, RecordingOptions? options = null) =>
-        Assert.Throws<ModelException>(() =>
+    private static Strayspot.Scoring.CodedException Refused(string path, RecordingOptions? options = null) =>
+        Assert.ThrowsAny<Strayspot.Scoring.CodedException>(() =>
         {
             foreach (var f in VideoRecording.Open(path, options).Frames()) f.Dispose();
         });
@@ -76,12 +76,12 @@ public sealed class RecordingBadInputTests : IDisposable
     {
         // A YUV4MPEG2 header announcing 20000×10000 (200 M pixels), then a few bytes of a first frame: nothing to decode.
         var e = Refused(Write("huge.y4m", Encoding.ASCII.GetBytes("YUV4MPEG2 W20000 H10000 F25:1 Ip A1:1 C420jpeg\nFRAME\n" + new string('\x10', 64))));
-        Assert.Equal(ModelErrorCodes.FrameTooLarge, e.Code);
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.TooLarge, e.Code);
         Assert.Contains("20000×10000", e.Message);
         // The same check with a lowered limit on a real, small MP4.
         string mp4 = Path.Combine(_dir, "small.mp4");
         VideoFiles.EncodeMp4(mp4, 64, 32, 10, VideoFiles.Counting(64, 32, 3));
-        Assert.Equal(ModelErrorCodes.FrameTooLarge, Refused(mp4, new RecordingOptions { MaxPixels = 64 * 32 - 1 }).Code);
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.TooLarge, Refused(mp4, new RecordingOptions { MaxPixels = 64 * 32 - 1 }).Code);
     }
 
     [VideoFact]
