@@ -48,9 +48,12 @@ public static class ScoreVerb
 
     public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
 
-    /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
+    /// <summary>
+    /// Scores each file into its own subfolder (named by the file's stem) and writes ranking.json. <paramref name="inspect"/>
+    /// sees each file's scored maps while they are valid.
+    /// </summary>
     public static IReadOnlyList<RankedFrame> ScoreAll(ModelBundle bundle, IReadOnlyList<string> files, ScoringOptions options,
-        string outFolder, IProgress<FrameCount>? progress = null)
+        string outFolder, IProgress<FrameCount>? progress = null, Action<string, FrameScoring>? inspect = null)
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
@@ -63,7 +66,8 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = decoder.DecodeFile(files[i]);
-            var report = output.Write(frame, stem, folder, options);
+            string file = files[i];
+            var report = output.Write(frame, stem, folder, options, inspect is null ? null : scored => inspect(file, scored));
             ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, FrameOutput.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
