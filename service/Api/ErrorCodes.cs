@@ -98,6 +98,7 @@ public static class ErrorCodes
         new(ModelErrorCodes.FrameCorrupt, 400, "The frame's image data is corrupt"),
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
+        new(ModelErrorCodes.MethodNeedsLogits, 422, "The method needs logits, but the model outputs probabilities"),
         // Codes raised by evaluation (datasets and metrics).
         new(Evaluation.DatasetErrorCodes.Missing, 404, "No such dataset folder"),
         new(Evaluation.DatasetErrorCodes.Empty, 400, "The dataset holds no frame with a mask"),

@@ -79,6 +79,9 @@ public static class ImageFramesApi
             return ApiProblems.Create(ErrorCodes.StatisticsMissing,
                 $"Model '{model}' has no class statistics (calibration.json or statistics.json), which the sml method needs; " +
                 "calibrate the model or choose another method.");
+        if (entry.Descriptor!.Output.Kind == "probabilities" && !ScoreMethodInputs.WorksOnProbabilities(req.Options.Method))
+            return ApiProblems.Create(ModelErrorCodes.MethodNeedsLogits,
+                $"Model '{model}' outputs probabilities (output.kind), so only the msp and entropy methods are defined for it.");
 
         byte[] bytes;
         using (var buffer = new MemoryStream((int)Math.Min(file.Length, int.MaxValue)))

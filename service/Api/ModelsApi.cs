@@ -14,7 +14,12 @@ public sealed record ModelSummary(
     int ClassCount,
     bool HasStatistics,
     string ProfileVersion,
-    string Method);
+    string Method)
+{
+    /// <summary>"calibrated" (calibration.json bound to the weights and preprocessing), "statistics-only" (a bare
+    /// statistics.json) or "uncalibrated" (the sml method is refused until the model is calibrated).</summary>
+    public string Calibration { get; init; } = "uncalibrated";
+}
 
 /// <summary>Everything known about one installed model.</summary>
 public sealed record ModelDetails(
@@ -119,5 +124,13 @@ public static class ModelsApi
         e.Descriptor?.Classes.Count ?? 0,
         e.Statistics is not null,
         e.Profile.Version,
-        e.Profile.Effective.Method.ToString().ToLowerInvariant());
+        e.Profile.Effective.Method.ToString().ToLowerInvariant())
+    {
+        Calibration = e.Calibration?.File switch
+        {
+            ModelCatalog.CalibrationFile => "calibrated",
+            ModelCatalog.StatisticsFile => "statistics-only",
+            _ => "uncalibrated",
+        },
+    };
 }

@@ -22,6 +22,8 @@ public sealed record CalibrationArtifact
     [JsonPropertyName("fallbackClasses")] public List<string> FallbackClasses { get; init; } = [];
     /// <summary>True when only pixels whose prediction matched a ground-truth label were counted.</summary>
     [JsonPropertyName("labelFiltered")] public bool LabelFiltered { get; init; }
+    /// <summary>Preprocessing, output, class names and frame size the statistics were measured through; absent in older files.</summary>
+    [JsonPropertyName("measuredWith")] public CalibrationBinding? MeasuredWith { get; init; }
     [JsonPropertyName("toolVersion")] public string ToolVersion { get; init; } = "";
     [JsonPropertyName("createdUtc")] public DateTimeOffset CreatedUtc { get; init; }
 
@@ -29,15 +31,32 @@ public sealed record CalibrationArtifact
 
     public ClassStatistics ToStatistics() => new(Classes, MinimumCount);
 
-    /// <summary>Refuses a calibration measured with other weights, naming both hashes.</summary>
-    public void EnsureMatches(SegmentationModel model)
+    /// <summary>Refuses a calibration measured with other weights, preprocessing, output or class names, naming what changed.</summary>
+    public void EnsureMatches(SegmentationModel model) =>
+        EnsureMatches(model.Descriptor, model.ModelSha256, Path.GetDirectoryName(Path.GetFullPath(model.ModelPath))!);
+
+    /// <inheritdoc cref="EnsureMatches(SegmentationModel)"/>
+    public void EnsureMatches(ModelDescriptor descriptor, string modelSha256, string modelFolder)
     {
-        if (!string.Equals(ModelSha256, model.ModelSha256, StringComparison.OrdinalIgnoreCase))
+        string again = $"The statistics would standardize with the wrong means; calibrate again: strayspot calibrate {modelFolder} <folder of ordinary frames>.";
+        if (!string.Equals(ModelSha256, modelSha256, StringComparison.OrdinalIgnoreCase))
             throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
-                $"The calibration was measured with the model of SHA-256 {ModelSha256}, but the loaded model's is {model.ModelSha256}. Re-run calibrate for this model.");
-        if (Classes.Count != model.ClassCount)
+                $"{FileName} was measured with the model of SHA-256 {ModelSha256}, but the loaded model's is {modelSha256}. {again}");
+        if (Classes.Count != descriptor.Classes.Count)
             throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
-                $"The calibration describes {Classes.Count} classes but the model has {model.ClassCount}.");
+                $"{FileName} describes {Classes.Count} classes but the descriptor lists {descriptor.Classes.Count}. {again}");
+        if (MeasuredWith is null)
+        {
+            // Older files carry only the descriptor's hash: equal means nothing changed; otherwise we cannot tell what did.
+            if (!string.Equals(DescriptorSha256, Calibrator.DescriptorSha256(descriptor), StringComparison.OrdinalIgnoreCase))
+                throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
+                    $"{FileName} predates the record of preprocessing, and descriptor.json has changed since it was measured. {again}");
+            return;
+        }
+        var changes = MeasuredWith.Differences(descriptor);
+        if (changes.Count > 0)
+            throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
+                $"{FileName} was measured through other settings than descriptor.json now has:\n  - {string.Join("\n  - ", changes)}\n{again}");
     }
 
     /// <summary>Loads a calibration and checks that it was measured with <paramref name="model"/>.</summary>

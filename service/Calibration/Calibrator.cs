@@ -49,6 +49,10 @@ public sealed class Calibrator
         _decoder = decoder;
         _reducerFactory = reducerFactory;
         _options = options ?? new CalibrationOptions();
+        if (model.OutputsProbabilities)
+            throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
+                $"Model '{model.FolderName}' outputs probabilities (output.kind): calibration measures the max-logit statistics of the sml method, " +
+                "which softmax outputs cannot give. Score it with --method msp or --method entropy, which need no calibration, or export it without the final Softmax.");
         if (_options.Workers < 1 || _options.CheckpointEvery < 0)
             throw new ArgumentOutOfRangeException(nameof(options), "Workers must be ≥ 1 and CheckpointEvery ≥ 0.");
     }
@@ -130,6 +134,7 @@ public sealed class Calibrator
             FrameCount = frames.Count,
             FallbackClasses = stats.Classes.Where(c => c.Count < _options.MinimumCount || c.Std < ClassStatistics.MinimumStd).Select(c => c.Name).ToList(),
             LabelFiltered = labelled,
+            MeasuredWith = CalibrationBinding.Of(_model.Descriptor, CalibrationBinding.CommonFrameSize(frames)),
             ToolVersion = ToolVersion,
             CreatedUtc = DateTimeOffset.UtcNow,
         };

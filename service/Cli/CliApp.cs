@@ -20,6 +20,7 @@ public static class CliApp
         root.Subcommands.Add(ScoreLogitsVerb.Create());
         root.Subcommands.Add(CalibrateVerb.Create(() => new Calibration.PixelReductionMaxLogitReducer()));
         root.Subcommands.Add(InspectVerb.Create());
+        root.Subcommands.Add(CheckInputVerb.Create());
         root.Subcommands.Add(EvaluateVerb.Create());
         root.Subcommands.Add(ServeVerb.Create());
         root.Subcommands.Add(HealthcheckVerb.Create());
@@ -27,16 +28,26 @@ public static class CliApp
         return root;
     }
 
-    public static int Run(string[] args)
+    public static int Run(string[] args) => Run(args, null);
+
+    /// <summary>Runs the command line; <paramref name="config"/> redirects the verbs' output (tests).</summary>
+    public static int Run(string[] args, InvocationConfiguration? config)
     {
         var parsed = Build().Parse(args);
+        var error = config?.Error ?? Console.Error;
         // Usage errors are bad input too: exit 2, like every other refusal.
         if (parsed.Errors.Count > 0 && parsed.Action is not System.CommandLine.Help.HelpAction)
         {
-            foreach (var error in parsed.Errors) Console.Error.WriteLine($"error [usage]: {error.Message}");
+            foreach (var e in parsed.Errors) error.WriteLine($"error [usage]: {e.Message}");
             return ExitBadInput;
         }
-        return parsed.Invoke();
+        // An unknown option would otherwise be taken for a frame path ("No such frame file: --treshold").
+        if (UnknownOptions.Find(parsed) is { } unknown)
+        {
+            error.WriteLine($"error [usage]: {unknown}");
+            return ExitBadInput;
+        }
+        return config is null ? parsed.Invoke() : parsed.Invoke(config);
     }
 
     /// <summary>Runs a verb body, turning refused input into a message and exit code 2 instead of a stack trace.</summary>

@@ -24,7 +24,7 @@ public static class DemoVerb
             var truth = GroundTruth(frames);
             var tallies = new Dictionary<string, DemoFrameTally>(StringComparer.Ordinal);
             var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
-                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Scorer.Defaults, scores, progress, (file, scored) =>
+                progress => ScoreVerb.ScoreAll(bundle, frames, bundle.Defaults, scores, progress, inspect: (file, scored) =>
                 {
                     if (truth.TryGetValue(file, out var t))
                         tallies[file] = DemoFrameTally.Count(scored.Regions.Labels, scored.Regions.Regions.Count, t.DebrisMask, scored.Width, scored.Height);
@@ -38,7 +38,7 @@ public static class DemoVerb
             {
                 string name = Path.GetFileName(r.Frame);
                 if (!tallies.TryGetValue(r.Frame, out var t))
-                    Console.WriteLine($"  {r.FrameScore,11:0.000}  {r.Regions,7}  {"?",9}  {"?",5}  {"no ground truth",19}  {name}");
+                    Console.WriteLine($"  {r.FrameScore,11:0.000}  {r.RegionCount,7}  {"?",9}  {"?",5}  {"no ground truth",19}  {name}");
                 else
                 {
                     string pieces = t.Pieces == 0 ? "none painted" : $"{t.PiecesFound} of {t.Pieces}";

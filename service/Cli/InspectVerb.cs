@@ -35,7 +35,7 @@ public static class InspectVerb
                         return BadInput;
                     }
                     ModelInspector.StarterDescriptor(facts).Save(target.FullName);
-                    output.WriteLine($"Starter descriptor written to {target.FullName}: set class names, mean/std and the size policy.");
+                    output.WriteLine($"Starter descriptor written to {target.FullName}: check the fields marked '?' above, then run 'strayspot check-input'.");
                 }
                 return 0;
             }
@@ -64,5 +64,10 @@ public static class InspectVerb
         foreach (var t in f.Outputs) w.WriteLine($"Output    {t.Name}  {t.ElementType}  [{string.Join(", ", t.Shape)}]");
         if (f.Opset is > 0 and < 13)
             w.WriteLine(string.Create(inv, $"Note      opset {f.Opset} is older than 13; re-export with opset 13 or newer if loading fails."));
+        if (f.Inputs.Count == 0 || f.Outputs.Count == 0) return;
+        w.WriteLine();
+        w.WriteLine("Descriptor guesses (from the graph; '?' marks what it could not decide: check those against the training):");
+        foreach (var g in ModelInspector.Guesses(f))
+            w.WriteLine($"  {(g.Decided ? " " : "?")} {g.Field,-20} {g.Value}\n        because {g.Reason}");
     }
 }

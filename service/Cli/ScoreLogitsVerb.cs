@@ -20,18 +20,20 @@ public static class ScoreLogitsVerb
         var statistics = new Option<FileInfo?>("--statistics") { Description = "class statistics or calibration JSON (needed by sml)" };
         var frameSize = new Option<string?>("--frame-size") { Description = "WIDTHxHEIGHT of the frame the logits belong to (default: the logits' own size)" };
         var output = new Option<DirectoryInfo>("--out") { Description = "folder for the report and artifacts", Required = true };
+        var stretch = new Option<bool>("--stretch") { Description = "accept logits whose aspect ratio differs from the frame's (they are stretched onto it)" };
         var scoring = new ScoringOptionsBinding();
         var command = new Command("score-logits", "Score an NPY logits file and write the report and artifacts.");
         command.Arguments.Add(logits);
         command.Options.Add(statistics);
         command.Options.Add(frameSize);
         command.Options.Add(output);
+        command.Options.Add(stretch);
         scoring.AddTo(command);
         command.SetAction(p => CliApp.Guard(() =>
         {
             var options = scoring.Apply(p, new ScoringOptions());
             var stats = p.GetValue(statistics) is { } sf ? ClassStatistics.Load(sf.FullName) : null;
-            var result = Run(p.GetValue(logits)!.FullName, stats, p.GetValue(frameSize), options, p.GetValue(output)!.FullName);
+            var result = Run(p.GetValue(logits)!.FullName, stats, p.GetValue(frameSize), options, p.GetValue(output)!.FullName, p.GetValue(stretch));
             Console.WriteLine($"frame score {result.FrameScore:0.###}, {result.Regions.Count} region(s), {result.AnomalousShare:P2} flagged");
             Console.WriteLine($"wrote {Path.Combine(p.GetValue(output)!.FullName, "report.json")}");
             return CliApp.ExitOk;
@@ -39,13 +41,31 @@ public static class ScoreLogitsVerb
         return command;
     }
 
-    public static FrameReport Run(string logitsPath, ClassStatistics? statistics, string? frameSize, ScoringOptions options, string outputFolder)
+    /// <summary>
+    /// True when some whole-cell stride explains both sides: each side of the logits may be off by one cell (rounding)
+    /// and up to 10% (padding to a multiple before the model) from frame side ÷ stride.
+    /// </summary>
+    public static bool AspectAgrees(int logitsHeight, int logitsWidth, int frameHeight, int frameWidth)
+    {
+        static (double Low, double High) Range(int frame, int logits) =>
+            (frame / (logits + 1.0) / 1.1, frame / Math.Max(1.0, logits - 1.0) * 1.1);
+        var (xl, xh) = Range(frameWidth, logitsWidth);
+        var (yl, yh) = Range(frameHeight, logitsHeight);
+        return Math.Max(xl, yl) <= Math.Min(xh, yh);
+    }
+
+    public static FrameReport Run(string logitsPath, ClassStatistics? statistics, string? frameSize, ScoringOptions options, string outputFolder,
+        bool stretch = false)
     {
         var npy = Npy.ReadFloat32(logitsPath);
         var shape = new long[npy.Shape.Length];
         for (int i = 0; i < shape.Length; i++) shape[i] = npy.Shape[i];
         var view = LogitsView.FromShape(npy.Data, shape);
         var (width, height) = frameSize is null ? (view.Width, view.Height) : ScoringOptionsBinding.ParseSize(frameSize);
+        if (!stretch && !AspectAgrees(view.Height, view.Width, height, width))
+            throw new ScoringInputException(ScoringErrorCodes.FrameSize,
+                $"The logits are {view.Width} wide × {view.Height} high but the frame is {width} wide × {height} high: their shapes disagree beyond rounding " +
+                "(are height and width swapped? --frame-size is WIDTHxHEIGHT). Pass --stretch if stretching them onto the frame is intended.");
 
         var pipeline = new FramePipeline(options, statistics);
         var scored = pipeline.Score(view, height, width);

@@ -6,6 +6,7 @@ using Strayspot.Service.Frames;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
 using Strayspot.Service.Reports;
+using Strayspot.Service.Rendering;
 
 namespace Strayspot.Service.Cli;
 
@@ -21,12 +22,18 @@ public static class ScoreVerb
         var frames = new Argument<string[]>("frames") { Description = "frame files, or folders of .png/.jpg/.jpeg/.webp", Arity = ArgumentArity.OneOrMore };
         var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
         var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default: cores)" };
+        var artifacts = new Option<string?>("--artifacts")
+        {
+            Description = $"comma-separated files to write per frame ({string.Join(", ", ArtifactWriter.All)}), 'all' or 'none' " +
+                          $"(default: {string.Join(",", LeanArtifacts)}; report.json is always written)",
+        };
         var scoring = new ScoringOptionsBinding();
         var command = new Command("score", "Score frames through a model and write reports and PNG artifacts.");
         command.Arguments.Add(model);
         command.Arguments.Add(frames);
         command.Options.Add(output);
         command.Options.Add(threads);
+        command.Options.Add(artifacts);
         scoring.AddTo(command);
         command.SetAction(p => CliApp.Guard(() =>
         {
@@ -34,26 +41,54 @@ public static class ScoreVerb
             var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
             using var bundle = ModelBundle.Load(p.GetValue(model)!.FullName, runtime);
             if (bundle.Warning is not null) Console.Error.WriteLine($"warning: {bundle.Warning}");
-            var options = scoring.Apply(p, bundle.Scorer.Defaults);
+            var options = scoring.Apply(p, bundle.Defaults);
+            bundle.EnsureCanScore(options);
+            foreach (var w in bundle.WarningsFor(0, 0, options).Where(w => w.Code == ScoringWarnings.ThresholdOutOfRange))
+                Console.Error.WriteLine($"warning [{w.Code}]: {w.Message}");
             string outFolder = p.GetValue(output)!.FullName;
-            var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress));
+            var chosen = ParseArtifacts(p.GetValue(artifacts));
+            var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress, chosen));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
             foreach (var r in ranking.Take(5))
-                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.Regions,3} region(s)  {r.Frame}");
+                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {r.Frame}");
             Console.WriteLine($"ranking: {Path.Combine(outFolder, "ranking.json")}");
             return CliApp.ExitOk;
         }));
         return command;
     }
 
-    public sealed record RankedFrame(string Frame, float FrameScore, int Regions, double AnomalousShare, string Report);
+    /// <summary>One line of ranking.json; <c>regionCount</c> is a count (a frame report's <c>regions</c> is the list).</summary>
+    public sealed record RankedFrame(string Frame, float FrameScore, int RegionCount, double AnomalousShare, string Report);
+
+    /// <summary>What <c>score</c> writes per frame unless told otherwise: the mask and the picture a person looks at.
+    /// The full-size maps (class map, heat map, score NPY and 16-bit PNG) are opt-in: at 1920×1080 all of them take about 14 MB a frame.</summary>
+    public static readonly IReadOnlyList<string> LeanArtifacts = ["mask", "overlay"];
+
+    /// <summary>Parses <c>--artifacts</c>: a comma-separated list of artifact names, 'all' or 'none'.</summary>
+    public static IReadOnlyList<string> ParseArtifacts(string? text)
+    {
+        if (text is null) return LeanArtifacts;
+        string t = text.Trim().ToLowerInvariant();
+        if (t == "none") return [];
+        if (t == "all") return ArtifactWriter.All;
+        var names = t.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries);
+        foreach (string n in names)
+            if (!ArtifactWriter.All.Contains(n))
+            {
+                string? near = NearestName.Find(n, ArtifactWriter.All);
+                throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options,
+                    $"--artifacts: '{n}' is no artifact.{(near is not null ? $" Did you mean '{near}'?" : "")} Choose from {string.Join(", ", ArtifactWriter.All)}, or 'all' or 'none'.");
+            }
+        return names.Distinct().ToList();
+    }
 
     /// <summary>
     /// Scores each file into its own subfolder (named by the file's stem) and writes ranking.json. <paramref name="inspect"/>
     /// sees each file's scored maps while they are valid.
     /// </summary>
     public static IReadOnlyList<RankedFrame> ScoreAll(ModelBundle bundle, IReadOnlyList<string> files, ScoringOptions options,
-        string outFolder, IProgress<FrameCount>? progress = null, Action<string, FrameScoring>? inspect = null)
+        string outFolder, IProgress<FrameCount>? progress = null, IReadOnlyList<string>? artifacts = null,
+        Action<string, FrameScoring>? inspect = null)
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
@@ -67,7 +102,8 @@ public static class ScoreVerb
             string folder = Path.Combine(outFolder, stem);
             using var frame = decoder.DecodeFile(files[i]);
             string file = files[i];
-            var report = output.Write(frame, stem, folder, options, inspect is null ? null : scored => inspect(file, scored));
+            var report = output.Write(frame, stem, folder, options, inspect is null ? null : scored => inspect(file, scored),
+                artifacts: artifacts ?? ArtifactWriter.All);
             ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, FrameOutput.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }

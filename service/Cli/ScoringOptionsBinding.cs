@@ -5,20 +5,24 @@ using Strayspot.Scoring.Pipeline;
 
 namespace Strayspot.Service.Cli;
 
-/// <summary>The scoring options as command-line options, shared by every verb that scores.</summary>
+/// <summary>
+/// The scoring options as command-line options, shared by every verb that scores. Each is named after its JSON field in
+/// a profile or report (<c>--boundary-iterations</c> ↔ <c>boundarySuppression.iterations</c>, <c>--kernel-size</c> ↔
+/// <c>smoothing.kernelSize</c>, <c>--minimum-region-area</c> ↔ <c>minimumRegionArea</c>); the older short names stay as aliases.
+/// </summary>
 public sealed class ScoringOptionsBinding
 {
     public Option<string?> Method { get; } = new("--method") { Description = "msp | maxlogit | entropy | energy | sml (default: the profile's, else sml)" };
     public Option<float?> Threshold { get; } = new("--threshold") { Description = "anomaly-score threshold for the mask" };
     public Option<bool> NoBoundary { get; } = new("--no-boundary-suppression") { Description = "turn boundary suppression off" };
-    public Option<int?> BoundaryWidth { get; } = new("--boundary-width") { Description = "r0, first-round boundary width (pixels)" };
-    public Option<int?> BoundaryStep { get; } = new("--boundary-step") { Description = "Δr, width shrink per round" };
-    public Option<int?> BoundaryRounds { get; } = new("--boundary-rounds") { Description = "n, number of rounds" };
+    public Option<int?> BoundaryWidth { get; } = new("--boundary-initial-width", "--boundary-width") { Description = "r0, first-round boundary width (pixels); boundarySuppression.initialWidth" };
+    public Option<int?> BoundaryStep { get; } = new("--boundary-width-step", "--boundary-step") { Description = "Δr, width shrink per round; boundarySuppression.widthStep" };
+    public Option<int?> BoundaryRounds { get; } = new("--boundary-iterations", "--boundary-rounds") { Description = "n, number of rounds; boundarySuppression.iterations" };
     public Option<bool> NoSmoothing { get; } = new("--no-smoothing") { Description = "turn dilated smoothing off" };
-    public Option<int?> Kernel { get; } = new("--kernel") { Description = "k, Gaussian taps per side (odd)" };
+    public Option<int?> Kernel { get; } = new("--kernel-size", "--kernel") { Description = "k, Gaussian taps per side (odd); smoothing.kernelSize" };
     public Option<double?> Sigma { get; } = new("--sigma") { Description = "σ of the Gaussian, in taps" };
     public Option<int?> Dilation { get; } = new("--dilation") { Description = "d, pixels between taps" };
-    public Option<int?> MinArea { get; } = new("--min-area") { Description = "smallest region kept, pixels" };
+    public Option<int?> MinArea { get; } = new("--minimum-region-area", "--min-area") { Description = "smallest region kept, pixels; minimumRegionArea" };
     public Option<double?> Temperature { get; } = new("--energy-temperature") { Description = "T of the energy score" };
 
     public void AddTo(Command command)

@@ -139,8 +139,24 @@ public sealed class EvaluationDataset
             }
             items.Add(new DatasetItem(id, frame, mask, labels.GetValueOrDefault(id)));
         }
+        // A mask named <frame id>_<suffix> is a second map for a known frame (often a class label map put beside the
+        // masks): one line saying where it goes, instead of one "no frame" line per file.
+        var extra = new List<string>();
         foreach (var (id, mask) in masks)
-            if (!frames.ContainsKey(id)) problems.Add($"{Rel(root, mask)}: no frame with id '{id}'");
+        {
+            if (frames.ContainsKey(id)) continue;
+            int cut = id.LastIndexOf('_');
+            if (cut > 0 && frames.ContainsKey(id[..cut])) extra.Add(Rel(root, mask));
+            else problems.Add($"{Rel(root, mask)}: no frame with id '{id}'");
+        }
+        if (extra.Count > 0)
+        {
+            bool splitLayout = masks.Values.Any(m => Path.GetDirectoryName(m) != root);
+            problems.Add($"{extra.Count} file(s) like {extra[0]} are named after a frame with a suffix: a mask must be named exactly like its frame. " +
+                (splitLayout
+                    ? $"Class label maps go in {LabelsFolder}/<id>.png (value = class index, 255 = unlabelled)."
+                    : $"Class label maps go beside the frames as {LabelsPrefix}<id>.png (value = class index, 255 = unlabelled)."));
+        }
         foreach (var (id, label) in labels)
             if (!frames.ContainsKey(id)) problems.Add($"{Rel(root, label)}: no frame with id '{id}'");
         return items;

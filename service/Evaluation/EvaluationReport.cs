@@ -17,6 +17,8 @@ public sealed record EvaluationSettings
     public const double DefaultReportedFpr = 0.05;
     /// <summary>Write the recommended threshold into the model folder's profile.json as a new version.</summary>
     public bool WriteProfile { get; init; }
+    /// <summary>Write the profile even when its threshold flags more than <see cref="OperatingTradeOff.MaxFlaggedOrdinaryShare"/> of ordinary pixels.</summary>
+    public bool ForceProfile { get; init; }
     /// <summary>The clock of the new profile version (tests pin it).</summary>
     public DateTimeOffset? Now { get; init; }
     /// <summary>Histogram bins per method in the streaming mode.</summary>
@@ -81,6 +83,10 @@ public sealed record EvaluationReport(
 {
     /// <summary>Wall time of the run's parts (not in metrics.json, which is written before the clock stops).</summary>
     [JsonIgnore] public EvaluationTimings? Timings { get; init; }
+    /// <summary>What the recommended threshold costs (null in reports written before it was measured).</summary>
+    public OperatingTradeOff? TradeOff { get; init; }
+    /// <summary>Why --write-profile did not write (the threshold flags too much and was not forced); null when written or not asked.</summary>
+    public string? ProfileRefused { get; init; }
     [JsonIgnore] public IReadOnlyList<FrameRow> FrameRows { get; init; } = [];
     [JsonIgnore] public IReadOnlyList<(string Method, PixelCurves Curves)> Curves { get; init; } = [];
 

@@ -24,8 +24,7 @@ public static class Evaluator
         IProgress<FrameCount>? progress = null, ModelRuntimeOptions? runtime = null)
     {
         Validate(settings);
-        if (!Directory.Exists(modelFolder))
-            throw new ScoringInputException(DatasetErrorCodes.Missing, $"Model folder '{modelFolder}' does not exist.");
+        if (!Directory.Exists(modelFolder)) SegmentationModel.EnsureFolder(modelFolder);
         using var bundle = ModelBundle.Load(modelFolder, runtime);
         var dataset = EvaluationDataset.Open(datasetFolder, bundle.Model.ClassCount);
         return Run(bundle, dataset, outFolder, settings, progress);
@@ -46,9 +45,16 @@ public static class Evaluator
         var notes = new List<string>();
         var profileOptions = bundle.Profile.Effective;
         bool sml = bundle.Statistics is not null;
-        var methods = sml ? EvaluatedMethods.All : EvaluatedMethods.All.Where(m => !EvaluatedMethods.NeedsStatistics(m)).ToList();
+        IReadOnlyList<EvaluatedMethod> methods = sml ? EvaluatedMethods.All : EvaluatedMethods.All.Where(m => !EvaluatedMethods.NeedsStatistics(m)).ToList();
         var primary = sml ? EvaluatedMethod.Full : EvaluatedMethod.MaxLogit;
         if (!sml) notes.Add("The model has no calibration.json or statistics.json: the SML methods were left out and the operating point is for max logit.");
+        if (bundle.Model.OutputsProbabilities)
+        {
+            // [setup] Softmax outputs carry no logits: only the methods defined on probabilities are measured.
+            methods = methods.Where(m => m is EvaluatedMethod.Msp or EvaluatedMethod.Entropy).ToList();
+            primary = EvaluatedMethod.Msp;
+            notes.Add("The model outputs probabilities (output.kind): only msp and entropy are defined on them, so max logit, energy and the SML methods were left out and the operating point is for msp.");
+        }
         var scorer = new MultiMethodScorer(bundle.Statistics, new MultiMethodOptions
         {
             Base = profileOptions, Methods = methods, Exact = settings.Exact, Bins = settings.Bins,
@@ -97,14 +103,24 @@ public static class Evaluator
         var operatingPoint = new OperatingPoint(EvaluatedMethods.Name(primary), settings.TargetKind, settings.TargetValue,
             metricThreshold, profileThreshold, second.Tpr, second.Fpr, second.Flagged);
 
-        string? written = null;
-        if (settings.WriteProfile)
+        var tradeOff = OperatingTradeOff.From(primaryMetrics.Curves, second.Fpr);
+        string? written = null, refused = null;
+        if (settings.WriteProfile && tradeOff.FlagsTooMuch && !settings.ForceProfile)
+        {
+            refused = string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                $"profile.json was not written: its threshold flags {100 * second.Fpr:0.#}% of ordinary pixels, more than {100 * OperatingTradeOff.MaxFlaggedOrdinaryShare:0}%. ") +
+                "Choose a stricter point (--target-fpr, or a lower --target-tpr), or pass --force-profile to write it anyway.";
+            notes.Add(refused);
+        }
+        else if (settings.WriteProfile)
             written = WriteProfile(bundle, primary, profileOptions, profileThreshold, dataset, settings);
 
         var report = new EvaluationReport(bundle.Name, bundle.Model.ModelSha256, bundle.Profile.Version, dataset.Root, dataset.Layout,
             count, settings.Exact ? "exact" : "streaming", rows, operatingPoint, second.Regions, second.Segmentation, written, notes)
         {
             FrameRows = second.Frames,
+            TradeOff = tradeOff,
+            ProfileRefused = refused,
             Curves = metrics.Where(m => m.Pixels.Curves is not null).Select(m => (m.Name, m.Pixels.Curves!)).ToList(),
         };
         EvaluationOutputs.WriteAll(report, settings, outFolder);

@@ -97,10 +97,7 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
             if (sha is not null && calibration?.File == CalibrationFile)
             {
                 // Statistics measured through other weights would standardize with the wrong means: refuse them.
-                var artifact = Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile));
-                if (!string.Equals(artifact.ModelSha256, sha, StringComparison.OrdinalIgnoreCase))
-                    throw new ModelException(ModelErrorCodes.CalibrationModelMismatch,
-                        $"{CalibrationFile} was measured with model SHA-256 {artifact.ModelSha256}, but {SegmentationModel.ModelFileName} is {sha}; calibrate again.");
+                Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile)).EnsureMatches(descriptor, sha, folder);
             }
             return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha };
         }

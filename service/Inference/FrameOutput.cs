@@ -35,13 +35,19 @@ public sealed class FrameOutput
     /// sees the scored maps while they are valid (they are the scorer's buffers).
     /// </summary>
     public FrameReport Write(DecodedFrame frame, string frameId, string folder, ScoringOptions? options = null,
-        Action<FrameScoring>? inspect = null)
+        Action<FrameScoring>? inspect = null, IReadOnlyList<string>? artifacts = null)
     {
-        var used = options ?? _bundle.Scorer.Defaults;
+        var used = options ?? _bundle.Defaults;
+        _bundle.EnsureCanScore(used); // [setup] refuse before any file is written
         var report = _bundle.Scorer.Score(frame, (scored, timings) =>
         {
-            var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, _colors, frame.Image, folder);
-            var r = FrameReport.From(scored, used, _names, frameId, Model) with { Artifacts = artifacts };
+            Directory.CreateDirectory(folder);
+            var written = ArtifactWriter.Write(scored, artifacts ?? ArtifactWriter.All, _colors, frame.Image, folder);
+            var r = FrameReport.From(scored, used, _names, frameId, Model) with
+            {
+                Artifacts = written,
+                Warnings = _bundle.WarningsFor(frame.Width, frame.Height, used),
+            };
             r.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;
             r.TimingsMs["inference"] = timings.Inference.TotalMilliseconds;
             inspect?.Invoke(scored);

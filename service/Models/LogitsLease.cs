@@ -24,6 +24,10 @@ public sealed class LogitsLease : IDisposable
 
     public LogitsView View { get; }
 
+    /// <summary>The runtime's output buffer is ours while the lease lives, so the log is taken in place.</summary>
+    internal void ConvertProbabilitiesToLogs() =>
+        Strayspot.Scoring.Reduction.LogProbabilities.ConvertInPlace(_memory.Memory.Span[..(View.Channels * View.PlaneLength)], View.Channels, View.Height, View.Width);
+
     public void Dispose()
     {
         _outputs?.Dispose();

@@ -32,11 +32,26 @@ public sealed partial record ModelDescriptor
     public static ModelDescriptor Parse(string json, string source = "descriptor")
     {
         ModelDescriptor? d;
-        try { d = JsonSerializer.Deserialize<ModelDescriptor>(json, ReadOptions); }
+        System.Text.Json.Nodes.JsonNode? tree;
+        var documentOptions = new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true };
+        try { tree = System.Text.Json.Nodes.JsonNode.Parse(json, documentOptions: documentOptions); }
         catch (JsonException e)
         {
             throw new ModelException(ModelErrorCodes.DescriptorInvalid,
-                $"{source} is not a valid descriptor: {e.Message}", e);
+                $"{source} is not valid JSON (line {e.LineNumber + 1}, position {e.BytePositionInLine + 1}).", e);
+        }
+        var unknown = DescriptorKeys.Unknown(tree);
+        if (unknown.Count > 0)
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"{source} has {unknown.Count} problem(s):\n  - " + string.Join("\n  - ", unknown));
+        try { d = JsonSerializer.Deserialize<ModelDescriptor>(json, ReadOptions); }
+        catch (JsonException e)
+        {
+            // The runtime's own message names .NET types; say which field and what kind of value it takes.
+            string field = e.Path?.TrimStart('$', '.') is { Length: > 0 } f ? f : "(top level)";
+            string expected = DescriptorKeys.ExpectedKind(e.Path) is { } k ? $" it takes {k}" : "";
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"{source} has 1 problem(s):\n  - {field}: wrong kind of value;{expected} (see models/descriptor.schema.json).", e);
         }
         if (d is null)
             throw new ModelException(ModelErrorCodes.DescriptorInvalid, $"{source} is empty (JSON null).");

@@ -21,4 +21,8 @@ public static class ModelErrorCodes
     public const string FrameCorrupt = "frame-corrupt";
     public const string CalibrationModelMismatch = "calibration-model-mismatch";
     public const string CalibrationInvalid = "calibration-invalid";
+    /// <summary>Same string as the API's code: SML asked for, but the model has no class statistics.</summary>
+    public const string StatisticsMissing = "statistics-missing";
+    /// <summary>A method that needs raw logits asked of a model whose output is probabilities.</summary>
+    public const string MethodNeedsLogits = "method-needs-logits";
 }

@@ -39,13 +39,39 @@ public sealed class SegmentationModel : IDisposable
     public string ModelSha256 { get; }
     public OnnxGraphFacts Facts { get; }
     public int ClassCount => Descriptor.Classes.Count;
+    /// <summary>The output is softmax probabilities: <see cref="Run(Memory{float}, long[], RunOptions?)"/> hands out their clamped logarithms.</summary>
+    public bool OutputsProbabilities => Descriptor.Output.Kind == "probabilities";
+
+    /// <summary>The model folder's name: how results, the API and messages name a model.</summary>
+    public string FolderName => Path.GetFileName(Path.GetDirectoryName(Path.GetFullPath(ModelPath))) ?? Descriptor.Name;
+
+    /// <summary>Refuses a scoring method the model's output cannot support, naming the ones it can.</summary>
+    public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method)
+    {
+        if (OutputsProbabilities && !Strayspot.Scoring.Pipeline.ScoreMethodInputs.WorksOnProbabilities(method))
+            throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
+                $"Model '{FolderName}' outputs probabilities (output.kind), so the {MethodName(method)} method cannot be used: it needs the raw logits " +
+                "that the final softmax discards. Use --method msp or --method entropy, or export the model without its final Softmax and set output.kind to 'logits'.");
+    }
+
+    private static string MethodName(Strayspot.Scoring.Pipeline.ScoreMethod m) =>
+        System.Text.Json.JsonSerializer.Serialize(m).Trim('"');
     public TimeSpan LoadTime { get; private set; }
+
+    /// <summary>Refuses a path that is not a model folder; given the model file itself, names the folder to pass.</summary>
+    public static void EnsureFolder(string folder)
+    {
+        if (File.Exists(folder))
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"'{folder}' is a file; pass the model folder that holds {ModelFileName} and {ModelDescriptor.FileName}: {Path.GetDirectoryName(Path.GetFullPath(folder))}");
+        if (!Directory.Exists(folder))
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+    }
 
     /// <summary>Loads <c>model.onnx</c> with <c>descriptor.json</c> from a model folder.</summary>
     public static SegmentationModel LoadFolder(string folder, ModelRuntimeOptions? options = null)
     {
-        if (!Directory.Exists(folder))
-            throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model folder '{folder}' does not exist.");
+        EnsureFolder(folder);
         string descriptorPath = Path.Combine(folder, ModelDescriptor.FileName);
         if (!File.Exists(descriptorPath))
             throw new ModelException(ModelErrorCodes.DescriptorInvalid, $"Model folder '{folder}' has no {ModelDescriptor.FileName}.");
@@ -197,7 +223,10 @@ public sealed class SegmentationModel : IDisposable
                 throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
                     $"Output '{Descriptor.Output.Tensor}' must be [1,C,h,w] or [C,h,w]; it has shape [{string.Join(", ", outShape)}].");
             CheckClassAxis(outShape);
-            return new LogitsLease(outputs, output, outShape);
+            var lease = new LogitsLease(outputs, output, outShape);
+            if (OutputsProbabilities)
+                lease.ConvertProbabilitiesToLogs();
+            return lease;
         }
         catch
         {

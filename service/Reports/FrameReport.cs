@@ -25,6 +25,8 @@ public sealed record FrameReport
     [JsonPropertyName("regions")] public IReadOnlyList<RegionReport> Regions { get; init; } = [];
     [JsonPropertyName("timingsMs")] public Dictionary<string, double> TimingsMs { get; init; } = new();
     [JsonPropertyName("artifacts")] public Dictionary<string, string>? Artifacts { get; init; }
+    /// <summary>Why this result deserves doubt (see <see cref="ScoringWarnings"/>); empty when nothing was noticed.</summary>
+    [JsonPropertyName("warnings")] public IReadOnlyList<ReportWarning> Warnings { get; init; } = [];
     [JsonPropertyName("notice")] public string Notice { get; init; } = SafetyNotice.Text;
 
     public static FrameReport From(FrameScoring s, ScoringOptions options, IReadOnlyList<string>? classNames, string? frameId = null,

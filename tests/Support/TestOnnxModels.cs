@@ -20,6 +20,11 @@ public sealed class TestSegmentationGraph
     public string InputName { get; init; } = "pixels";
     public string OutputName { get; init; } = "scores";
     public int Opset { get; init; } = 13;
+    /// <summary>Ends the graph in Softmax over the classes (the output is probabilities).</summary>
+    public bool Softmax { get; init; }
+    /// <summary>When set, the graph itself subtracts this mean and divides by <see cref="InsideStd"/> before the convolution (per channel, NCHW).</summary>
+    public float[]? InsideMean { get; init; }
+    public float[]? InsideStd { get; init; }
 
     /// <summary>Weight of class c for input channel k: deterministic and distinct per class.</summary>
     public float Weight(int c, int k) => 0.25f * (c + 1) * (k == 0 ? 1f : k == 1 ? -0.5f : 0.75f) + 0.1f * c * k;
@@ -39,6 +44,14 @@ public sealed class TestSegmentationGraph
             graph.Node.Add(t);
             current = "nchw";
         }
+        if (InsideMean is not null && InsideStd is not null)
+        {
+            graph.Initializer.Add(Constant("norm_mean", InsideMean, [1, 3, 1, 1]));
+            graph.Initializer.Add(Constant("norm_std", InsideStd, [1, 3, 1, 1]));
+            graph.Node.Add(new NodeProto { OpType = "Sub", Name = "centre", Input = { current, "norm_mean" }, Output = { "centred" } });
+            graph.Node.Add(new NodeProto { OpType = "Div", Name = "scale", Input = { "centred", "norm_std" }, Output = { "normalized" } });
+            current = "normalized";
+        }
         var weight = new TensorProto { Name = "conv_w", DataType = (int)TensorProto.Types.DataType.Float, Dims = { Classes, 3, 1, 1 } };
         var bias = new TensorProto { Name = "conv_b", DataType = (int)TensorProto.Types.DataType.Float, Dims = { Classes } };
         for (int c = 0; c < Classes; c++)
@@ -48,14 +61,21 @@ public sealed class TestSegmentationGraph
         }
         graph.Initializer.Add(weight);
         graph.Initializer.Add(bias);
-        string convOut = Stride > 1 ? "conv" : OutputName;
+        string finalLogits = Softmax ? "logits_before_softmax" : OutputName;
+        string convOut = Stride > 1 ? "conv" : finalLogits;
         graph.Node.Add(new NodeProto { OpType = "Conv", Name = "classify", Input = { current, "conv_w", "conv_b" }, Output = { convOut } });
         if (Stride > 1)
         {
-            var pool = new NodeProto { OpType = "AveragePool", Name = "downsample", Input = { convOut }, Output = { OutputName } };
+            var pool = new NodeProto { OpType = "AveragePool", Name = "downsample", Input = { convOut }, Output = { finalLogits } };
             pool.Attribute.Add(new AttributeProto { Name = "kernel_shape", Type = AttributeProto.Types.AttributeType.Ints, Ints = { Stride, Stride } });
             pool.Attribute.Add(new AttributeProto { Name = "strides", Type = AttributeProto.Types.AttributeType.Ints, Ints = { Stride, Stride } });
             graph.Node.Add(pool);
+        }
+        if (Softmax)
+        {
+            var softmax = new NodeProto { OpType = "Softmax", Name = "probabilities", Input = { finalLogits }, Output = { OutputName } };
+            softmax.Attribute.Add(new AttributeProto { Name = "axis", Type = AttributeProto.Types.AttributeType.Int, I = 1 });
+            graph.Node.Add(softmax);
         }
         graph.Output.Add(ValueInfo(OutputName, [Dim(1), Dim(Classes), Dim("out_h"), Dim("out_w")]));
         var model = new ModelProto { IrVersion = 8, ProducerName = "strayspot-tests", ProducerVersion = "1", Graph = graph };
@@ -98,7 +118,7 @@ public sealed class TestSegmentationGraph
                 ? new SizePolicy { Mode = "fixed", Height = fh, Width = fw }
                 : new SizePolicy { Mode = "dynamic", PadMultiple = Math.Max(1, Stride) }),
         },
-        Output = new OutputDescriptor { Tensor = OutputName },
+        Output = new OutputDescriptor { Tensor = OutputName, Kind = Softmax ? "probabilities" : "logits" },
     };
 
     /// <summary>Writes model.onnx and descriptor.json into <paramref name="folder"/>.</summary>
@@ -108,6 +128,14 @@ public sealed class TestSegmentationGraph
         File.WriteAllBytes(Path.Combine(folder, SegmentationModel.ModelFileName), Build().ToByteArray());
         (descriptor ?? Descriptor()).Save(Path.Combine(folder, ModelDescriptor.FileName));
         return folder;
+    }
+
+    private static TensorProto Constant(string name, float[] values, long[] dims)
+    {
+        var t = new TensorProto { Name = name, DataType = (int)TensorProto.Types.DataType.Float };
+        t.Dims.AddRange(dims);
+        t.FloatData.AddRange(values);
+        return t;
     }
 
     private static TensorShapeProto.Types.Dimension Dim(long v) => new() { DimValue = v };

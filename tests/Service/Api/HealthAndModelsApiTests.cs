@@ -57,8 +57,10 @@ public class HealthAndModelsApiTests
         Assert.Equal(2, json.GetArrayLength());
         Assert.Equal("apron-a", json[0].GetProperty("name").GetString());
         Assert.False(json[0].GetProperty("hasStatistics").GetBoolean());
+        Assert.Equal("uncalibrated", json[0].GetProperty("calibration").GetString());
         Assert.Equal("apron-b", json[1].GetProperty("name").GetString());
         Assert.True(json[1].GetProperty("hasStatistics").GetBoolean());
+        Assert.NotEqual("uncalibrated", json[1].GetProperty("calibration").GetString());
         Assert.Equal(4, json[1].GetProperty("classCount").GetInt32());
         Assert.Equal("default", json[1].GetProperty("profileVersion").GetString());
         Assert.Equal("sml", json[1].GetProperty("method").GetString());

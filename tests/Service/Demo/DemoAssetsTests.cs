@@ -38,6 +38,8 @@ public sealed class DemoAssetsTests(DemoFixture fixture)
                 Assert.Equal(a.DescriptorSha256, b.DescriptorSha256);
                 Assert.Equal(a.FrameCount, b.FrameCount);
                 Assert.Equal(a.FallbackClasses, b.FallbackClasses);
+                Assert.Equal(JsonSerializer.Serialize(a.MeasuredWith), JsonSerializer.Serialize(b.MeasuredWith));
+                Assert.NotNull(a.MeasuredWith);
                 Assert.Equal(a.Classes.Select(c => (c.Name, c.Count)), b.Classes.Select(c => (c.Name, c.Count)));
                 for (int i = 0; i < a.Classes.Count; i++)
                 {
