@@ -67,9 +67,10 @@ public sealed class FramePipeline
         var timings = new StageTimings();
         long t0 = Stopwatch.GetTimestamp();
 
-        LogitsValidation.EnsureFinite(logits);
         _maps.EnsureSize(frameWidth, frameHeight, _outputs);
         _reduction.Reduce(logits, frameHeight, frameWidth, _maps);
+        // Non-finite logits are refused before any score comes of them; the frame-sized reduction has checked already.
+        if (!_maps.LogitsCheckedFinite) LogitsValidation.EnsureFinite(logits);
         long t1 = Stopwatch.GetTimestamp();
         timings.Reduction = Stopwatch.GetElapsedTime(t0, t1);
 
@@ -97,7 +98,10 @@ public sealed class FramePipeline
         timings.Total = Stopwatch.GetElapsedTime(t0, t5);
 
         return new FrameScoring(frameWidth, frameHeight, logits.Channels, _maps, _score, _mask, regions,
-            frameScore, flagged, timings) { LogitsHeight = logits.Height, LogitsWidth = logits.Width };
+            frameScore, flagged, timings)
+        {
+            LogitsHeight = logits.Height, LogitsWidth = logits.Width, Method = _options.Method, Threshold = _options.Threshold,
+        };
     }
 
     // One sign convention everywhere: higher means more anomalous.
@@ -157,6 +161,9 @@ public sealed class FrameScoring
     /// <summary>Size of the logits the frame was scored from (after any padding was cut off).</summary>
     public int LogitsHeight { get; init; }
     public int LogitsWidth { get; init; }
+    /// <summary>The method and threshold the frame was scored with, so its pictures can show the scale.</summary>
+    public ScoreMethod Method { get; init; }
+    public float Threshold { get; init; }
     public ReadOnlySpan<ushort> ClassIndex => _maps.ClassIndex;
     public ReadOnlySpan<float> MaxLogit => _maps.MaxLogit;
     public ReadOnlySpan<float> AnomalyScore => _score.AsSpan(0, Width * Height);

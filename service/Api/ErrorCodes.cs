@@ -99,6 +99,11 @@ public static class ErrorCodes
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
         new(ModelErrorCodes.MethodNeedsLogits, 422, "The method needs logits, but the model outputs probabilities"),
+        // Codes raised reading recordings (ModelException.Code; in batches they go into the failed line's error).
+        new(Recordings.RecordingErrorCodes.RecordingFormat, 415, "The file is not a recording this service reads"),
+        new(Recordings.RecordingErrorCodes.RecordingCorrupt, 400, "The recording's data is corrupt"),
+        new(Recordings.RecordingErrorCodes.RecordingTimeout, 504, "Decoding the recording ran past its time limit"),
+        new(Recordings.RecordingErrorCodes.DecoderMissing, 503, "The video decoder (ffmpeg) is not installed"),
         // Codes raised by evaluation (datasets and metrics).
         new(Evaluation.DatasetErrorCodes.Missing, 404, "No such dataset folder"),
         new(Evaluation.DatasetErrorCodes.Empty, 400, "The dataset holds no frame with a mask"),

@@ -47,8 +47,10 @@ public static class BatchArchive
         {
             throw new BatchException(ErrorCodes.ArchiveInvalid, $"The archive cannot be read: {e.Message}");
         }
+        if (fileName is not null && Recordings.VideoRecording.IsVideoFile(fileName))
+            return [BatchRecordings.TakeUpload(archivePath, CheckName(Path.GetFileName(fileName), out _), destination, limits.MaxBytes)];
         throw new BatchException(ErrorCodes.ArchiveInvalid,
-            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive.");
+            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive, nor a video file.");
     }
 
     private static List<string> ExtractZip(string archivePath, string destination, ArchiveLimits limits)
@@ -122,8 +124,7 @@ public static class BatchArchive
     }
 
     private static bool IsFrame(string[] parts) =>
-        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) &&
-        Calibrator.FrameExtensions.Contains(Path.GetExtension(parts[^1]).ToLowerInvariant());
+        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) && BatchRecordings.IsInput(parts[^1]);
 
     private static string WriteEntry(Stream source, string[] parts, string destination, Budget budget)
     {

@@ -77,7 +77,7 @@ public sealed partial class BatchService : IDisposable
         {
             string rel = Path.GetRelativePath(full, file).Replace('\\', '/');
             if (rel.Split('/').Any(p => p.StartsWith('.'))) continue;
-            if (!Calibrator.FrameExtensions.Contains(Path.GetExtension(file).ToLowerInvariant())) continue;
+            if (!BatchRecordings.IsInput(file)) continue;
             string source = folderRel == "." ? rel : folderRel + "/" + rel;
             SafePath.Resolve(DataRoot, source); // a linked file or folder may not lead out of the data folder
             frames.Add(new NewFrame(rel, source));
@@ -86,7 +86,7 @@ public sealed partial class BatchService : IDisposable
                     $"The folder '{folder}' holds more than {_options.MaxFramesPerBatch} frames (Service:Batches:MaxFramesPerBatch); split it.");
         }
         if (frames.Count == 0)
-            throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {string.Join("/", Calibrator.FrameExtensions)} frames.");
+            throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {BatchRecordings.Accepted} frames or recordings.");
         frames.Sort((a, b) => string.CompareOrdinal(a.FrameId, b.FrameId));
         return Submit(id, model, "folder:" + folderRel, callbackUrl, frames);
     }
@@ -101,7 +101,7 @@ public sealed partial class BatchService : IDisposable
         {
             var extracted = BatchArchive.Extract(archivePath, fileName, staging, new ArchiveLimits(_options.MaxArchiveEntries, _options.MaxArchiveBytes));
             if (extracted.Count == 0)
-                throw new BatchException(ErrorCodes.BatchEmpty, $"The archive holds no {string.Join("/", Calibrator.FrameExtensions)} frames.");
+                throw new BatchException(ErrorCodes.BatchEmpty, $"The archive holds no {BatchRecordings.Accepted} frames or recordings.");
             if (extracted.Count > _options.MaxFramesPerBatch)
                 throw new BatchException(ErrorCodes.ValidationFailed,
                     $"The archive holds {extracted.Count} frames; at most {_options.MaxFramesPerBatch} are accepted (Service:Batches:MaxFramesPerBatch).");

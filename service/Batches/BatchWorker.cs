@@ -103,7 +103,8 @@ public sealed class BatchWorker(
                 using (lease)
                 {
                     // Not cancellable on purpose: a frame once started is finished, so shutdown leaves no half frame behind.
-                    await Task.Run(() => ScoreFrame(batch.Id, folder, frame, output), CancellationToken.None);
+                    // A recording is the exception: it can run for long, so it ends with its batch (and is scored afresh on resume).
+                    await Task.Run(() => ScoreFrame(batch.Id, folder, frame, output, cancel.Token), CancellationToken.None);
                 }
                 if (batches.Options.PauseBetweenFrames > TimeSpan.Zero)
                     await Task.Delay(batches.Options.PauseBetweenFrames, cancel.Token);
@@ -121,7 +122,7 @@ public sealed class BatchWorker(
         }
     }
 
-    private void ScoreFrame(string batchId, string folder, FrameRecord frame, FrameOutput output)
+    private void ScoreFrame(string batchId, string folder, FrameRecord frame, FrameOutput output, CancellationToken cancel)
     {
         string name = frame.Seq.ToString("D5", System.Globalization.CultureInfo.InvariantCulture);
         string frames = Path.Combine(folder, BatchService.FramesFolder);
@@ -132,8 +133,16 @@ public sealed class BatchWorker(
             List<ManifestRegion>? regions = null;
             float score;
             int regionCount;
-            using (var decoded = _decoder.DecodeFile(batches.ResolveSource(frame.SourcePath)))
+            string reportFile = FrameOutput.ReportFile;
+            if (Recordings.VideoRecording.IsVideoFile(frame.SourcePath))
             {
+                (score, regions) = BatchRecordings.Score(output.Bundle, batches.ResolveSource(frame.SourcePath), temp, service.Value.MaxPixels, cancel);
+                regionCount = regions.Count;
+                reportFile = Recordings.RecordingRun.TracksFile;
+            }
+            else
+            {
+                using var decoded = _decoder.DecodeFile(batches.ResolveSource(frame.SourcePath));
                 var report = output.Write(decoded, frame.FrameId, temp, inspect: s => regions = Manifest.Regions(s, output.ClassNames));
                 score = report.FrameScore;
                 regionCount = report.Regions.Count;
@@ -141,7 +150,7 @@ public sealed class BatchWorker(
             // A folder left by an interrupted attempt (renamed, not yet marked done) is replaced.
             if (Directory.Exists(final)) Directory.Delete(final, recursive: true);
             Directory.Move(temp, final);
-            string report_ = $"{BatchService.FramesFolder}/{name}/{FrameOutput.ReportFile}";
+            string report_ = $"{BatchService.FramesFolder}/{name}/{reportFile}";
             batches.Store.CompleteFrame(batchId, frame.Seq, new FrameResult(score, regionCount, report_, Manifest.RegionsJson(regions ?? [])));
         }
         catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or FileNotFoundException

@@ -131,7 +131,8 @@ public static class Manifest
             if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
-            foreach (var (key, file) in ArtifactFiles) artifacts[key] = folder + "/" + file;
+            foreach (var (key, file) in BatchRecordings.IsRecordingReport(f.ReportPath!) ? BatchRecordings.ArtifactFiles : ArtifactFiles)
+                artifacts[key] = folder + "/" + file;
             lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
                 batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
         }

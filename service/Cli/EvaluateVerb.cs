@@ -70,9 +70,10 @@ public static class EvaluateVerb
     private static void Print(EvaluationReport r)
     {
         var inv = CultureInfo.InvariantCulture;
-        Console.WriteLine(string.Create(inv, $"  {"method",-24} {"AUROC",7} {"AP",7} {"FPR@TPR",8}"));
+        string fprAt = string.Create(inv, $"FPR at {100 * (r.Methods.Count > 0 ? r.Methods[0].TprTarget : 0.95):0.##}% TPR");
+        Console.WriteLine(string.Create(inv, $"  {"method",-24} {"AUROC",7} {"AP",7} {fprAt,17}   (all in %)"));
         foreach (var m in r.Methods)
-            Console.WriteLine(string.Create(inv, $"  {m.Method,-24} {100 * m.Auroc,7:0.00} {100 * m.AveragePrecision,7:0.00} {100 * m.FprAtTpr,8:0.00}"));
+            Console.WriteLine(string.Create(inv, $"  {m.Method,-24} {100 * m.Auroc,7:0.00} {100 * m.AveragePrecision,7:0.00} {100 * m.FprAtTpr,17:0.00}"));
         var op = r.OperatingPoint;
         Console.WriteLine(string.Create(inv,
             $"recommended threshold for {op.Method} at {op.Target.ToUpperInvariant()} {op.TargetValue}: {op.ProfileThreshold:R} (TPR {100 * op.AchievedTpr:0.00}%, FPR {100 * op.AchievedFpr:0.00}%)"));

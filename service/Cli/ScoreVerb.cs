@@ -19,7 +19,7 @@ public static class ScoreVerb
     public static Command Create()
     {
         var model = new Argument<DirectoryInfo>("model") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
-        var frames = new Argument<string[]>("frames") { Description = "frame files, or folders of .png/.jpg/.jpeg/.webp", Arity = ArgumentArity.OneOrMore };
+        var frames = new Argument<string[]>("frames") { Description = "frame files, folders of .png/.jpg/.jpeg/.webp, or recordings (video files; folders with --sequence)", Arity = ArgumentArity.OneOrMore };
         var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
         var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default: cores)" };
         var artifacts = new Option<string?>("--artifacts")
@@ -28,16 +28,21 @@ public static class ScoreVerb
                           $"(default: {string.Join(",", LeanArtifacts)}; report.json is always written)",
         };
         var scoring = new ScoringOptionsBinding();
-        var command = new Command("score", "Score frames through a model and write reports and PNG artifacts.");
+        var recordings = new RecordingOptionsBinding();
+        var command = new Command("score", "Score frames or recordings through a model and write reports and PNG artifacts (tracks for recordings).");
         command.Arguments.Add(model);
         command.Arguments.Add(frames);
         command.Options.Add(output);
         command.Options.Add(threads);
         command.Options.Add(artifacts);
         scoring.AddTo(command);
+        recordings.AddTo(command);
         command.SetAction(p => CliApp.Guard(() =>
         {
-            var files = ExpandFrames(p.GetValue(frames)!);
+            var (videos, loose) = recordings.Split(p, p.GetValue(frames)!);
+            var recordingOptions = recordings.Options(p);
+            var tracking = recordings.Tracking(p);
+            var files = loose.Count > 0 ? ExpandFrames(loose) : [];
             var runtime = p.GetValue(threads) is { } t ? new ModelRuntimeOptions { IntraOpThreads = t } : null;
             using var bundle = ModelBundle.Load(p.GetValue(model)!.FullName, runtime);
             if (bundle.Warning is not null) Console.Error.WriteLine($"warning: {bundle.Warning}");
@@ -46,6 +51,8 @@ public static class ScoreVerb
             foreach (var w in bundle.WarningsFor(0, 0, options).Where(w => w.Code == ScoringWarnings.ThresholdOutOfRange))
                 Console.Error.WriteLine($"warning [{w.Code}]: {w.Message}");
             string outFolder = p.GetValue(output)!.FullName;
+            if (videos.Count > 0) ScoreRecordings.Run(bundle, videos, recordingOptions, tracking, options, outFolder, Console.Out);
+            if (files.Count == 0) return CliApp.ExitOk;
             var chosen = ParseArtifacts(p.GetValue(artifacts));
             var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(bundle, files, options, outFolder, progress, chosen));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");

@@ -119,21 +119,48 @@ public static class EvaluationOutputs
 
     private static string Quote(string s) => s.IndexOfAny([',', '"', '\n']) < 0 ? s : "\"" + s.Replace("\"", "\"\"") + "\"";
 
+    /// <summary>The low false-positive end of the ROC, where an operating point lives, shown enlarged beside the whole curve.</summary>
+    public const double ZoomedFpr = 0.10;
+
+    /// <summary>
+    /// Two panels: the whole ROC, and the same curves for FPR ≤ 10% only, since a linear axis squeezes every useful
+    /// operating point into the left edge. The TPR target is drawn across both.
+    /// </summary>
     public static byte[] RocPlot(EvaluationReport r)
     {
-        var plot = new Plot();
-        foreach (var (method, curves) in r.Curves)
+        var whole = new Plot();
+        var zoom = new Plot();
+        double target = r.Methods.Count > 0 ? r.Methods[0].TprTarget : 0.95;
+        foreach (var plot in new[] { whole, zoom })
         {
-            var line = plot.Add.ScatterLine(curves.Roc.Select(p => p.Fpr).ToArray(), curves.Roc.Select(p => p.Tpr).ToArray());
-            line.LegendText = Legend(r, method, r.Methods.First(m => m.Method == method).Auroc, "AUROC");
-            line.LineWidth = 2;
+            foreach (var (method, curves) in r.Curves)
+            {
+                var line = plot.Add.ScatterLine(curves.Roc.Select(p => p.Fpr).ToArray(), curves.Roc.Select(p => p.Tpr).ToArray());
+                var m = r.Methods.First(x => x.Method == method);
+                line.LegendText = plot == whole
+                    ? Legend(r, method, m.Auroc, "AUROC")
+                    : $"{method} (FPR {Pct(m.FprAtTpr)}% at TPR {Pct(target).TrimEnd('0').TrimEnd('.')}%)";
+                line.LineWidth = 2;
+            }
+            var guide = plot.Add.HorizontalLine(target);
+            guide.LinePattern = LinePattern.Dashed;
+            guide.LineWidth = 1;
+            guide.Color = Colors.Gray;
+            guide.LegendText = $"TPR {Pct(target).TrimEnd('0').TrimEnd('.')}% (the FPR-at-TPR target)";
+            plot.YLabel("true-positive rate");
+            plot.ShowLegend(Alignment.LowerRight);
         }
-        plot.Title($"ROC, {r.Model} on {Path.GetFileName(r.Dataset)} ({r.Frames} frames)");
-        plot.XLabel("false-positive rate");
-        plot.YLabel("true-positive rate");
-        plot.Axes.SetLimits(0, 1, 0, 1.02);
-        plot.ShowLegend(Alignment.LowerRight);
-        return plot.GetImageBytes(900, 650, ImageFormat.Png);
+        whole.Title($"ROC, {r.Model} on {Path.GetFileName(r.Dataset)} ({r.Frames} frames)");
+        whole.XLabel("false-positive rate");
+        whole.Axes.SetLimits(0, 1, 0, 1.02);
+        zoom.Title($"The same, FPR ≤ {Pct(ZoomedFpr).TrimEnd('0').TrimEnd('.')}% enlarged");
+        zoom.XLabel("false-positive rate (zoomed)");
+        zoom.Axes.SetLimits(0, ZoomedFpr, 0, 1.02);
+        var both = new Multiplot();
+        both.Reset(whole); // a new multiplot starts with an empty plot of its own
+        both.AddPlot(zoom);
+        both.Layout = new ScottPlot.MultiplotLayouts.Columns();
+        return both.Render(1500, 650).GetImageBytes(ImageFormat.Png);
     }
 
     public static byte[] PrecisionRecallPlot(EvaluationReport r)
@@ -150,7 +177,7 @@ public static class EvaluationOutputs
         plot.XLabel("recall (true-positive rate)");
         plot.YLabel("precision");
         plot.Axes.SetLimits(0, 1, 0, 1.02);
-        plot.ShowLegend(Alignment.UpperRight);
+        plot.ShowLegend(Alignment.LowerLeft); // the lower left stays empty: low recall comes with high precision
         return plot.GetImageBytes(900, 650, ImageFormat.Png);
     }
 

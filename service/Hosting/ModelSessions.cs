@@ -45,7 +45,7 @@ public sealed class ModelSessions(ModelCatalog catalog, IOptions<ServiceOptions>
     {
         var runtime = new ModelRuntimeOptions
         {
-            IntraOpThreads = options.Value.IntraOpThreads > 0 ? options.Value.IntraOpThreads : Environment.ProcessorCount,
+            IntraOpThreads = options.Value.IntraOpThreads > 0 ? options.Value.IntraOpThreads : CpuBudget.Current.IntraOpThreads,
             WarmUp = true,
         };
         foreach (var e in catalog.Models.Where(m => m.IsUsable && HasOnnx(m)))

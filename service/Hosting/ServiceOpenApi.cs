@@ -51,8 +51,51 @@ public static class ServiceOpenApi
             o.RoutePrefix = DocsPrefix;
             o.SwaggerEndpoint(DocumentPath, "Strayspot v1");
             o.DocumentTitle = "Strayspot API";
+            o.IndexStream = () => new MemoryStream(System.Text.Encoding.UTF8.GetBytes(DocsPage));
         });
     }
+
+    /// <summary>
+    /// The docs page: our own title bar in place of the explorer's stock one (hidden), the explorer itself, and a
+    /// footer that keeps the explorer library's licence notice with a link to its licence text, served beside it.
+    /// </summary>
+    public const string DocsPage = """
+        <!DOCTYPE html>
+        <html lang="en">
+        <head>
+            <meta charset="UTF-8">
+            <title>Strayspot API</title>
+            <link rel="stylesheet" type="text/css" href="./swagger-ui.css">
+            <link rel="stylesheet" type="text/css" href="./index.css">
+            <link rel="icon" href="data:,">
+            <style>
+                .swagger-ui .topbar { display: none; }
+                .strayspot-bar { display: flex; flex-wrap: wrap; gap: 0.4rem 1.5rem; align-items: baseline; padding: 0.8rem 1.5rem;
+                    background: #1d2329; color: #fff; font-family: system-ui, -apple-system, "Segoe UI", Roboto, sans-serif; }
+                .strayspot-bar h1 { font-size: 1.35rem; margin: 0; }
+                .strayspot-bar span { color: #c9d0d6; }
+                .strayspot-bar a { color: #bcd6f5; }
+                .strayspot-credit { font: 0.8rem system-ui, sans-serif; color: #5b6670; padding: 1rem 1.5rem 2rem; }
+            </style>
+        </head>
+        <body>
+            <header class="strayspot-bar">
+                <h1>Strayspot API</h1>
+                <span>Finds what a segmentation model was never trained on.</span>
+                <a href="/openapi/v1.json">OpenAPI document</a>
+                <a href="/review/">Review page</a>
+            </header>
+            <div id="swagger-ui"></div>
+            <footer class="strayspot-credit">
+                The explorer on this page is Swagger UI, used under the Apache License, Version 2.0
+                (<a href="./LICENSE">licence text</a>).
+            </footer>
+            <script src="./swagger-ui-bundle.js" charset="utf-8"></script>
+            <script src="./swagger-ui-standalone-preset.js" charset="utf-8"></script>
+            <script src="index.js" charset="utf-8"></script>
+        </body>
+        </html>
+        """;
 }
 
 /// <summary>Examples attached to response schemas, registered by the API areas that own the types.</summary>

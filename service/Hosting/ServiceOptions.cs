@@ -30,7 +30,7 @@ public sealed class ServiceOptions
     public TimeSpan RequestTimeout { get; set; } = TimeSpan.FromSeconds(30);
     /// <summary>Accepted API keys, stored as SHA-256 hashes; required when the service listens beyond loopback.</summary>
     public List<ApiKeyOptions> ApiKeys { get; set; } = new();
-    /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = one per core.</summary>
+    /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = from the container's CPU quota (<see cref="CpuBudget"/>).</summary>
     public int IntraOpThreads { get; set; }
     /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
     public double DriftHalfLifeFrames { get; set; } = 500;

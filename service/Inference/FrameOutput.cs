@@ -28,6 +28,7 @@ public sealed class FrameOutput
     }
 
     public ModelReport Model { get; }
+    public ModelBundle Bundle => _bundle;
     public IReadOnlyList<string> ClassNames => _names;
 
     /// <summary>

@@ -30,14 +30,12 @@ public static class ArtifactRenderer
         return Image.LoadPixelData<L8>(pixels, width, height);
     }
 
-    /// <summary>Anomaly score on the heat scale, <paramref name="low"/> → first colour, <paramref name="high"/> → last.</summary>
-    public static Image<Rgb24> HeatMap(ReadOnlySpan<float> score, int width, int height, float low, float high)
+    /// <summary>Anomaly score in heat colours on <paramref name="scale"/>; the same size as the frame, without a legend.</summary>
+    public static Image<Rgb24> HeatMap(ReadOnlySpan<float> score, int width, int height, HeatScale scale)
     {
         var pixels = new Rgb24[width * height];
         var table = ColorScales.HeatTable;
-        float scale = high > low ? 255f / (high - low) : 0f;
-        for (int i = 0; i < pixels.Length; i++)
-            pixels[i] = table[Math.Clamp((int)((score[i] - low) * scale), 0, 255)];
+        for (int i = 0; i < pixels.Length; i++) pixels[i] = table[scale.IndexOf(score[i])];
         return Image.LoadPixelData<Rgb24>(pixels, width, height);
     }
 
@@ -60,37 +58,6 @@ public static class ArtifactRenderer
         for (int i = 0; i < pixels.Length; i++)
             pixels[i] = new L16((ushort)Math.Clamp((int)MathF.Round((score[i] - offset) * inv), 0, 65535));
         return Image.LoadPixelData<L16>(pixels, width, height);
-    }
-
-    /// <summary>The frame, with heat colours blended in where the mask is set and the mask's outline drawn.</summary>
-    public static Image<Rgb24> Overlay(Image<Rgb24> frame, ReadOnlySpan<float> score, ReadOnlySpan<byte> mask,
-        float low, float high, float opacity = 0.55f)
-    {
-        int width = frame.Width, height = frame.Height;
-        var pixels = new Rgb24[width * height];
-        frame.CopyPixelDataTo(pixels);
-        var table = ColorScales.HeatTable;
-        float scale = high > low ? 255f / (high - low) : 0f;
-        var outline = new Rgb24(255, 255, 255);
-        for (int y = 0; y < height; y++)
-        {
-            var row = pixels.AsSpan(y * width, width);
-            int o = y * width;
-            for (int x = 0; x < width; x++)
-            {
-                if (mask[o + x] == 0) continue;
-                bool edge = x == 0 || y == 0 || x == width - 1 || y == height - 1
-                    || mask[o + x - 1] == 0 || mask[o + x + 1] == 0 || mask[o + x - width] == 0 || mask[o + x + width] == 0;
-                if (edge) { row[x] = outline; continue; }
-                var heat = table[Math.Clamp((int)((score[o + x] - low) * scale), 0, 255)];
-                var p = row[x];
-                row[x] = new Rgb24(
-                    (byte)(p.R + (heat.R - p.R) * opacity),
-                    (byte)(p.G + (heat.G - p.G) * opacity),
-                    (byte)(p.B + (heat.B - p.B) * opacity));
-            }
-        }
-        return Image.LoadPixelData<Rgb24>(pixels, width, height);
     }
 
     public static void SavePng(Image image, string path) => image.Save(path, Encoder);

@@ -27,10 +27,10 @@ public static class ArtifactWriter
     /// The overlay needs the original <paramref name="frame"/> and is skipped without it.
     /// </summary>
     public static Dictionary<string, string> Write(FrameScoring s, IEnumerable<string> artifacts, IReadOnlyList<Rgb24> classColors,
-        Image<Rgb24>? frame, string folder)
+        Image<Rgb24>? frame, string folder, ArtifactOptions? options = null)
     {
         var written = new Dictionary<string, string>(StringComparer.Ordinal);
-        var (low, high) = HeatRange(s);
+        var scale = HeatScale.For(s, (options ?? ArtifactOptions.Default).HeatScale);
         foreach (string name in artifacts)
         {
             if (!Files.TryGetValue(name, out string? file)) throw new ArgumentException($"Unknown artifact '{name}'.", nameof(artifacts));
@@ -44,11 +44,11 @@ public static class ArtifactWriter
                     using (var img = ArtifactRenderer.Mask(s.Mask, s.Width, s.Height)) Save(img, path);
                     break;
                 case "heat":
-                    using (var img = ArtifactRenderer.HeatMap(s.AnomalyScore, s.Width, s.Height, low, high)) Save(img, path);
+                    using (var img = ArtifactRenderer.HeatMap(s.AnomalyScore, s.Width, s.Height, scale)) Save(img, path);
                     break;
                 case "overlay":
                     if (frame is null) continue;
-                    using (var img = ArtifactRenderer.Overlay(frame, s.AnomalyScore, s.Mask, low, high)) Save(img, path);
+                    using (var img = OverlayRenderer.Render(frame, s.AnomalyScore, s.Mask, s.Regions.Regions, scale)) Save(img, path);
                     break;
                 case "score16":
                     // Its scale is the report's scoreRange: value v stands for min + v·(max − min)/65535.
@@ -68,13 +68,14 @@ public static class ArtifactWriter
     public static IReadOnlyList<Rgb24> ColorsOf(ModelDescriptor descriptor) =>
         ColorScales.ClassColors(descriptor.Classes.Count, descriptor.Classes.Select(c => c.Color).ToList());
 
-    /// <summary>The heat scale spans the frame's own score range.</summary>
-    public static (float Low, float High) HeatRange(FrameScoring s)
-    {
-        float lo = System.Numerics.Tensors.TensorPrimitives.Min(s.AnomalyScore);
-        float hi = System.Numerics.Tensors.TensorPrimitives.Max(s.AnomalyScore);
-        return hi > lo ? (lo, hi) : (lo, lo + 1);
-    }
-
     private static void Save(Image image, string path) => AtomicFile.Write(path, stream => ArtifactRenderer.SavePng(image, stream));
+}
+
+/// <summary>Choices about how artifacts look; the defaults suit most uses.</summary>
+public sealed record ArtifactOptions
+{
+    public static readonly ArtifactOptions Default = new();
+
+    /// <summary>Heat colours on the fixed scale anchored at the threshold (default) or stretched to each frame's range.</summary>
+    public HeatScaleMode HeatScale { get; init; } = HeatScaleMode.Fixed;
 }

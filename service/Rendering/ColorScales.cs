@@ -22,7 +22,11 @@ public static class ColorScales
         return colors;
     }
 
-    /// <summary>The heat scale as a 256-entry table: dark blue-violet (low) through magenta to pale yellow (high).</summary>
+    /// <summary>
+    /// The heat scale as a 256-entry table: dark pine green (low) through teal and azure to violet and a pale
+    /// orchid (high). OKLab lightness rises linearly (0.20 → 0.95) while the hue turns from 150° to 330°, so
+    /// steps read in order by lightness alone, also for viewers who do not tell some hues apart.
+    /// </summary>
     public static Rgb24[] HeatTable { get; } = BuildHeatTable();
 
     private static Rgb24[] BuildHeatTable()
@@ -31,12 +35,24 @@ public static class ColorScales
         for (int i = 0; i < 256; i++)
         {
             double t = i / 255.0;
-            double lightness = 0.22 + 0.72 * t;
-            double chroma = 0.09 + 0.08 * Math.Sin(Math.PI * t);
-            double hue = (285.0 + 170.0 * t) % 360.0; // violet → magenta → red → yellow
+            double lightness = 0.20 + 0.75 * t;
+            double chroma = 0.05 + 0.11 * Math.Sin(Math.PI * Math.Min(1.0, t * 1.1));
+            double hue = 150.0 + 180.0 * t; // green → teal → azure → violet → orchid
             table[i] = FromOklch(lightness, chroma, hue);
         }
         return table;
+    }
+
+    /// <summary>A few evenly spaced colours of the heat scale as "#rrggbb", low first (for gradients on pages).</summary>
+    public static string[] HeatStops(int count)
+    {
+        var stops = new string[count];
+        for (int i = 0; i < count; i++)
+        {
+            var c = HeatTable[(int)Math.Round(i * 255.0 / (count - 1))];
+            stops[i] = $"#{c.R:x2}{c.G:x2}{c.B:x2}";
+        }
+        return stops;
     }
 
     public static Rgb24 FromOklch(double l, double c, double hueDegrees)

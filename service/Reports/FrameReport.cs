@@ -20,6 +20,8 @@ public sealed record FrameReport
     [JsonPropertyName("frameScore")] public float FrameScore { get; init; }
     /// <summary>Lowest and highest anomaly score in the frame; also the scale of the 16-bit score PNG.</summary>
     [JsonPropertyName("scoreRange")] public ScoreRange? ScoreRange { get; init; }
+    /// <summary>The scores the heat map's colours span (the overlay's legend shows the same).</summary>
+    [JsonPropertyName("heatScale")] public Rendering.HeatScale? HeatScale { get; init; }
     [JsonPropertyName("flaggedPixels")] public long FlaggedPixels { get; init; }
     [JsonPropertyName("anomalousShare")] public double AnomalousShare { get; init; }
     [JsonPropertyName("regions")] public IReadOnlyList<RegionReport> Regions { get; init; } = [];
@@ -46,6 +48,7 @@ public sealed record FrameReport
             Threshold = options.Threshold,
             FrameScore = s.FrameScore,
             ScoreRange = new ScoreRange(System.Numerics.Tensors.TensorPrimitives.Min(s.AnomalyScore), System.Numerics.Tensors.TensorPrimitives.Max(s.AnomalyScore)),
+            HeatScale = Rendering.HeatScale.Fixed(options.Method, options.Threshold),
             FlaggedPixels = s.FlaggedPixels,
             AnomalousShare = s.AnomalousShare,
             Regions = regions,

@@ -67,7 +67,8 @@ public sealed record ReviewFrame(
     [property: JsonPropertyName("height")] int Height,
     [property: JsonPropertyName("regions")] IReadOnlyList<ManifestRegion> Regions,
     [property: JsonPropertyName("decision")] Decision? Decision,
-    [property: JsonPropertyName("files")] IReadOnlyDictionary<string, string> Files);
+    [property: JsonPropertyName("files")] IReadOnlyDictionary<string, string> Files,
+    [property: JsonPropertyName("heatScale")] HeatScale? HeatScale = null);
 
 /// <summary>Reviewing a batch: its overview, its frames one by one, and the decisions on them.</summary>
 public sealed class BatchReview(BatchService batches, ModelCatalog catalog, EvaluationJobs evaluations)
@@ -136,7 +137,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var (width, height) = report is null ? MaskSize(batch, frame) : (report.Frame.Width, report.Frame.Height);
         var files = FrameFiles.ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
         return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, report?.Threshold, report?.ScoreRange,
-            width, height, regions, frameDecision, files);
+            width, height, regions, frameDecision, files, report?.HeatScale);
     }
 
     /// <summary>The file behind one of <see cref="FrameFiles"/>: its path and content type.</summary>

@@ -11,10 +11,15 @@ public sealed record VerdictCounts(
     public int Total => LabelIt + FalseAlarm + Unsure;
 }
 
+/// <summary>
+/// How far a kind of target is reviewed. For frames, <see cref="InProgress"/> counts those with some regions decided
+/// but neither all of them nor the whole frame; it is left out for regions.
+/// </summary>
 public sealed record TargetCounts(
     [property: JsonPropertyName("total")] int Total,
     [property: JsonPropertyName("reviewed")] int Reviewed,
-    [property: JsonPropertyName("verdicts")] VerdictCounts Verdicts);
+    [property: JsonPropertyName("verdicts")] VerdictCounts Verdicts,
+    [property: JsonPropertyName("inProgress"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] int? InProgress = null);
 
 /// <summary>
 /// Reviewed regions standing on one class. <see cref="FalseAlarmRate"/> is false alarms over reviewed regions;
@@ -35,7 +40,8 @@ public sealed record ReviewCounts(
     [property: JsonPropertyName("byClassBeneath")] IReadOnlyList<ClassTally> ByClassBeneath);
 
 /// <summary>
-/// Counts a batch's decisions. A frame counts as reviewed when it or any of its regions has a decision. A region
+/// Counts a batch's decisions. A frame counts as reviewed when the whole frame has a verdict or every one of its
+/// regions has one (a frame without regions needs a frame verdict); with only some regions decided it is in progress. A region
 /// without a decision of its own takes its frame's verdict, so marking a whole frame a false alarm counts each of
 /// its regions as one.
 /// </summary>
@@ -46,12 +52,7 @@ public static class ReviewTally
     public static ReviewCounts Count(IReadOnlyList<FrameSummary> frames, IReadOnlyList<RegionBrief> regions, IReadOnlyList<Decision> decisions)
     {
         var byTarget = new Dictionary<(int Seq, int? Region), string>();
-        var framesWithAny = new HashSet<int>();
-        foreach (var d in decisions)
-        {
-            byTarget[(d.Seq, d.Region)] = d.Verdict;
-            framesWithAny.Add(d.Seq);
-        }
+        foreach (var d in decisions) byTarget[(d.Seq, d.Region)] = d.Verdict;
         int frameTotal = 0, frameLabel = 0, frameFalse = 0, frameUnsure = 0;
         int regionTotal = 0, regionLabel = 0, regionFalse = 0, regionUnsure = 0;
         var classes = new Dictionary<string, Tally>(StringComparer.Ordinal);
@@ -73,15 +74,23 @@ public static class ReviewTally
             if (!classes.TryGetValue(r.ClassBeneath, out var t)) classes[r.ClassBeneath] = t = new Tally();
             t.Add(verdict, r.MaxScore);
         }
-        int framesReviewed = 0;
+        var regionsDecided = new Dictionary<int, int>();
+        foreach (var r in regions)
+            if (byTarget.ContainsKey((r.Seq, r.Region))) regionsDecided[r.Seq] = regionsDecided.GetValueOrDefault(r.Seq) + 1;
+        int framesReviewed = 0, framesInProgress = 0;
         foreach (var f in frames)
-            if (f.State == FrameStates.Done && framesWithAny.Contains(f.Seq)) framesReviewed++;
+        {
+            if (f.State != FrameStates.Done) continue;
+            int decided = regionsDecided.GetValueOrDefault(f.Seq), count = f.RegionCount ?? 0;
+            if (frameVerdicts[f.Seq] is not null || (count > 0 && decided >= count)) framesReviewed++;
+            else if (decided > 0) framesInProgress++;
+        }
         var byClass = classes
             .Select(kv => kv.Value.ToTally(kv.Key))
             .OrderByDescending(c => c.Reviewed).ThenByDescending(c => c.Regions).ThenBy(c => c.ClassBeneath, StringComparer.Ordinal)
             .ToList();
         return new ReviewCounts(
-            new TargetCounts(frameTotal, framesReviewed, new VerdictCounts(frameLabel, frameFalse, frameUnsure)),
+            new TargetCounts(frameTotal, framesReviewed, new VerdictCounts(frameLabel, frameFalse, frameUnsure), framesInProgress),
             new TargetCounts(regionTotal, regionLabel + regionFalse + regionUnsure, new VerdictCounts(regionLabel, regionFalse, regionUnsure)),
             byClass);
     }

@@ -193,7 +193,7 @@ function renderProvenance(o) {
 }
 
 function renderLegend(classes) {
-  const list = $('class-legend');
+  const list = $('class-legend');  // compact chips under the frame, visible without scrolling
   list.replaceChildren();
   for (const c of classes || []) {
     const sw = el('span', { class: 'swatch' });
@@ -205,7 +205,7 @@ function renderLegend(classes) {
 function renderSummary(o) {
   const c = o.counts;
   $('summary-counts').textContent =
-    c.frames.reviewed + ' of ' + c.frames.total + ' frames reviewed; ' +
+    c.frames.reviewed + ' of ' + c.frames.total + ' frames reviewed' + (c.frames.inProgress ? ' (' + c.frames.inProgress + ' more in progress)' : '') + '; ' +
     c.regions.reviewed + ' of ' + c.regions.total + ' regions decided: ' +
     c.regions.verdicts.labelIt + ' label it, ' + c.regions.verdicts.falseAlarm + ' false alarm, ' + c.regions.verdicts.unsure + ' unsure.';
   const body = $('class-table').tBodies[0];
@@ -238,13 +238,17 @@ function renderFrameList() {
   const count = Math.min(state.frames.length, state.shown);
   for (let i = 0; i < count; i++) {
     const f = state.frames[i];
+    const bar = el('span', {});
+    bar.style.width = (isReviewed(f) ? 100 : f.regionCount ? Math.round(100 * f.regionsDecided / f.regionCount) : 0) + '%';
     const li = el('li', { 'data-seq': String(f.seq), title: f.frameId }, [
       el('span', { class: 'name', text: f.frameId }),
       el('span', { class: 'score', text: fmtScore(f.frameScore) }),
-      el('span', { class: 'meta', text: f.regionCount + (f.regionCount === 1 ? ' region' : ' regions') +
-        (f.verdict ? ' · frame: ' + VERDICT_TEXT[f.verdict] : '') + (f.regionsDecided ? ' · ' + f.regionsDecided + ' decided' : '') }),
+      el('span', { class: 'meta', text: (f.regionCount ? f.regionsDecided + '/' + f.regionCount + ' regions decided' : 'no regions') +
+        (f.verdict ? ' · frame: ' + VERDICT_TEXT[f.verdict] : '') }),
+      el('span', { class: 'progress', 'aria-hidden': 'true' }, [bar]),
     ]);
-    if (f.verdict || f.regionsDecided) li.classList.add('reviewed');
+    if (isReviewed(f)) li.classList.add('reviewed');
+    else if (f.regionsDecided > 0) li.classList.add('partial');
     if (!state.dropped && i === state.index) li.classList.add('current');
     li.addEventListener('click', () => openFrame(i));
     list.append(li);
@@ -255,6 +259,15 @@ function renderFrameList() {
     list.append(el('li', { class: 'more' }, [more]));
   }
   $('frame-count').textContent = state.batchId ? state.frames.length + ' scored frames, highest score first' : '';
+}
+
+// A frame is reviewed when the whole frame has a verdict or every one of its regions has one; with some decided it is in progress.
+function isReviewed(item) {
+  return !!item.verdict || (item.regionCount > 0 && item.regionsDecided >= item.regionCount);
+}
+
+function needsReview(item) {
+  return !isReviewed(item) && item.regionCount > 0;
 }
 
 // ---- One frame
@@ -270,7 +283,7 @@ function clearFrame(message) {
   renderDecision();
 }
 
-async function openFrame(i) {
+async function openFrame(i, firstUndecided) {
   if (i < 0 || i >= state.frames.length) return;
   const token = ++state.loadToken;
   state.index = i;
@@ -289,6 +302,10 @@ async function openFrame(i) {
   const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), objectUrl(frame.files.heat), objectUrl(frame.files.mask)]);
   if (token !== state.loadToken) return;
   showFrame(frame, source, heat, mask);
+  if (firstUndecided) {
+    const r = state.frame.order.find((x) => !x.decision);
+    if (r) selectRegion(r.id);
+  }
   history.replaceState(null, '', '#batch=' + encodeURIComponent(state.batchId) + '&seq=' + frame.seq);
   renderFrameList();
   const current = $('frame-list').querySelector('li.current');
@@ -297,6 +314,8 @@ async function openFrame(i) {
 }
 
 function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
+  // The work order: highest score first, so the likeliest finds come up first; ids stay as in the report.
+  frame.order = frame.regions.slice().sort((a, b) => (b.maxScore - a.maxScore) || (a.id - b.id));
   state.frame = frame;
   state.region = null;
   const w = frame.width, h = frame.height;
@@ -319,12 +338,30 @@ function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
     ' · frame score ' + fmtScore(frame.frameScore) + ' · threshold ' + fmtScore(frame.threshold) + ' · ' + frame.regions.length +
     (frame.regions.length === 1 ? ' region' : ' regions');
   $('frame-title').textContent = title;
-  $('heat-scale').textContent = frame.scoreRange
-    ? 'Heat map: dark = ' + fmtScore(frame.scoreRange.min) + ', bright = ' + fmtScore(frame.scoreRange.max) + ' (anomaly score, this frame\'s range).'
-    : '';
+  renderHeatLegend(frame);
   renderBoxes();
   renderRegionTable();
   renderDecision();
+}
+
+// The colour bar under the frame: its score range and where the threshold sits on it.
+function renderHeatLegend(frame) {
+  const hs = frame.heatScale || (frame.scoreRange && frame.threshold !== null && frame.threshold !== undefined
+    ? { low: frame.scoreRange.min, high: frame.scoreRange.max, threshold: frame.threshold, mode: 'frame' } : null);
+  const legend = $('heat-legend');
+  legend.hidden = !hs;
+  if (!hs) return;
+  const at = Math.min(1, Math.max(0, (hs.threshold - hs.low) / ((hs.high - hs.low) || 1)));
+  $('heat-marker').style.left = (100 * at).toFixed(1) + '%';
+  $('heat-threshold').style.left = (100 * at).toFixed(1) + '%';
+  $('heat-low').textContent = fmtScore(hs.low);
+  $('heat-high').textContent = fmtScore(hs.high);
+  $('heat-threshold').textContent = 'threshold ' + fmtScore(hs.threshold);
+  legend.dataset.threshold = String(hs.threshold);
+  legend.dataset.mode = hs.mode;
+  $('heat-scale').textContent = hs.mode === 'fixed'
+    ? 'Fixed scale, the same in every frame; flagged = right of the marker.'
+    : 'This frame\'s own range: colours do not compare across frames.';
 }
 
 // The mask's edge pixels, drawn once per frame into a transparent image laid over the frame.
@@ -342,12 +379,16 @@ function drawOutline(maskUrl, w, h, frame) {
     const d = out.data;
     const on = (x, y) => x >= 0 && y >= 0 && x < w && y < h && src[(y * w + x) * 4] > 127;
     let edges = 0;
+    // Light on the mask's border, dark just outside it: a double line that reads on pale and dark ground alike.
     for (let y = 0; y < h; y++) {
       for (let x = 0; x < w; x++) {
-        if (!on(x, y) || (on(x - 1, y) && on(x + 1, y) && on(x, y - 1) && on(x, y + 1))) continue;
+        const inside = on(x, y);
+        const border = on(x - 1, y) !== inside || on(x + 1, y) !== inside || on(x, y - 1) !== inside || on(x, y + 1) !== inside;
+        if (!border) continue;
         const o = (y * w + x) * 4;
-        d[o] = 255; d[o + 1] = 255; d[o + 2] = 255; d[o + 3] = 255;
-        edges++;
+        const v = inside ? 255 : 16;
+        d[o] = v; d[o + 1] = v; d[o + 2] = v + (inside ? 0 : 4); d[o + 3] = 255;
+        if (inside) edges++;
       }
     }
     ctx.putImageData(out, 0, 0);
@@ -371,19 +412,71 @@ function renderBoxes() {
   if (!state.frame) return;
   // Numbers keep one size on screen whatever the zoom: sized from the part of the frame in view.
   const viewBox = $('stage').viewBox.baseVal;
-  const size = Math.max(4, Math.min(viewBox.width, viewBox.height) / 22);
-  for (const r of state.frame.regions) {
+  const size = Math.max(4, Math.min(viewBox.width, viewBox.height) / 26);
+  const frame = state.frame;
+  const halos = [], boxes = [], leaders = [], tags = [];
+  for (const r of frame.regions) {
     const verdict = r.decision ? r.decision.verdict : null;
-    const rect = svg('rect', {
-      x: r.box.x, y: r.box.y, width: r.box.width, height: r.box.height,
+    const at = { x: r.box.x - 1, y: r.box.y - 1, width: r.box.width + 2, height: r.box.height + 2 };
+    halos.push(svg('rect', Object.assign({ class: 'box-halo' }, at)));
+    const rect = svg('rect', Object.assign({
       class: 'box' + (verdict ? ' ' + verdict : '') + (state.region === r.id ? ' selected' : ''),
       'data-region': r.id,
-    });
-    const tag = svg('text', { x: r.box.x + size / 6, y: Math.max(viewBox.y + size, r.box.y - size / 6), class: 'tag', 'font-size': size, 'data-region': r.id });
-    tag.textContent = String(r.id);
-    for (const e of [rect, tag]) e.addEventListener('click', (ev) => { ev.stopPropagation(); selectRegion(r.id); });
-    g.append(rect, tag);
+    }, at));
+    rect.addEventListener('click', (ev) => { ev.stopPropagation(); selectRegion(r.id); });
+    boxes.push(rect);
   }
+  for (const t of placeTags(frame, size)) {
+    if (t.leader) {
+      const line = { x1: t.x + t.w / 2, y1: t.y + t.h / 2, x2: t.leader.x, y2: t.leader.y };
+      leaders.push(svg('line', Object.assign({ class: 'leader-halo' }, line)), svg('line', Object.assign({ class: 'leader' }, line)));
+    }
+    const bg = svg('rect', { x: t.x, y: t.y, width: t.w, height: t.h, rx: size / 6, class: 'tag-bg' + (state.region === t.id ? ' selected' : ''), 'data-region': t.id });
+    const text = svg('text', { x: t.x + t.w / 2, y: t.y + t.h * 0.78, 'text-anchor': 'middle', class: 'tag', 'font-size': size, 'data-region': t.id });
+    text.textContent = String(t.id);
+    for (const e of [bg, text]) e.addEventListener('click', (ev) => { ev.stopPropagation(); selectRegion(t.id); });
+    tags.push(bg, text);
+  }
+  g.append(...halos, ...boxes, ...leaders, ...tags);
+}
+
+// Region numbers that never overlap: each tag tries the spots hugging its box, then rings further out with a
+// leader line; higher-scoring regions choose first. The same rule as the overlay PNG's numbers.
+function placeTags(frame, size) {
+  const viewBox = $('stage').viewBox.baseVal;
+  const minX = viewBox.x, minY = viewBox.y, maxX = viewBox.x + viewBox.width, maxY = viewBox.y + viewBox.height;
+  const placed = [];
+  const pad = size * 0.15;
+  const collides = (x, y, w, h) => placed.some((p) => x < p.x + p.w + pad && p.x < x + w + pad && y < p.y + p.h + pad && p.y < y + h + pad);
+  const covers = (x, y, w, h) => frame.regions.filter((r) => x < r.box.x + r.box.width + 1 && r.box.x - 1 < x + w && y < r.box.y + r.box.height + 1 && r.box.y - 1 < y + h).length;
+  for (const r of frame.order) {
+    // Zoomed in, only the regions in view get a number.
+    if (r.box.x + r.box.width < minX || r.box.x > maxX || r.box.y + r.box.height < minY || r.box.y > maxY) continue;
+    const w = String(r.id).length * size * 0.62 + size * 0.5, h = size * 1.2;
+    const b = { l: r.box.x - 1, t: r.box.y - 1, r: r.box.x + r.box.width + 1, b: r.box.y + r.box.height + 1 };
+    const spots = [
+      [b.l, b.t - h, true], [b.r - w, b.t - h, true], [b.l, b.b, true], [b.r - w, b.b, true],
+      [b.r, b.t, true], [b.l - w, b.t, true], [b.r, b.b - h, true], [b.l - w, b.b - h, true],
+    ];
+    const cx = (b.l + b.r) / 2, cy = (b.t + b.b) / 2;
+    for (let ring = 1; ring <= 8; ring++) {
+      const dx = (b.r - b.l) / 2 + ring * (w + pad * 2), dy = (b.b - b.t) / 2 + ring * (h + pad * 2);
+      for (const [sx, sy] of [[0, -1], [1, -1], [1, 0], [1, 1], [0, 1], [-1, 1], [-1, 0], [-1, -1]]) {
+        spots.push([Math.min(Math.max(cx + sx * dx - w / 2, minX), maxX - w), Math.min(Math.max(cy + sy * dy - h / 2, minY), maxY - h), false]);
+      }
+    }
+    let best = null, bestCost = Infinity;
+    for (const [x, y, near] of spots) {
+      if (x < minX || y < minY || x + w > maxX || y + h > maxY || collides(x, y, w, h)) continue;
+      const cost = covers(x, y, w, h) * 4 + (near ? 0 : 1);
+      if (cost < bestCost) { bestCost = cost; best = { x, y, near }; if (cost === 0) break; }
+    }
+    if (!best) best = { x: Math.min(Math.max(b.l, minX), maxX - w), y: Math.min(Math.max(b.t, minY), maxY - h), near: true };
+    const t = { id: r.id, x: best.x, y: best.y, w, h, leader: null };
+    if (!best.near) t.leader = { x: Math.min(Math.max(t.x + w / 2, b.l), b.r), y: Math.min(Math.max(t.y + h / 2, b.t), b.b) };
+    placed.push(t);
+  }
+  return placed;
 }
 
 function classColor(name) {
@@ -396,7 +489,7 @@ function renderRegionTable() {
   const body = $('region-table').tBodies[0];
   body.replaceChildren();
   if (!state.frame) return;
-  for (const r of state.frame.regions) {
+  for (const r of state.frame.order) {
     const cls = el('td', {});
     const color = classColor(r.classBeneath);
     if (color) {
@@ -417,6 +510,19 @@ function renderRegionTable() {
     tr.addEventListener('click', () => selectRegion(r.id));
     body.append(tr);
   }
+  renderProgress();
+}
+
+function renderProgress() {
+  const f = state.frame;
+  const p = $('frame-progress');
+  if (!f || state.dropped) { p.textContent = ''; return; }
+  const decided = f.regions.filter((r) => r.decision).length;
+  p.textContent = f.decision ? 'This frame is reviewed (whole-frame verdict); ' + decided + ' of ' + f.regions.length + ' regions decided on their own.'
+    : f.regions.length === 0 ? 'No regions: decide on the whole frame.'
+    : decided === f.regions.length ? 'This frame is reviewed: all ' + decided + ' regions decided.'
+    : decided + ' of ' + f.regions.length + ' regions decided in this frame.';
+  p.dataset.decided = String(decided);
 }
 
 function currentTarget() {
@@ -482,13 +588,42 @@ function zoomTo(region) {
 }
 
 function stepRegion(delta) {
-  const regions = state.frame ? state.frame.regions : [];
+  const regions = state.frame ? state.frame.order : [];
   if (regions.length === 0) return;
   const at = state.region === null ? -1 : regions.findIndex((r) => r.id === state.region);
   let next = at + delta;
   if (at === -1 && delta < 0) next = regions.length - 1;
   if (next < 0 || next >= regions.length) { selectRegion(null); return; }
   selectRegion(regions[next].id);
+}
+
+// ---- The work queue: the next undecided region of this frame, then the next frame that still needs review.
+
+function nextUndecided(saved) {
+  const f = state.frame;
+  if (!f || state.dropped) return;
+  const order = f.order;
+  const at = state.region === null ? -1 : order.findIndex((r) => r.id === state.region);
+  for (let k = 1; k <= order.length; k++) {
+    const r = order[(at + k + order.length) % order.length];
+    if (!r.decision && !f.decision) { selectRegion(r.id); return; }
+  }
+  nextFrameToReview(saved);
+}
+
+// saved: the message of the verdict that led here, kept in the status line so the move is explained.
+async function nextFrameToReview(saved) {
+  const n = state.frames.length;
+  for (let k = 1; k <= n; k++) {
+    const i = (state.index + k + n) % n;
+    if (i === state.index && !state.dropped) continue;
+    if (needsReview(state.frames[i])) {
+      await openFrame(i, true);
+      setStatus((saved ? saved + ' ' : '') + 'Next frame to review: ' + state.frames[i].frameId + '.');
+      return;
+    }
+  }
+  setStatus((saved ? saved + ' ' : '') + 'Every frame with regions is reviewed.');
 }
 
 // ---- Decisions
@@ -502,7 +637,7 @@ function decisionPath() {
   return state.region === null ? base + '/decision' : base + '/regions/' + state.region + '/decision';
 }
 
-async function decide(verdict) {
+async function decide(verdict, advance) {
   if (!state.frame || state.dropped) return;
   const note = $('note').value.trim();
   const target = state.region;
@@ -515,7 +650,11 @@ async function decide(verdict) {
     });
     state.drafts.delete(state.batchId + '/' + frame.seq + '/' + (target === null ? 'frame' : target));
     applyDecision(frame, target, stored);
-    setStatus((target === null ? 'Frame' : 'Region ' + target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).');
+    const saved = (target === null ? 'Frame' : 'Region ' + target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).';
+    setStatus(saved);
+    if (advance && $('advance-toggle').checked && state.frame === frame && state.region === target) {
+      if (target === null) await nextFrameToReview(saved); else nextUndecided(saved);
+    }
   } catch (e) {
     setStatus('Not saved: ' + e.message, true);
   }
@@ -550,6 +689,7 @@ function applyDecision(frame, target, stored) {
     renderRegionTable();
     renderDecision();
   }
+  renderFrameList();
   refreshOverview(false).catch((e) => setStatus('Summary not refreshed: ' + e.message, true));
 }
 
@@ -582,6 +722,7 @@ async function scoreDropped(file) {
       frameScore: report.frameScore,
       threshold: report.threshold,
       scoreRange: report.scoreRange,
+      heatScale: report.heatScale,
       decision: null,
       regions: report.regions.map((r) => ({
         id: r.id, box: r.box, area: r.area, maxScore: r.maxScore, meanScore: r.meanScore,
@@ -639,7 +780,9 @@ function onKey(e) {
   else if (k === 'z' || k === 'Escape') zoomTo(null);
   else if (k === 'h') { $('heat-toggle').checked = !$('heat-toggle').checked; applyLayers(); }
   else if (k === 'o') { $('outline-toggle').checked = !$('outline-toggle').checked; applyLayers(); }
-  else if (k === '1' || k === '2' || k === '3') decide(VERDICTS[Number(k) - 1]);
+  else if (k === 'u') nextUndecided();
+  else if (k === 'U') nextFrameToReview();
+  else if (k === '1' || k === '2' || k === '3') decide(VERDICTS[Number(k) - 1], true);
   else handled = false;
   if (handled) e.preventDefault();
 }
@@ -690,7 +833,9 @@ function wire() {
   $('outline-toggle').addEventListener('change', applyLayers);
   $('zoom-reset').addEventListener('click', () => zoomTo(null));
   $('stage').addEventListener('click', () => zoomTo(null));
-  for (const b of document.querySelectorAll('.verdicts button[data-verdict]')) b.addEventListener('click', () => decide(b.dataset.verdict));
+  for (const b of document.querySelectorAll('.verdicts button[data-verdict]')) b.addEventListener('click', () => decide(b.dataset.verdict, true));
+  $('next-undecided').addEventListener('click', () => nextUndecided());
+  $('next-frame-todo').addEventListener('click', () => nextFrameToReview());
   $('withdraw').addEventListener('click', withdraw);
   $('save-note').addEventListener('click', () => {
     const t = currentTarget();

@@ -13,7 +13,7 @@ public class ErrorCodeTableTests
     [Fact]
     public void Every_code_the_libraries_raise_has_a_row_with_a_client_or_server_status()
     {
-        foreach (string code in Constants(typeof(ScoringErrorCodes)).Concat(Constants(typeof(ModelErrorCodes))).Concat(Constants(typeof(ErrorCodes))))
+        foreach (string code in Constants(typeof(ScoringErrorCodes)).Concat(Constants(typeof(ModelErrorCodes))).Concat(Constants(typeof(Strayspot.Service.Recordings.RecordingErrorCodes))).Concat(Constants(typeof(ErrorCodes))))
         {
             Assert.True(ErrorCodes.TryGet(code, out var row), $"no row for '{code}'");
             Assert.InRange(row.Status, 400, 599);

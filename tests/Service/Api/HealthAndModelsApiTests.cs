@@ -151,5 +151,13 @@ public class HealthAndModelsApiTests
 
         var docs = await s.Client.GetAsync("/docs/index.html");
         Assert.Equal(HttpStatusCode.OK, docs.StatusCode);
+        // Our own title bar; the explorer's stock bar and logo hidden; its licence notice kept, with the text beside it.
+        string page = await docs.Content.ReadAsStringAsync();
+        Assert.Contains("<h1>Strayspot API</h1>", page);
+        Assert.Contains(".swagger-ui .topbar { display: none; }", page);
+        Assert.Contains("Apache License, Version 2.0", page);
+        var licence = await s.Client.GetAsync("/docs/LICENSE");
+        Assert.Equal(HttpStatusCode.OK, licence.StatusCode);
+        Assert.Contains("Apache License", await licence.Content.ReadAsStringAsync());
     }
 }

@@ -30,6 +30,9 @@ public sealed class EvaluatorTests : IDisposable
             Assert.True(new FileInfo(Path.Combine(output, f)).Length > 0, f);
         Assert.Empty(Directory.GetFiles(output, "*.tmp"));
         Assert.Equal(7, report.Methods.Count);
+        // The ROC comes in two panels side by side: the whole curve and its FPR ≤ 10% end enlarged.
+        var roc = SixLabors.ImageSharp.Image.Identify(Path.Combine(output, "roc.png"));
+        Assert.Equal((1500, 650), (roc.Width, roc.Height));
 
         // Recompute every method's pixel metrics through FrameScorer (the `score` path), one method at a time.
         using var bundle = ModelBundle.Load(model);
@@ -161,6 +164,22 @@ public sealed class EvaluatorTests : IDisposable
         Console.SetError(err);
         try { return (CliApp.Run(args), err.ToString()); }
         finally { Console.SetError(old); }
+    }
+
+    [Fact]
+    public void The_console_table_names_the_tpr_its_fpr_column_is_taken_at()
+    {
+        string model = Model;
+        string data = EvaluationFixtures.WriteFlatDataset(Path.Combine(_dir, "data"), 1);
+        var printed = new StringWriter();
+        var old = Console.Out;
+        Console.SetOut(printed);
+        int exit;
+        try { exit = CliApp.Run(["evaluate", model, data, "--out", Path.Combine(_dir, "out"), "--target-tpr", "0.9"]); }
+        finally { Console.SetOut(old); }
+        Assert.Equal(CliApp.ExitOk, exit);
+        Assert.Contains("FPR at 90% TPR", printed.ToString());
+        Assert.DoesNotContain("FPR@TPR", printed.ToString());
     }
 
     [Fact]

@@ -20,10 +20,10 @@ namespace Strayspot.Tests.Service.Review;
 [Collection(BrowserCollection.Name)]
 public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper output)
 {
-    private const string Batch = "apron-demo";
+    internal const string Batch = "apron-demo";
 
     /// <summary>The service on a real socket, with the demo model and a done batch of the demo frames.</summary>
-    private sealed class LiveService : IAsyncDisposable
+    public sealed class LiveService : IAsyncDisposable
     {
         public required WebApplication App { get; init; }
         public required string Root { get; init; }
@@ -42,7 +42,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         }
     }
 
-    private static async Task<LiveService> StartAsync(string? apiKey = null, TimeSpan? pause = null, bool waitForDone = true)
+    internal static async Task<LiveService> StartAsync(string? apiKey = null, TimeSpan? pause = null, bool waitForDone = true)
     {
         string root = Directory.CreateTempSubdirectory("strayspot-review-").FullName;
         var (_, frames) = BundledDemo.Extract(Path.Combine(root, "models", "demo"), Path.Combine(root, "data", "apron"));
@@ -71,10 +71,19 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         return live;
     }
 
-    private static async Task<JsonElement> OverviewAsync(HttpClient http) =>
+    internal static async Task<JsonElement> OverviewAsync(HttpClient http) =>
         JsonDocument.Parse(await http.GetStringAsync($"/v1/batches/{Batch}/review")).RootElement;
 
-    private static async Task OpenPageAsync(IPage page, LiveService s)
+    /// <summary>A frame's region ids in the page's work order: highest score first, ties by id.</summary>
+    internal static async Task<List<int>> RegionOrderAsync(HttpClient http, int seq)
+    {
+        var frame = JsonDocument.Parse(await http.GetStringAsync($"/v1/batches/{Batch}/frames/{seq}")).RootElement;
+        return frame.GetProperty("regions").EnumerateArray()
+            .OrderByDescending(r => r.GetProperty("maxScore").GetSingle()).ThenBy(r => r.GetProperty("id").GetInt32())
+            .Select(r => r.GetProperty("id").GetInt32()).ToList();
+    }
+
+    internal static async Task OpenPageAsync(IPage page, LiveService s)
     {
         await page.GotoAsync(s.PageUrl);
         await Expect(page.Locator("body")).ToHaveAttributeAsync("data-ready", "true");
@@ -114,17 +123,25 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         // Regions: the table matches the frame's regions; n selects the next one and zooms to it, z zooms out.
         int regionCount = overview.GetProperty("frames")[0].GetProperty("regionCount").GetInt32();
         Assert.True(regionCount >= 2, "the top demo frame should have several regions");
+        var order = await RegionOrderAsync(s.Http, overview.GetProperty("frames")[0].GetProperty("seq").GetInt32());
         await Expect(page.Locator("#region-table tbody tr")).ToHaveCountAsync(regionCount);
-        await Expect(page.Locator("#layer-boxes rect")).ToHaveCountAsync(regionCount);
+        await Expect(page.Locator("#layer-boxes rect.box")).ToHaveCountAsync(regionCount);
+        // The table is the work order: highest score first, each row still showing the report's region id.
+        var rows = page.Locator("#region-table tbody tr");
+        for (int i = 0; i < regionCount; i++)
+        {
+            await Expect(rows.Nth(i)).ToHaveAttributeAsync("data-region", order[i].ToString());
+            await Expect(rows.Nth(i).Locator("td").First).ToHaveTextAsync(order[i].ToString());
+        }
         string whole = (await page.Locator("#stage").GetAttributeAsync("viewBox"))!;
         await page.Keyboard.PressAsync("n");
-        await Expect(page.Locator("#region-table tr.selected")).ToHaveAttributeAsync("data-region", "1");
-        await Expect(page.Locator("#target-title")).ToHaveTextAsync("Region 1");
+        await Expect(page.Locator("#region-table tr.selected")).ToHaveAttributeAsync("data-region", order[0].ToString());
+        await Expect(page.Locator("#target-title")).ToHaveTextAsync($"Region {order[0]}");
         await Expect(page.Locator("#stage")).ToHaveAttributeAsync("data-zoomed", "true");
         Assert.NotEqual(whole, await page.Locator("#stage").GetAttributeAsync("viewBox"));
         await page.Keyboard.PressAsync("n");
-        await Expect(page.Locator("#region-table tr.selected")).ToHaveAttributeAsync("data-region", "2");
-        await session.ScreenshotAsync("zoomed on region 2");
+        await Expect(page.Locator("#region-table tr.selected")).ToHaveAttributeAsync("data-region", order[1].ToString());
+        await session.ScreenshotAsync("zoomed on the second region");
         await page.Keyboard.PressAsync("z");
         await Expect(page.Locator("#stage")).ToHaveAttributeAsync("viewBox", whole);
         // Clicking a row in the list zooms to that region.
@@ -132,13 +149,17 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         await Expect(page.Locator("#target-title")).ToHaveTextAsync($"Region {regionCount}");
         await Expect(page.Locator("#stage")).ToHaveAttributeAsync("data-zoomed", "true");
 
-        // Heat map: h hides and shows it, the slider sets its opacity; o hides the mask outline.
+        // Heat map: off at first (the outline comes first), h shows and hides it, the slider sets its opacity; o hides the outline.
         var heat = page.Locator("#layer-heat");
-        await Expect(heat).ToBeVisibleAsync();
-        await page.Keyboard.PressAsync("h");
         await Expect(heat).ToBeHiddenAsync();
         await Expect(page.Locator("#heat-toggle")).Not.ToBeCheckedAsync();
-        await session.ScreenshotAsync("heat map off");
+        await Expect(page.Locator("#layer-outline")).ToBeVisibleAsync();
+        await page.Keyboard.PressAsync("h");
+        await Expect(heat).ToBeVisibleAsync();
+        await Expect(heat).ToHaveAttributeAsync("opacity", "0.4");
+        await session.ScreenshotAsync("heat map on");
+        await page.Keyboard.PressAsync("h");
+        await Expect(heat).ToBeHiddenAsync();
         await page.Keyboard.PressAsync("h");
         await Expect(heat).ToBeVisibleAsync();
         await page.Locator("#heat-opacity").FillAsync("20");
@@ -161,21 +182,23 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         await OpenPageAsync(page, s);
         var top = (await OverviewAsync(s.Http)).GetProperty("frames")[0];
         int seq = top.GetProperty("seq").GetInt32();
+        // Stay on this frame after the whole-frame verdict below: this test is about what is saved, not the queue.
+        await page.Locator("#advance-toggle").UncheckAsync();
 
         // Region 1 by button with a note; region 2 by key; the whole frame by key after f.
-        await page.Keyboard.PressAsync("n");
+        await page.Locator("#region-table tbody tr[data-region='1']").ClickAsync();
         await page.Locator("#note").FillAsync("strap lying on the stand");
         await page.Locator(".verdicts button[data-verdict='label-it']").ClickAsync();
         await Expect(page.Locator("#status")).ToContainTextAsync("Region 1: Label it (saved)");
         await page.Locator("#note").BlurAsync();
-        await page.Keyboard.PressAsync("n");
+        await page.Locator("#region-table tbody tr[data-region='2']").ClickAsync();
         await page.Keyboard.PressAsync("2");
         await Expect(page.Locator("#status")).ToContainTextAsync("Region 2: False alarm (saved)");
         await page.Keyboard.PressAsync("f");
         await page.Keyboard.PressAsync("3");
         await Expect(page.Locator("#status")).ToContainTextAsync("Frame: Unsure (saved)");
         await Expect(page.Locator("#region-table tr[data-region='1'] td.decision")).ToHaveTextAsync("Label it");
-        await Expect(page.Locator("#layer-boxes rect[data-region='2']")).ToHaveClassAsync(new System.Text.RegularExpressions.Regex(@"\bfalse-alarm\b"));
+        await Expect(page.Locator("#layer-boxes rect.box[data-region='2']")).ToHaveClassAsync(new System.Text.RegularExpressions.Regex(@"\bfalse-alarm\b"));
         await Expect(page.Locator("#summary-counts")).ToContainTextAsync("1 of 4 frames reviewed");
         await session.ScreenshotAsync("three decisions");
 
@@ -230,6 +253,10 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         await Expect(page.Locator("#note")).ToHaveValueAsync("looks like a glove");
         await page.Locator(".verdicts button[data-verdict='unsure']").ClickAsync();
         await Expect(page.Locator("#status")).ToContainTextAsync("Region 1: Unsure (saved)");
+        // The verdict moved the selection on to the next undecided region; go back to edit the note.
+        await Expect(page.Locator("#target-title")).Not.ToHaveTextAsync("Region 1");
+        await page.Locator("#region-table tbody tr[data-region='1']").ClickAsync();
+        await Expect(page.Locator("#note")).ToHaveValueAsync("looks like a glove");
 
         await page.Locator("#note").FillAsync("a glove, dropped by ground crew");
         await page.Locator("#region-table tbody tr[data-region='2']").ClickAsync();
@@ -328,7 +355,9 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         var page = session.Page;
         await OpenPageAsync(page, s);
         await page.Keyboard.PressAsync("n");
-        await Expect(page.Locator("#target-title")).ToHaveTextAsync("Region 1");
+        await Expect(page.Locator("#target-title")).ToHaveTextAsync(new System.Text.RegularExpressions.Regex(@"^Region \d+$"));
+        await page.Keyboard.PressAsync("h");
+        await Expect(page.Locator("#layer-heat")).ToBeVisibleAsync();
         var result = await Deque.AxeCore.Playwright.PageExtensions.RunAxe(page);
         foreach (var v in result.Violations)
             output.WriteLine($"axe {v.Impact}: {v.Id}: {v.Help} ({v.Nodes.Length} element(s): {string.Join(" | ", v.Nodes.Take(3).Select(n => n.Html))})");

@@ -46,7 +46,8 @@ public class ReviewTallyTests
         };
         var c = Count(frames, decisions);
 
-        Assert.Equal(new TargetCounts(3, 3, new VerdictCounts(0, 1, 1)), c.Frames);
+        // Reviewed: frame 2 and frame 3 (frame verdicts). Frame 1 has 2 of its 3 regions decided: in progress, not reviewed.
+        Assert.Equal(new TargetCounts(3, 2, new VerdictCounts(0, 1, 1), InProgress: 1), c.Frames);
         Assert.Equal(6, c.Regions.Total);
         Assert.Equal(5, c.Regions.Reviewed);
         Assert.Equal(new VerdictCounts(1, 4, 0), c.Regions.Verdicts);
@@ -64,6 +65,25 @@ public class ReviewTallyTests
     }
 
     [Fact]
+    public void A_frame_is_reviewed_once_every_region_is_decided_or_the_whole_frame_is()
+    {
+        var frames = new[]
+        {
+            Frame(1, FrameStates.Done, Region(1, "tarmac", 4f), Region(2, "tarmac", 6f)),
+            Frame(2, FrameStates.Done, Region(1, "tarmac", 4f), Region(2, "tarmac", 6f)),
+            Frame(3, FrameStates.Done),
+        };
+        var partly = Count(frames, [D(1, 2, Verdicts.LabelIt)]);
+        Assert.Equal(0, partly.Frames.Reviewed);
+        Assert.Equal(1, partly.Frames.InProgress);
+        var done = Count(frames, [D(1, 2, Verdicts.LabelIt), D(1, 1, Verdicts.FalseAlarm), D(2, null, Verdicts.Unsure)]);
+        Assert.Equal(2, done.Frames.Reviewed);
+        Assert.Equal(0, done.Frames.InProgress);
+        // A frame without regions has nothing to decide region by region: it is reviewed by a frame verdict only.
+        Assert.Equal(3, Count(frames, [D(1, 2, Verdicts.LabelIt), D(1, 1, Verdicts.FalseAlarm), D(2, null, Verdicts.Unsure), D(3, null, Verdicts.FalseAlarm)]).Frames.Reviewed);
+    }
+
+    [Fact]
     public void A_region_verdict_overrides_its_frame_verdict_and_nothing_reviewed_has_no_rate()
     {
         var frames = new[] { Frame(1, FrameStates.Done, Region(1, "tarmac", 4f), Region(2, "tarmac", 6f)) };
@@ -72,6 +92,7 @@ public class ReviewTallyTests
         Assert.Equal(0.5, c.ByClassBeneath[0].FalseAlarmRate);
 
         var none = Count(frames, []);
+        Assert.Equal(0, none.Frames.InProgress);
         Assert.Equal(0, none.Frames.Reviewed);
         Assert.Null(none.ByClassBeneath[0].FalseAlarmRate);
     }
