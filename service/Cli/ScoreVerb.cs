@@ -67,7 +67,6 @@ public static class ScoreVerb
     /// <summary>One line of ranking.json; <c>regionCount</c> is a count (a frame report's <c>regions</c> is the list).</summary>
     public sealed record RankedFrame(string Frame, float FrameScore, int RegionCount, double AnomalousShare, string Report);
 
-    /// <summary>Scores each file into its own subfolder (named by the file's stem) and writes ranking.json.</summary>
     /// <summary>What <c>score</c> writes per frame unless told otherwise: the mask and the picture a person looks at.
     /// The full-size maps (class map, heat map, score NPY and 16-bit PNG) are opt-in: at 1920×1080 all of them take about 14 MB a frame.</summary>
     public static readonly IReadOnlyList<string> LeanArtifacts = ["mask", "overlay"];
@@ -90,8 +89,13 @@ public static class ScoreVerb
         return names.Distinct().ToList();
     }
 
+    /// <summary>
+    /// Scores each file into its own subfolder (named by the file's stem) and writes ranking.json. <paramref name="inspect"/>
+    /// sees each file's scored maps while they are valid.
+    /// </summary>
     public static IReadOnlyList<RankedFrame> ScoreAll(ModelBundle bundle, IReadOnlyList<string> files, ScoringOptions options,
-        string outFolder, IProgress<FrameCount>? progress = null, IReadOnlyList<string>? artifacts = null)
+        string outFolder, IProgress<FrameCount>? progress = null, IReadOnlyList<string>? artifacts = null,
+        Action<string, FrameScoring>? inspect = null)
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
@@ -104,7 +108,9 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = decoder.DecodeFile(files[i]);
-            var report = output.Write(frame, stem, folder, options, artifacts: artifacts ?? ArtifactWriter.All);
+            string file = files[i];
+            var report = output.Write(frame, stem, folder, options, inspect is null ? null : scored => inspect(file, scored),
+                artifacts: artifacts ?? ArtifactWriter.All);
             ranked.Add(new RankedFrame(files[i], report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, FrameOutput.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
