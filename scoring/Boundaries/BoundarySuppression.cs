@@ -97,6 +97,7 @@ public sealed class BoundarySuppression
         float* masked = rows, count = rows + w, zero = rows + 8 * w;
         new Span<float>(zero, w).Clear();
         Vector256<int> thr = Vector256.Create(threshold);
+        Vector256<byte> ring = Vector256.Create((byte)threshold);
         // Which frame row each ring slot holds (rows are prepared only around rows that have boundary pixels).
         int* slotRow = stackalloc int[3] { -1, -1, -1 };
 
@@ -136,11 +137,25 @@ public sealed class BoundarySuppression
             float* v = values + (long)y * w;
             byte* d = dist + (long)y * w;
 
-            // Few boundary chunks: visit just those, each straight from its 3×3 neighbourhood. Many: whole-row
-            // separable sums are cheaper per pixel.
-            int found = 0;
-            for (int c = 0; c < chunks; c++)
-                if (~NonBoundaryMask(d + c * 8, thr) != Vector256<float>.Zero) boundaryChunks[found++] = c * 8;
+            // Only pixels at distance exactly t can change: the distance map is 1-Lipschitz, so a pixel nearer
+            // than t has no neighbour beyond t to take a mean of. Find the 8-pixel chunks holding such a pixel.
+            // Few: visit just those, each straight from its 3×3 neighbourhood. Many: whole-row separable sums are
+            // cheaper per pixel.
+            int found = 0, xc = 0;
+            for (; xc + 32 <= chunks * 8; xc += 32)
+            {
+                uint bits = Vector256.Equals(Vector256.Load(d + xc), ring).ExtractMostSignificantBits();
+                if (bits == 0) continue;
+                for (int k = 0; k < 4; k++)
+                    if ((bits >> (8 * k) & 0xFF) != 0) boundaryChunks[found++] = xc + 8 * k;
+            }
+            for (; xc < chunks * 8; xc += 8)
+                if (Vector64.Equals(Vector64.Load(d + xc), ring.GetLower().GetLower()) != Vector64<byte>.Zero) boundaryChunks[found++] = xc;
+            if (found == 0)
+            {
+                for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
+                continue;
+            }
             if (found * 5 < chunks * 2)
             {
                 float* up = y > 0 ? v - w : zero, dn = y < h - 1 ? v + w : zero;

@@ -4,12 +4,7 @@ namespace Strayspot.Scoring.Logits;
 /// Input the scoring library refuses. <see cref="Code"/> is stable: the service maps it to a
 /// problem+json error code and the command line prints it, so never rename an existing one.
 /// </summary>
-public sealed class ScoringInputException : ArgumentException
-{
-    public ScoringInputException(string code, string message) : base(message) => Code = code;
-
-    public string Code { get; }
-}
+public sealed class ScoringInputException(string code, string message) : CodedException(code, message);
 
 /// <summary>The stable codes of <see cref="ScoringInputException"/>.</summary>
 public static class ScoringErrorCodes

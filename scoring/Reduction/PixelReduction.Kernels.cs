@@ -2,6 +2,7 @@ using System.Numerics;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 using System.Runtime.Intrinsics.X86;
+using Strayspot.Scoring.Logits;
 
 namespace Strayspot.Scoring.Reduction;
 
@@ -26,6 +27,11 @@ public sealed unsafe partial class PixelReduction
                 if (xs == width - lanes) break;
             }
             FlushRow(job, o, y, 0, width);
+            // The finiteness check while the row's logits are still in cache saves the frame a pass over all of them.
+            bool finite = true;
+            for (int ch = 0; ch < c && finite; ch++)
+                finite = LogitsValidation.AllFinite(new ReadOnlySpan<float>(row + ch * plane, width));
+            if (!finite) Volatile.Write(ref job.NonFinite, 1);
         }
     }
 

@@ -65,6 +65,7 @@ public sealed unsafe partial class PixelReduction
                 $"At most {ushort.MaxValue} classes are supported; the logits have {logits.Channels}.");
 
         into.EnsureSize(frameWidth, frameHeight, Outputs);
+        into.LogitsCheckedFinite = false;
         var job = new Job(this, logits, frameHeight, frameWidth, into);
         using var pin = logits.Data.Pin();
         job.Source = (float*)pin.Pointer;
@@ -96,12 +97,13 @@ public sealed unsafe partial class PixelReduction
             var worker = Rent(job);
             job.RunBand(0, 1, worker, identity);
             _workers.Push(worker);
-            return;
         }
-        Parallel.For(0, bands, _parallel,
-            () => Rent(job),
-            (band, _, worker) => { job.RunBand(band, bands, worker, identity); return worker; },
-            worker => _workers.Push(worker));
+        else
+            Parallel.For(0, bands, _parallel,
+                () => Rent(job),
+                (band, _, worker) => { job.RunBand(band, bands, worker, identity); return worker; },
+                worker => _workers.Push(worker));
+        into.LogitsCheckedFinite = identity && job.NonFinite == 0;
     }
 
     private Worker Rent(Job job)
@@ -132,6 +134,8 @@ public sealed unsafe partial class PixelReduction
         public readonly ReducedMaps Maps;
         public float* Source;
         public ResampleAxis? Xs, Ys;
+        /// <summary>1 once a band has met a NaN or infinite logit (the frame-sized path checks every logit).</summary>
+        public int NonFinite;
 
         public void RunBand(int band, int bands, Worker worker, bool identity)
         {

@@ -52,6 +52,12 @@ public sealed class ReducedMaps
         Outputs = outputs;
     }
 
+    /// <summary>
+    /// Set by the last reduction into these maps: true when it read every logit and found all of them finite (the
+    /// frame-sized path checks as it goes, while each row is still in cache); false when it did not check.
+    /// </summary>
+    internal bool LogitsCheckedFinite { get; set; }
+
     private bool Has(ReductionOutputs o) => (Outputs & o) != 0;
 
     private static void Grow<T>(ref T[] array, int count) where T : unmanaged

@@ -26,17 +26,23 @@ public sealed record BatchFrameList([property: JsonPropertyName("frames")] IRead
 public static class BatchesApi
 {
     private static readonly JsonSerializerOptions RequestJson = new(JsonSerializerDefaults.Web);
+    public const string ArchivePart = "file";
+    private static readonly string[] ArchiveFields = ["model", "batchId", "callbackUrl"];
 
     /// <summary>The batch store, worker and callback sender (settings: section Service:Batches).</summary>
     public static void AddServices(IServiceCollection services, IConfiguration configuration)
     {
-        services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section));
+        // Checked when the host starts, like ServiceOptions: a bad setting stops `serve` with its name, not the first batch.
+        services.AddOptions<BatchOptions>().Bind(configuration.GetSection(BatchOptions.Section))
+            .ValidateOnStart();
+        services.AddSingleton<Microsoft.Extensions.Options.IValidateOptions<BatchOptions>>(new BatchOptionsValidator());
+        services.AddOptions<Store.StoreOptions>().Bind(configuration.GetSection(Store.StoreOptions.Section));
         services.AddSingleton<BatchService>();
         services.AddSingleton<BatchCallbacks>();
         services.AddHostedService<BatchWorker>();
     }
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapBatchesApi(this RouteGroupBuilder v1)
     {
         var group = v1.MapGroup("/batches").WithTags("Batches");
 
@@ -74,7 +80,7 @@ public static class BatchesApi
                 }
                 if (!Review.Verdicts.IsKnown(verdict))
                     return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
-                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Store.Decisions(id), verdict);
+                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
                 using var buffer = new MemoryStream();
                 Manifest.WriteTo(buffer, lines);
                 return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);
@@ -89,14 +95,7 @@ public static class BatchesApi
         group.MapPost("/{id}/cancel", Results<Ok<BatchView>, ProblemHttpResult> (string id, BatchService batches) =>
             {
                 if (Find(batches, id) is null) return NotFound(id);
-                try
-                {
-                    return TypedResults.Ok(BatchView.From(batches.Cancel(id)!));
-                }
-                catch (BatchException e)
-                {
-                    return ApiProblems.Create(e.Code, e.Message);
-                }
+                return TypedResults.Ok(BatchView.From(batches.Cancel(id)!));
             })
             .WithName("CancelBatch")
             .WithSummary("Cancels a queued or running batch; the frame being scored finishes, the rest stay pending.")
@@ -105,54 +104,42 @@ public static class BatchesApi
 
     private static async Task<IResult> SubmitAsync(HttpRequest request, BatchService batches, CancellationToken ct)
     {
-        try
+        (BatchRecord batch, bool created, int added) result;
+        if (request.HasJsonContentType())
         {
-            (BatchRecord batch, bool created, int added) result;
-            if (request.HasJsonContentType())
-            {
-                BatchRequest? body;
-                try { body = await request.ReadFromJsonAsync<BatchRequest>(RequestJson, ct); }
-                catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
-                if (body is null || string.IsNullOrWhiteSpace(body.Folder))
-                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
-                result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
-            }
-            else if (request.HasFormContentType)
-            {
-                var form = await request.ReadFormAsync(ct);
-                var file = form.Files.Count > 0 ? form.Files[0] : null;
-                if (file is null)
-                    return ApiProblems.Create(ErrorCodes.ValidationFailed, "The multipart upload has no file part; send the .zip or .tar as 'file'.");
-                string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
-                Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
-                try
-                {
-                    await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
-                    result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
-                        Blank(form["callbackUrl"].ToString()));
-                }
-                finally
-                {
-                    File.Delete(upload);
-                }
-            }
-            else
-            {
-                return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
-                    $"Content type '{request.ContentType}' is not accepted: send application/json (a folder) or multipart/form-data (an archive).");
-            }
-            var view = BatchView.From(result.batch);
-            var answer = new BatchSubmitted(view, result.created, result.added);
-            return result.created ? TypedResults.Created($"/v1/batches/{view.Id}", answer) : TypedResults.Ok(answer);
+            BatchRequest? body;
+            try { body = await request.ReadFromJsonAsync<BatchRequest>(RequestJson, ct); }
+            catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
+            if (body is null || string.IsNullOrWhiteSpace(body.Folder))
+                return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
+            result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
         }
-        catch (BatchException e)
+        else if (request.HasFormContentType)
         {
-            return ApiProblems.Create(e.Code, e.Message);
+            var (form, problem) = await UploadForm.ReadAsync(request, ArchivePart, ".zip or .tar archive of frames", ArchiveFields, ct);
+            if (form is null) return problem!;
+            var file = form.Files.GetFile(ArchivePart)!;
+            string upload = Path.Combine(batches.Root, ".uploads", Guid.NewGuid().ToString("N") + ".upload");
+            Directory.CreateDirectory(Path.GetDirectoryName(upload)!);
+            try
+            {
+                await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
+                result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
+                    Blank(form["callbackUrl"].ToString()));
+            }
+            finally
+            {
+                File.Delete(upload);
+            }
         }
-        catch (UnsafePathException e)
+        else
         {
-            return ApiProblems.Create(ErrorCodes.PathOutsideData, e.Message);
+            return ApiProblems.Create(ErrorCodes.UnsupportedMediaType,
+                $"Content type '{request.ContentType}' is not accepted: send application/json (a folder) or multipart/form-data (an archive).");
         }
+        var view = BatchView.From(result.batch);
+        var answer = new BatchSubmitted(view, result.created, result.added);
+        return result.created ? TypedResults.Created($"/v1/batches/{view.Id}", answer) : TypedResults.Ok(answer);
     }
 
     private static BatchRecord? Find(BatchService batches, string id) => BatchService.IsBatchId(id) ? batches.Store.Get(id) : null;
@@ -161,4 +148,13 @@ public static class BatchesApi
         ApiProblems.Create(ErrorCodes.BatchNotFound, $"There is no batch '{id}'; GET /v1/batches lists them.");
 
     private static string? Blank(string? s) => string.IsNullOrWhiteSpace(s) ? null : s;
+}
+
+/// <summary>Refuses batch settings the worker cannot run with, naming each setting and its value.</summary>
+public sealed class BatchOptionsValidator : Microsoft.Extensions.Options.IValidateOptions<BatchOptions>
+{
+    public Microsoft.Extensions.Options.ValidateOptionsResult Validate(string? name, BatchOptions options) =>
+        options.Validate().ToList() is { Count: > 0 } problems
+            ? Microsoft.Extensions.Options.ValidateOptionsResult.Fail(problems)
+            : Microsoft.Extensions.Options.ValidateOptionsResult.Success;
 }

@@ -16,7 +16,7 @@ public sealed record CalibrationRequest(
 /// <summary>Calibration jobs: start one per model, follow its progress, activate the result.</summary>
 public static class CalibrationsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapCalibrationsApi(this RouteGroupBuilder v1)
     {
         v1.MapPost("/models/{model}/calibrations", Start)
             .WithTags("Calibrations")
@@ -51,13 +51,15 @@ public static class CalibrationsApi
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         CalibrationRequest? request;
         if (http.HasJsonContentType())
-            request = await http.ReadFromJsonAsync<CalibrationRequest>(ct);
+        {
+            try { request = await http.ReadFromJsonAsync<CalibrationRequest>(ct); }
+            catch (System.Text.Json.JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
+        }
         else if (http.HasFormContentType)
         {
-            var form = await http.ReadFormAsync(ct);
-            if (form.Files.GetFile("file") is not { } file)
-                return ApiProblems.Validation(new Dictionary<string, string[]> { ["file"] = ["Upload the frames as a .zip or .tar in the part 'file'."] });
-            request = new CalibrationRequest(await Unpack(file, options.Value, archives.Value, ct));
+            var (form, problem) = await UploadForm.ReadAsync(http, BatchesApi.ArchivePart, ".zip or .tar archive of frames", [], ct);
+            if (form is null) return problem!;
+            request = new CalibrationRequest(await Unpack(form.Files.GetFile(BatchesApi.ArchivePart)!, options.Value, archives.Value, ct));
         }
         else
             return ApiProblems.Create(ErrorCodes.UnsupportedMediaType, "Send application/json naming a folder, or multipart/form-data with an archive.");

@@ -7,7 +7,9 @@ namespace Strayspot.Service.Api;
 public sealed record ErrorCode(string Code, int Status, string Title);
 
 /// <summary>
-/// Every <c>code</c> the HTTP API can answer with. Codes are part of the API contract: clients switch on them,
+/// Every <c>code</c> the HTTP API can answer with, and its status: the one table that maps codes to statuses. The
+/// domains define their own codes beside their exceptions (<see cref="Strayspot.Scoring.CodedException"/>); the
+/// API-only ones are defined here. Codes are part of the API contract: clients switch on them,
 /// so never rename one; add new ones instead.
 /// </summary>
 public static class ErrorCodes
@@ -28,22 +30,23 @@ public static class ErrorCodes
     public const string Forbidden = "forbidden";
     public const string NotReady = "not-ready";
     public const string InternalError = "internal-error";
-    public const string PathOutsideData = "path-outside-data";
+    public const string PathOutsideData = Hosting.PathErrorCodes.OutsideData;
     public const string StatisticsMissing = "statistics-missing";
-    public const string JobNotFound = "job-not-found";
-    public const string JobNotFinished = "job-not-finished";
-    public const string BatchNotFound = "batch-not-found";
-    public const string BatchConflict = "batch-conflict";
-    public const string BatchEmpty = "batch-empty";
-    public const string FolderNotFound = "folder-not-found";
-    public const string ArchiveInvalid = "archive-invalid";
-    public const string ArchiveEscape = "archive-escape";
-    public const string ArchiveTooLarge = "archive-too-large";
-    public const string CallbackNotAllowed = "callback-not-allowed";
-    public const string FrameNotFound = "frame-not-found";
-    public const string FrameNotScored = "frame-not-scored";
-    public const string RegionNotFound = "region-not-found";
-    public const string NoteTooLong = "note-too-long";
+    public const string JobNotFound = Hosting.JobErrorCodes.NotFound;
+    public const string JobNotFinished = Hosting.JobErrorCodes.NotFinished;
+    public const string BatchNotFound = Batches.BatchErrorCodes.NotFound;
+    public const string BatchConflict = Batches.BatchErrorCodes.Conflict;
+    public const string BatchEmpty = Batches.BatchErrorCodes.Empty;
+    public const string FolderNotFound = Hosting.PathErrorCodes.FolderNotFound;
+    public const string ArchiveInvalid = Batches.BatchErrorCodes.ArchiveInvalid;
+    public const string ArchiveEscape = Batches.BatchErrorCodes.ArchiveEscape;
+    public const string ArchiveTooLarge = Batches.BatchErrorCodes.ArchiveTooLarge;
+    public const string CallbackNotAllowed = Batches.BatchErrorCodes.CallbackNotAllowed;
+    public const string FrameNotFound = Review.ReviewErrorCodes.FrameNotFound;
+    public const string FrameNotScored = Review.ReviewErrorCodes.FrameNotScored;
+    public const string RegionNotFound = Review.ReviewErrorCodes.RegionNotFound;
+    public const string NoteTooLong = Review.ReviewErrorCodes.NoteTooLong;
+    public const string FormInvalid = "form-invalid";
 
     private static readonly ErrorCode[] Rows =
     [
@@ -55,6 +58,7 @@ public static class ErrorCodes
         new(ArchiveEscape, 400, "An archive entry would land outside its folder"),
         new(CallbackNotAllowed, 400, "The callback URL is not allowed"),
         new(NoteTooLong, 400, "The decision's note is too long"),
+        new(FormInvalid, 400, "The multipart form is malformed or cut short"),
         new(Unauthorized, 401, "An API key is required"),
         new(Forbidden, 403, "The API key lacks a needed scope"),
         new(NotFound, 404, "No such resource"),
@@ -93,12 +97,19 @@ public static class ErrorCodes
         new(ModelErrorCodes.ModelInvalid, 503, "The model file cannot be used"),
         new(ModelErrorCodes.ModelOutputMismatch, 503, "The model's output does not match its descriptor"),
         new(ModelErrorCodes.ModelExternalData, 503, "The model's external data is refused"),
-        new(ModelErrorCodes.FrameFormat, 415, "The frame's image format is not supported"),
-        new(ModelErrorCodes.FrameTooLarge, 413, "The frame has too many pixels"),
-        new(ModelErrorCodes.FrameCorrupt, 400, "The frame's image data is corrupt"),
+        // Codes raised on frames (FrameException.Code): the image, not the model.
+        new(Frames.FrameErrorCodes.Format, 415, "The frame's image format is not supported"),
+        new(Frames.FrameErrorCodes.TooLarge, 413, "The frame has too many pixels"),
+        new(Frames.FrameErrorCodes.Corrupt, 400, "The frame's image data is corrupt"),
+        new(Frames.FrameErrorCodes.Missing, 400, "No frame where one was expected"),
         new(ModelErrorCodes.CalibrationModelMismatch, 422, "The calibration was made with another model"),
         new(ModelErrorCodes.CalibrationInvalid, 422, "The calibration is invalid"),
         new(ModelErrorCodes.MethodNeedsLogits, 422, "The method needs logits, but the model outputs probabilities"),
+        // Codes raised reading recordings (ModelException.Code; in batches they go into the failed line's error).
+        new(Recordings.RecordingErrorCodes.RecordingFormat, 415, "The file is not a recording this service reads"),
+        new(Recordings.RecordingErrorCodes.RecordingCorrupt, 400, "The recording's data is corrupt"),
+        new(Recordings.RecordingErrorCodes.RecordingTimeout, 504, "Decoding the recording ran past its time limit"),
+        new(Recordings.RecordingErrorCodes.DecoderMissing, 503, "The video decoder (ffmpeg) is not installed"),
         // Codes raised by evaluation (datasets and metrics).
         new(Evaluation.DatasetErrorCodes.Missing, 404, "No such dataset folder"),
         new(Evaluation.DatasetErrorCodes.Empty, 400, "The dataset holds no frame with a mask"),
@@ -106,6 +117,9 @@ public static class ErrorCodes
         new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.Argument, 400, "An evaluation setting is invalid"),
         new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.LabelValue, 400, "A mask holds a value other than 0, 1 or 255"),
         new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.OneClass, 422, "The dataset has anomaly pixels of only one kind"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.ScoreNaN, 422, "A score to evaluate is not a number"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.LengthMismatch, 422, "Scores and labels of different sizes"),
+        new(Strayspot.Scoring.Evaluation.EvaluationErrorCodes.MergeMismatch, 422, "Partial evaluations that do not fit together"),
     ];
 
     private static readonly Dictionary<string, ErrorCode> ByCode = Rows.ToDictionary(r => r.Code, StringComparer.Ordinal);

@@ -15,7 +15,7 @@ public sealed record EvaluationRequest(
 /// <summary>Evaluation jobs: start one, follow it, fetch its tables and plots.</summary>
 public static class EvaluationsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapEvaluationsApi(this RouteGroupBuilder v1)
     {
         v1.MapPost("/models/{model}/evaluations", Start)
             .WithTags("Evaluations")

@@ -9,7 +9,7 @@ public sealed record ReadyStatus(string Status, IReadOnlyList<string> Models);
 /// <summary>Liveness and readiness for orchestrators: no key needed, no queue, answered at once.</summary>
 public static class HealthApi
 {
-    public static void Map(IEndpointRouteBuilder app)
+    public static void MapHealthApi(this IEndpointRouteBuilder app)
     {
         var health = app.MapGroup("").WithTags("Health").AllowAnonymous();
 

@@ -23,7 +23,7 @@ public static class ImageFramesApi
 {
     public const string FramePart = "frame";
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapImageFramesApi(this RouteGroupBuilder v1)
     {
         v1.MapPost("/models/{model}/frames", Score)
             .WithTags("Frames")
@@ -59,9 +59,9 @@ public static class ImageFramesApi
         using var lease = sessions.TryBorrow(entry);
         if (lease is null)
             return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
-        var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "image", ct);
+        var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "camera image (PNG, JPEG or WebP)", ScoringForm.FieldsFor(FramePart), ct);
         if (form is null) return problem!;
-        var (req, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
+        var (req, errors) = ScoringForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
         var file = form.Files.GetFile(FramePart);
         if (file is null && !errors.ContainsKey(FramePart))
             errors[FramePart] = [$"The form has no file part '{FramePart}' (PNG, JPEG or WebP)."];

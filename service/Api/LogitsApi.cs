@@ -78,7 +78,7 @@ public static class LogitsApi
         }
         """;
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapLogitsApi(this RouteGroupBuilder v1)
     {
         SchemaExamples.Register<ScoredFrame>(() => System.Text.Json.Nodes.JsonNode.Parse(Example)!);
         v1.MapPost("/models/{model}/logits", Score)
@@ -110,18 +110,18 @@ public static class LogitsApi
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
             return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
-        var (form, problem) = await UploadForm.ReadAsync(request, LogitsForm.LogitsPart, "logits", ct);
+        var (form, problem) = await UploadForm.ReadAsync(request, ScoringForm.LogitsPart, "float32 NPY logits", ScoringForm.FieldsFor(ScoringForm.LogitsPart), ct);
         if (form is null) return problem!;
 
-        var (parsed, errors) = LogitsForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, Available);
-        var file = form.Files.GetFile(LogitsForm.LogitsPart);
-        if (file is null && !errors.ContainsKey(LogitsForm.LogitsPart))
-            errors[LogitsForm.LogitsPart] = [$"The form has no file part '{LogitsForm.LogitsPart}' (float32 NPY, [C,h,w] or [1,C,h,w])."];
+        var (parsed, errors) = ScoringForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, Available);
+        var file = form.Files.GetFile(ScoringForm.LogitsPart);
+        if (file is null && !errors.ContainsKey(ScoringForm.LogitsPart))
+            errors[ScoringForm.LogitsPart] = [$"The form has no file part '{ScoringForm.LogitsPart}' (float32 NPY, [C,h,w] or [1,C,h,w])."];
         if (parsed is null || file is null) return ApiProblems.Validation(errors);
         var req = parsed;
 
         if (file.Length == 0)
-            throw new ScoringInputException(ScoringErrorCodes.NpyFormat, $"File part '{LogitsForm.LogitsPart}' is empty.");
+            throw new ScoringInputException(ScoringErrorCodes.NpyFormat, $"File part '{ScoringForm.LogitsPart}' is empty.");
         NpyArray<float> npy;
         await using (var stream = file.OpenReadStream())
         {

@@ -35,7 +35,7 @@ public sealed record ModelList(IReadOnlyList<ModelSummary> Models);
 /// <summary>The installed models: their descriptors, class statistics and scoring profiles.</summary>
 public static class ModelsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapModelsApi(this RouteGroupBuilder v1)
     {
         var models = v1.MapGroup("/models").WithTags("Models");
 
@@ -66,9 +66,12 @@ public static class ModelsApi
             .Accepts<ScoringProfile>("application/json")
             .WithName("PutScoringProfile")
             .WithSummary("Replaces the model's scoring profile (needs a key with the 'admin' scope).")
-            .WithDescription("The body is a scoring profile: options (method, stages, threshold, minimum region area), " +
-                             "optional version and note. Without a version the current UTC time becomes the version. " +
-                             "Unknown members are refused. Frames scored afterwards report the new version.")
+            .WithDescription("The body is a whole scoring profile, never merged: options with every setting (method, energy " +
+                             "temperature, boundary suppression and smoothing with all their parameters, threshold, minimum region " +
+                             "area; surface classes optional), as GET /v1/models/{model} shows them; optional version (1-64 of " +
+                             "A-Z a-z 0-9 . _ - : +) and note. An empty or partial body, unknown members and top-level method/threshold " +
+                             "shorthands that disagree with options are refused. Without a version the current UTC time becomes " +
+                             "the version. Frames scored afterwards report the new version.")
             .ProducesProblem(StatusCodes.Status400BadRequest)
             .ProducesProblem(StatusCodes.Status403Forbidden)
             .ProducesProblem(StatusCodes.Status404NotFound);
@@ -99,7 +102,7 @@ public static class ModelsApi
         ScoringProfile profile;
         try
         {
-            profile = ScoringProfile.Read(buffer, "The request body");
+            profile = ScoringProfile.ReadReplacement(buffer.ToArray(), "The request body");
         }
         catch (Strayspot.Scoring.Logits.ScoringInputException e)
         {

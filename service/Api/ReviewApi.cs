@@ -25,7 +25,7 @@ public static class ReviewApi
 
     public static void AddServices(IServiceCollection services) => services.AddSingleton<BatchReview>();
 
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapReviewApi(this RouteGroupBuilder v1)
     {
         var group = v1.MapGroup("/batches/{id}").WithTags("Review");
 
@@ -106,15 +106,5 @@ public static class ReviewApi
 
     private static string? KeyName(HttpContext http) => http.User.Identity?.IsAuthenticated == true ? http.User.Identity.Name : null;
 
-    private static IResult Answer(Func<IResult> answer)
-    {
-        try
-        {
-            return answer();
-        }
-        catch (ReviewException e)
-        {
-            return ApiProblems.Create(e.Code, e.Message);
-        }
-    }
+    private static IResult Answer(Func<IResult> answer) => answer();
 }

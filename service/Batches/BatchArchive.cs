@@ -47,8 +47,10 @@ public static class BatchArchive
         {
             throw new BatchException(ErrorCodes.ArchiveInvalid, $"The archive cannot be read: {e.Message}");
         }
+        if (fileName is not null && Recordings.VideoRecording.IsVideoFile(fileName))
+            return [BatchRecordings.TakeUpload(archivePath, CheckName(Path.GetFileName(fileName), out _), destination, limits.MaxBytes)];
         throw new BatchException(ErrorCodes.ArchiveInvalid,
-            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive.");
+            $"The upload{(fileName is null ? "" : $" '{fileName}'")} is neither a .zip nor a .tar (or .tar.gz) archive, nor a video file.");
     }
 
     private static List<string> ExtractZip(string archivePath, string destination, ArchiveLimits limits)
@@ -73,7 +75,7 @@ public static class BatchArchive
             var parts = CheckName(e.FullName, out bool directory);
             if (directory || !IsFrame(parts)) continue;
             using var source = e.Open();
-            frames.Add(WriteEntry(source, parts, destination, budget));
+            frames.Add(WriteEntry(source, parts, destination, budget, e));
         }
         return frames;
     }
@@ -122,10 +124,10 @@ public static class BatchArchive
     }
 
     private static bool IsFrame(string[] parts) =>
-        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) &&
-        Frames.FrameFormats.IsFrameFile(parts[^1]);
+        parts.Length > 0 && !parts.Any(p => p.StartsWith('.')) && BatchRecordings.IsInput(parts[^1]);
 
-    private static string WriteEntry(Stream source, string[] parts, string destination, Budget budget)
+    /// <param name="zipEntry">A zip entry's header, whose size and CRC-32 the written bytes must match.</param>
+    private static string WriteEntry(Stream source, string[] parts, string destination, Budget budget, ZipArchiveEntry? zipEntry = null)
     {
         string path = Path.GetFullPath(Path.Combine([destination, .. parts]));
         if (!path.StartsWith(Path.TrimEndingDirectorySeparator(Path.GetFullPath(destination)) + Path.DirectorySeparatorChar, StringComparison.Ordinal))
@@ -134,6 +136,8 @@ public static class BatchArchive
         if (File.Exists(path))
             throw new BatchException(ErrorCodes.ArchiveInvalid, $"Archive entry '{relative}' appears more than once.");
         Directory.CreateDirectory(Path.GetDirectoryName(path)!);
+        var crc = new System.IO.Hashing.Crc32();
+        long written = 0;
         using (var target = new FileStream(path, FileMode.CreateNew, FileAccess.Write))
         {
             byte[] buffer = new byte[81920];
@@ -142,8 +146,19 @@ public static class BatchArchive
             {
                 budget.Take(n);
                 target.Write(buffer, 0, n);
+                crc.Append(buffer.AsSpan(0, n));
+                written += n;
             }
             target.Flush(flushToDisk: true);
+        }
+        if (zipEntry is not null && (written != zipEntry.Length || crc.GetCurrentHashAsUInt32() != zipEntry.Crc32))
+        {
+            // Headers that understate an entry would otherwise cut it silently at the declared size.
+            File.Delete(path);
+            throw new BatchException(ErrorCodes.ArchiveInvalid,
+                written != zipEntry.Length
+                    ? $"Archive entry '{relative}' unpacks to {written} bytes but its header declares {zipEntry.Length}."
+                    : $"Archive entry '{relative}' fails its CRC-32 check (damaged, or its header does not describe its data).");
         }
         return relative;
     }

@@ -21,9 +21,24 @@ public sealed class BatchCallbacks(BatchService batches, ILogger<BatchCallbacks>
         foreach (var batch in batches.Store.CallbacksDue())
         {
             if (_inFlight.ContainsKey(batch.Id)) continue;
+            // Replicas sharing the store: one delivers, for as long as all its attempts may take.
+            if (!batches.Store.ClaimCallback(batch.Id, Owner, DeliveryTime)) continue;
             var task = Task.Run(() => DeliverAsync(batch, stopping), CancellationToken.None);
             _inFlight[batch.Id] = task;
             _ = task.ContinueWith(_ => _inFlight.TryRemove(batch.Id, out Task? _), TaskScheduler.Default);
+        }
+    }
+
+    private static string Owner => Store.ClaimOwner.ThisProcess;
+
+    /// <summary>Longest a delivery can take: every attempt's timeout plus the doubling waits, with room to spare.</summary>
+    private TimeSpan DeliveryTime
+    {
+        get
+        {
+            var o = batches.Options;
+            double waits = o.CallbackFirstRetry.TotalSeconds * (Math.Pow(2, o.CallbackAttempts - 1) - 1);
+            return TimeSpan.FromSeconds(2 * (o.CallbackAttempts * o.CallbackTimeout.TotalSeconds + waits) + 10);
         }
     }
 

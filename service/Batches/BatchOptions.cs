@@ -30,6 +30,16 @@ public sealed class BatchOptions
     /// <summary>How often the worker looks for work when nothing woke it.</summary>
     public TimeSpan PollInterval { get; set; } = TimeSpan.FromSeconds(5);
 
+    /// <summary>
+    /// How long a claimed frame stays this replica's without a renewal; renewed every third of it while the frame is
+    /// scored. After a replica dies its frames wait this long before another takes them.
+    /// </summary>
+    public TimeSpan LeaseTime { get; set; } = TimeSpan.FromSeconds(30);
+    /// <summary>This replica takes only batch work: the scoring API (/v1) is not served; health, readiness and metrics are.</summary>
+    public bool WorkerOnly { get; set; }
+    /// <summary>Stop the process once no batch is left to work on anywhere (a Kubernetes Job's pods end this way).</summary>
+    public bool ExitWhenIdle { get; set; }
+
     public string ResolveDatabase(string dataRoot) => Path.GetFullPath(DatabasePath ?? Path.Combine(dataRoot, ".strayspot", "batches.db"));
     public string ResolveRoot(string dataRoot) => Path.GetFullPath(Root ?? Path.Combine(dataRoot, "batches"));
 
@@ -63,6 +73,7 @@ public sealed class BatchOptions
         if (CallbackAttempts is < 1 or > 20) yield return $"Service:Batches:CallbackAttempts must be 1..20; got {CallbackAttempts}.";
         if (CallbackFirstRetry < TimeSpan.Zero) yield return $"Service:Batches:CallbackFirstRetry must not be negative; got {CallbackFirstRetry}.";
         if (CallbackTimeout <= TimeSpan.Zero) yield return $"Service:Batches:CallbackTimeout must be positive; got {CallbackTimeout}.";
+        if (LeaseTime < TimeSpan.FromMilliseconds(300)) yield return $"Service:Batches:LeaseTime must be at least 300 ms; got {LeaseTime}.";
         if (PollInterval <= TimeSpan.Zero) yield return $"Service:Batches:PollInterval must be positive; got {PollInterval}.";
         foreach (string o in CallbackOrigins)
             if (!Uri.TryCreate(o, UriKind.Absolute, out var u) || (u.Scheme != Uri.UriSchemeHttp && u.Scheme != Uri.UriSchemeHttps))

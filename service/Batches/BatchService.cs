@@ -5,6 +5,7 @@ using Microsoft.Extensions.Options;
 using Strayspot.Service.Api;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Batches;
 
@@ -23,29 +24,35 @@ public sealed partial class BatchService : IDisposable
     private readonly ConcurrentDictionary<string, CancellationTokenSource> _running = new(StringComparer.Ordinal);
     private readonly Lock _submit = new();
 
-    public BatchService(IOptions<ServiceOptions> service, IOptions<BatchOptions> options, ModelCatalog catalog)
+    public BatchService(IOptions<ServiceOptions> service, IOptions<BatchOptions> options, IOptions<StoreOptions> store, ModelCatalog catalog)
     {
         _options = options.Value;
-        var problems = _options.Validate().ToList();
+        var problems = _options.Validate().Concat(store.Value.Validate()).ToList();
         if (problems.Count > 0) throw new OptionsValidationException(BatchOptions.Section, typeof(BatchOptions), problems);
         _catalog = catalog;
         DataRoot = Path.GetFullPath(service.Value.DataRoot);
         Root = _options.ResolveRoot(DataRoot);
-        string database = _options.ResolveDatabase(DataRoot);
+        string database = store.Value.Store == BatchDatabase.Postgres ? "the PostgreSQL store (Service:StoreConnection)" : _options.ResolveDatabase(DataRoot);
         try
         {
             Directory.CreateDirectory(Root);
-            Store = new BatchStore(database);
+            Database = store.Value.Store == BatchDatabase.Postgres
+                ? BatchDatabase.OpenPostgres(store.Value.StoreConnection!)
+                : BatchDatabase.OpenSqlite(database);
         }
-        catch (Exception e) when (e is Microsoft.Data.Sqlite.SqliteException or IOException or UnauthorizedAccessException)
+        catch (Exception e) when (e is Microsoft.Data.Sqlite.SqliteException or IOException or UnauthorizedAccessException
+                                      or StoreUnavailableException or Npgsql.NpgsqlException or ArgumentException or InvalidOperationException)
         {
             // Refused like a bad setting: the serve verb prints it and exits, instead of a stack trace.
             throw new OptionsValidationException(BatchOptions.Section, typeof(BatchOptions),
-                [$"The batch folder '{Root}' or database '{database}' cannot be used (Service:Batches:Root, Service:Batches:DatabasePath): {e.Message}"]);
+                [$"The batch folder '{Root}' or {database} cannot be used (Service:Batches:Root, Service:Batches:DatabasePath, Service:Store): {e.Message}"]);
         }
     }
 
-    public BatchStore Store { get; }
+    /// <summary>The store of batches and decisions, SQLite or PostgreSQL (Service:Store).</summary>
+    public BatchDatabase Database { get; }
+    public IBatchStore Store => Database.Batches;
+    public IDecisionStore Decisions => Database.Decisions;
     public BatchOptions Options => _options;
     public string DataRoot { get; }
     public string Root { get; }
@@ -59,7 +66,7 @@ public sealed partial class BatchService : IDisposable
 
     /// <summary>Rewrites the batch's manifest from the store (frames so far, with their decisions); returns its path.</summary>
     public string WriteManifest(BatchRecord batch) =>
-        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Store.Decisions(batch.Id));
+        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Current(batch.Id));
 
     /// <summary>An absolute path for a stored source: relative ones are resolved under DataRoot (links checked again).</summary>
     public string ResolveSource(string source) => Path.IsPathRooted(source) ? source : SafePath.Resolve(DataRoot, source);
@@ -72,9 +79,13 @@ public sealed partial class BatchService : IDisposable
             throw new BatchException(ErrorCodes.FolderNotFound, $"There is no folder '{folder}' in the data folder.");
         string folderRel = Path.GetRelativePath(DataRoot, full).Replace('\\', '/');
         var frames = new List<NewFrame>();
-        foreach (var frame in new Frames.FolderFrameSource(full).Frames())
+        // Not a FolderFrameSource: a batch folder also contributes recordings (video files), one work item each.
+        var walk = new EnumerationOptions { RecurseSubdirectories = true, IgnoreInaccessible = true, AttributesToSkip = FileAttributes.System };
+        foreach (string file in Directory.EnumerateFiles(full, "*", walk))
         {
-            string rel = frame.Id;
+            string rel = Path.GetRelativePath(full, file).Replace('\\', '/');
+            if (rel.Split('/').Any(p => p.StartsWith('.'))) continue;
+            if (!BatchRecordings.IsInput(file)) continue;
             string source = folderRel == "." ? rel : folderRel + "/" + rel;
             SafePath.Resolve(DataRoot, source); // a linked file or folder may not lead out of the data folder
             frames.Add(new NewFrame(rel, source));
@@ -83,7 +94,7 @@ public sealed partial class BatchService : IDisposable
                     $"The folder '{folder}' holds more than {_options.MaxFramesPerBatch} frames (Service:Batches:MaxFramesPerBatch); split it.");
         }
         if (frames.Count == 0)
-            throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {Frames.FrameFormats.Listed} frames.");
+            throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {BatchRecordings.Accepted} frames or recordings.");
         frames.Sort((a, b) => string.CompareOrdinal(a.FrameId, b.FrameId));
         return Submit(id, model, "folder:" + folderRel, callbackUrl, frames);
     }
@@ -98,7 +109,7 @@ public sealed partial class BatchService : IDisposable
         {
             var extracted = BatchArchive.Extract(archivePath, fileName, staging, new ArchiveLimits(_options.MaxArchiveEntries, _options.MaxArchiveBytes));
             if (extracted.Count == 0)
-                throw new BatchException(ErrorCodes.BatchEmpty, $"The archive holds no {Frames.FrameFormats.Listed} frames.");
+                throw new BatchException(ErrorCodes.BatchEmpty, $"The archive holds no {BatchRecordings.Accepted} frames or recordings.");
             if (extracted.Count > _options.MaxFramesPerBatch)
                 throw new BatchException(ErrorCodes.ValidationFailed,
                     $"The archive holds {extracted.Count} frames; at most {_options.MaxFramesPerBatch} are accepted (Service:Batches:MaxFramesPerBatch).");
@@ -168,7 +179,7 @@ public sealed partial class BatchService : IDisposable
 
     internal void Untrack(string id) => _running.TryRemove(id, out _);
 
-    public void Dispose() => Store.Dispose();
+    public void Dispose() => Database.Dispose();
 
     private (BatchRecord, bool, int) Submit(string id, string model, string source, string? callbackUrl, List<NewFrame> frames)
     {

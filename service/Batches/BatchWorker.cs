@@ -5,6 +5,7 @@ using Strayspot.Service.Frames;
 using Strayspot.Service.Hosting;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Models;
+using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Batches;
 
@@ -13,7 +14,8 @@ namespace Strayspot.Service.Batches;
 /// the service's <see cref="FrameGate"/> (so batches and interactive requests share the same bound on cores).
 /// A frame's files go to a temporary folder that is renamed into place, and only then is the frame marked done:
 /// after a crash, done frames are never scored again and any other frame is scored afresh, its folder replaced.
-/// On shutdown the frame in progress is finished, then the worker stops.
+/// On shutdown the frame in progress is finished, then the worker stops. Frames are taken by claims (see
+/// <see cref="IBatchStore"/>), so any number of replicas sharing a PostgreSQL store split a batch between them.
 /// </summary>
 public sealed class BatchWorker(
     BatchService batches,
@@ -23,10 +25,15 @@ public sealed class BatchWorker(
     FrameRunner runner,
     FrameGate gate,
     IOptions<ServiceOptions> service,
+    IHostApplicationLifetime lifetime,
     ILogger<BatchWorker> log) : BackgroundService
 {
     private readonly ConcurrentDictionary<string, bool> _claimed = new(StringComparer.Ordinal);
+    /// <summary>Batches whose open frames other replicas hold: looked at again after the poll interval.</summary>
+    private readonly ConcurrentDictionary<string, DateTimeOffset> _resting = new(StringComparer.Ordinal);
     private readonly FrameDecoder _decoder = new(new FrameDecoderOptions { MaxPixels = service.Value.MaxPixels });
+
+    private static string Owner => ClaimOwner.ThisProcess;
 
     protected override async Task ExecuteAsync(CancellationToken stopping)
     {
@@ -39,37 +46,64 @@ public sealed class BatchWorker(
 
     private async Task LoopAsync(CancellationToken stopping)
     {
+        var backoff = TimeSpan.Zero;
         while (!stopping.IsCancellationRequested)
         {
-            callbacks.DispatchDue(stopping);
-            var batch = Claim();
-            if (batch is null)
-            {
-                try { await batches.WaitForWorkAsync(batches.Options.PollInterval, stopping); }
-                catch (OperationCanceledException) { break; }
-                continue;
-            }
-            batches.Wake(); // another loop may take the next batch
             try
             {
-                await RunAsync(batch, stopping);
+                callbacks.DispatchDue(stopping);
+                var batch = Claim(out bool anyRunnable);
+                if (batch is null)
+                {
+                    if (batches.Options.ExitWhenIdle && !anyRunnable && _claimed.IsEmpty)
+                    {
+                        log.LogInformation("No batch work is left; stopping (Service:Batches:ExitWhenIdle)");
+                        lifetime.StopApplication();
+                        break;
+                    }
+                    try { await batches.WaitForWorkAsync(batches.Options.PollInterval, stopping); }
+                    catch (OperationCanceledException) { break; }
+                    continue;
+                }
+                batches.Wake(); // another loop may take the next batch
+                try
+                {
+                    await RunAsync(batch, stopping);
+                }
+                catch (Exception e) when (e is not (OperationCanceledException or StoreUnavailableException))
+                {
+                    log.LogError(e, "Batch {BatchId} failed", batch.Id);
+                    batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: ClientPaths.Relative(e.Message, batches.DataRoot));
+                }
+                finally
+                {
+                    _claimed.TryRemove(batch.Id, out _);
+                }
+                backoff = TimeSpan.Zero;
             }
-            catch (Exception e) when (e is not OperationCanceledException)
+            catch (StoreUnavailableException e)
             {
-                log.LogError(e, "Batch {BatchId} failed", batch.Id);
-                batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: e.Message);
-            }
-            finally
-            {
-                _claimed.TryRemove(batch.Id, out _);
+                // Frames claimed meanwhile stay pending: their leases run out and whoever is up scores them.
+                backoff = backoff == TimeSpan.Zero ? TimeSpan.FromMilliseconds(250) : TimeSpan.FromTicks(Math.Min(backoff.Ticks * 2, MaxBackoff.Ticks));
+                log.LogWarning("The store is unavailable; trying again in {Backoff} ms: {Reason}", (int)backoff.TotalMilliseconds, e.Message);
+                try { await Task.Delay(backoff, stopping); }
+                catch (OperationCanceledException) { break; }
             }
         }
     }
 
-    private BatchRecord? Claim()
+    private static readonly TimeSpan MaxBackoff = TimeSpan.FromSeconds(5);
+
+    private BatchRecord? Claim(out bool anyRunnable)
     {
-        foreach (var b in batches.Store.Runnable())
+        var now = DateTimeOffset.UtcNow;
+        var runnable = batches.Store.Runnable();
+        anyRunnable = runnable.Count > 0;
+        foreach (var b in runnable)
+        {
+            if (_resting.TryGetValue(b.Id, out var until) && until > now) continue;
             if (_claimed.TryAdd(b.Id, true)) return b;
+        }
         return null;
     }
 
@@ -83,28 +117,31 @@ public sealed class BatchWorker(
                 modelSha256: model.Version.WeightsSha256, profileVersion: model.Version.Profile.Version))
             return; // cancelled meanwhile
         ClearInterrupted(folder);
-        if (batch.State == BatchStates.Running)
+        if (batch.State == BatchStates.Running && batch.DoneCount + batch.FailedCount > 0)
             log.LogInformation("Resuming batch {BatchId}: {Done} of {Total} frames already done", batch.Id, batch.DoneCount + batch.FailedCount, batch.FrameCount);
         var output = new FrameFolderWriter(model.Version);
+        var lease = batches.Options.LeaseTime;
         using var cancel = batches.Track(batch.Id, stopping);
         try
         {
             while (!cancel.IsCancellationRequested)
             {
-                if (batches.Store.Get(batch.Id)?.State != BatchStates.Running) return;
-                var frame = batches.Store.StartNextFrame(batch.Id);
-                if (frame is null)
+                // Null too when the batch is no longer running (cancelled), or when every open frame is held by another replica.
+                var claim = batches.Store.ClaimNextFrame(batch.Id, Owner, lease);
+                if (claim is null)
                 {
-                    Finish(batch.Id);
+                    if (!Finish(batch.Id)) _resting[batch.Id] = DateTimeOffset.UtcNow + batches.Options.PollInterval;
                     return;
                 }
-                FrameGate.Lease? lease;
-                while ((lease = await gate.TryEnterAsync(cancel.Token)) is null)
+                FrameGate.Lease? slot;
+                while ((slot = await gate.TryEnterAsync(cancel.Token)) is null)
                     await Task.Delay(TimeSpan.FromMilliseconds(100), cancel.Token);
-                using (lease)
+                using (slot)
+                using (var renewal = new ClaimRenewal(batches.Store, claim, lease, log))
                 {
                     // Not cancellable on purpose: a frame once started is finished, so shutdown leaves no half frame behind.
-                    await Task.Run(() => ScoreFrame(batch.Id, folder, frame, model, output), CancellationToken.None);
+                    // A recording is the exception: it can run for long, so it ends with its batch (and is scored afresh on resume).
+                    await Task.Run(() => ScoreFrame(claim, folder, model, output, renewal, cancel.Token), CancellationToken.None);
                 }
                 if (batches.Options.PauseBetweenFrames > TimeSpan.Zero)
                     await Task.Delay(batches.Options.PauseBetweenFrames, cancel.Token);
@@ -117,45 +154,46 @@ public sealed class BatchWorker(
         finally
         {
             batches.Untrack(batch.Id);
-            if (batches.Store.Get(batch.Id) is { State: BatchStates.Cancelled } cancelled)
-                batches.WriteManifest(cancelled);
+            try
+            {
+                if (batches.Store.Get(batch.Id) is { State: BatchStates.Cancelled } cancelled)
+                    batches.WriteManifest(cancelled);
+            }
+            catch (StoreUnavailableException) { } // the replica that next sees the batch writes it
         }
     }
 
-    private void ScoreFrame(string batchId, string folder, FrameRecord frame, ModelLease model, FrameFolderWriter output)
+    private void ScoreFrame(FrameClaim claim, string folder, ModelLease model, FrameFolderWriter output, ClaimRenewal renewal, CancellationToken cancel)
     {
+        var frame = claim.Frame;
         string name = frame.Seq.ToString("D5", System.Globalization.CultureInfo.InvariantCulture);
         string frames = Path.Combine(folder, BatchService.FramesFolder);
         string final = Path.Combine(frames, name);
         string temp = Path.Combine(frames, $".{name}.{Guid.NewGuid():N}.tmp");
         try
         {
-            List<ManifestRegion>? regions = null;
-            float score;
-            int regionCount;
-            using (var decoded = _decoder.DecodeFile(batches.ResolveSource(frame.SourcePath)))
+            var scored = Score(model, output, frame, temp, cancel);
+            // Held still? Renewed just before the rename, the claim outlasts the rename and the done mark by a whole lease.
+            if (renewal.Lost || !batches.Store.RenewClaim(claim, batches.Options.LeaseTime))
             {
-                var report = runner.Score(model, decoded, null, (scored, timings) =>
-                {
-                    regions = Manifest.Regions(scored, output.ClassNames);
-                    return output.WriteAll(scored, timings, model.Version.Defaults, frame.FrameId, temp, decoded.Image);
-                });
-                score = report.FrameScore;
-                regionCount = report.Regions.Count;
+                log.LogWarning("Batch {BatchId} frame {FrameId}: the claim was lost to another replica; its result is dropped", claim.BatchId, frame.FrameId);
+                TryDelete(temp);
+                return;
             }
             // A folder left by an interrupted attempt (renamed, not yet marked done) is replaced.
             if (Directory.Exists(final)) Directory.Delete(final, recursive: true);
             Directory.Move(temp, final);
-            string report_ = $"{BatchService.FramesFolder}/{name}/{Rendering.ArtifactWriter.ReportFile}";
-            batches.Store.CompleteFrame(batchId, frame.Seq, new FrameResult(score, regionCount, report_, Manifest.RegionsJson(regions ?? [])));
+            string report = $"{BatchService.FramesFolder}/{name}/{scored.ReportFile}";
+            if (!batches.Store.CompleteFrame(claim, new FrameResult(scored.FrameScore, scored.RegionCount, report, Manifest.RegionsJson(scored.Regions))))
+                log.LogWarning("Batch {BatchId} frame {FrameId}: the done mark was refused (claim lost)", claim.BatchId, frame.FrameId);
         }
-        catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or FileNotFoundException
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or FileNotFoundException
                                       or DirectoryNotFoundException or InvalidDataException)
         {
             TryDelete(temp);
-            string code = e switch { ModelException m => m.Code, ScoringInputException s => s.Code, UnsafePathException => "path-outside-data", _ => "frame-unreadable" };
-            log.LogWarning("Batch {BatchId} frame {FrameId} failed ({Code}): {Reason}", batchId, frame.FrameId, code, e.Message);
-            batches.Store.FailFrame(batchId, frame.Seq, $"{code}: {e.Message}");
+            string code = e is Strayspot.Scoring.CodedException coded ? coded.Code : "frame-unreadable";
+            log.LogWarning("Batch {BatchId} frame {FrameId} failed ({Code}): {Reason}", claim.BatchId, frame.FrameId, code, e.Message);
+            batches.Store.FailFrame(claim, $"{code}: {ClientPaths.Relative(e.Message, folder, batches.DataRoot)}");
         }
         catch
         {
@@ -164,12 +202,35 @@ public sealed class BatchWorker(
         }
     }
 
-    private void Finish(string batchId)
+    /// <summary>The one call into frame scoring: decode the frame's file, score it, write its outputs to <paramref name="folder"/>.</summary>
+    private ScoredFrame Score(ModelLease model, FrameFolderWriter output, FrameRecord frame, string folder, CancellationToken cancel)
     {
-        if (!batches.Store.Transition(batchId, BatchStates.Done, [BatchStates.Running])) return;
+        string source = batches.ResolveSource(frame.SourcePath);
+        if (Recordings.VideoRecording.IsVideoFile(frame.SourcePath))
+        {
+            var (score, tracks) = BatchRecordings.Score(runner, model, source, folder, service.Value.MaxPixels, cancel);
+            return new ScoredFrame(score, tracks.Count, tracks, Recordings.RecordingRun.TracksFile);
+        }
+        List<ManifestRegion>? regions = null;
+        using var decoded = _decoder.DecodeFile(source);
+        var report = runner.Score(model, decoded, null, (scored, timings) =>
+        {
+            regions = Manifest.Regions(scored, output.ClassNames);
+            return output.WriteAll(scored, timings, model.Version.Defaults, frame.FrameId, folder, decoded.Image);
+        });
+        return new ScoredFrame(report.FrameScore, report.Regions.Count, regions ?? [], Rendering.ArtifactWriter.ReportFile);
+    }
+
+    private sealed record ScoredFrame(float FrameScore, int RegionCount, List<ManifestRegion> Regions, string ReportFile);
+
+    /// <summary>Running → done once no frame is open anywhere; the one replica that makes the move writes the manifest.</summary>
+    private bool Finish(string batchId)
+    {
+        if (!batches.Store.FinishIfComplete(batchId)) return false;
         var batch = batches.Store.Get(batchId)!;
         batches.WriteManifest(batch);
         log.LogInformation("Batch {BatchId} done: {Done} frames scored, {Failed} failed", batchId, batch.DoneCount, batch.FailedCount);
+        return true;
     }
 
     /// <summary>The model of a batch from the process's registry; null (batch failed) when it cannot be loaded.</summary>
@@ -185,18 +246,24 @@ public sealed class BatchWorker(
         {
             return await Task.Run(() => sessions.Borrow(entry), stopping);
         }
-        catch (Exception e) when (e is ModelException or ScoringInputException or IOException or InvalidDataException)
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException or InvalidDataException)
         {
-            batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {e.Message}");
+            batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be loaded: {ClientPaths.Relative(e.Message, batches.DataRoot)}");
             return null;
         }
     }
 
-    private static void ClearInterrupted(string folder)
+    /// <summary>
+    /// Removes temporary frame folders of interrupted attempts. On a shared store another replica may be writing
+    /// one right now: only those untouched for several lease times are left over.
+    /// </summary>
+    private void ClearInterrupted(string folder)
     {
         string frames = Path.Combine(folder, BatchService.FramesFolder);
         if (!Directory.Exists(frames)) return;
-        foreach (string dir in Directory.EnumerateDirectories(frames, ".*.tmp")) TryDelete(dir);
+        var before = DateTime.UtcNow - 4 * batches.Options.LeaseTime;
+        foreach (string dir in Directory.EnumerateDirectories(frames, ".*.tmp"))
+            if (!batches.Store.Shared || Directory.GetLastWriteTimeUtc(dir) < before) TryDelete(dir);
     }
 
     private static void TryDelete(string dir)

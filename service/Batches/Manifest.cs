@@ -129,7 +129,10 @@ public static class Manifest
             if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
-            foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+            if (BatchRecordings.IsRecordingReport(f.ReportPath!))
+                foreach (var (key, file) in BatchRecordings.ArtifactFiles) artifacts[key] = folder + "/" + file;
+            else
+                foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
             lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
                 batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
         }

@@ -51,7 +51,7 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         string frames = SafePath.Resolve(options.Value.DataRoot, folder);
         var list = Calibrator.ListFrames(frames);
         if (labels is not null && !Directory.Exists(SafePath.Resolve(options.Value.DataRoot, labels)))
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Labels folder '{labels}' does not exist under the data root.");
+            throw new PathException(PathErrorCodes.FolderNotFound, $"Labels folder '{labels}' does not exist under the data root.");
         var job = new CalibrationJob
         {
             Id = Guid.NewGuid().ToString("N"),
@@ -132,9 +132,9 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         {
             // Shutting down: the checkpoint is kept and the job resumes at the next start.
         }
-        catch (Exception e) when (e is ModelException or UnsafePathException or IOException or Strayspot.Scoring.Logits.ScoringInputException)
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException)
         {
-            Save(job with { State = "failed", Error = e.Message, FinishedUtc = DateTimeOffset.UtcNow });
+            Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Calibration {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }

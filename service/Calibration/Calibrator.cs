@@ -67,7 +67,7 @@ public sealed class Calibrator
     {
         var files = new FolderFrameSource(folder, recursive: false).Frames().Select(f => f.Path!).ToList();
         if (files.Count == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' holds no {FrameFormats.Listed} files.");
+            throw new FrameException(FrameErrorCodes.Missing, $"Frames folder '{folder}' holds no {FrameFormats.Listed} files.");
         return files;
     }
 
@@ -79,7 +79,7 @@ public sealed class Calibrator
         IProgress<CalibrationProgress>? progress = null, CancellationToken cancel = default)
     {
         if (frames.Count == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, "No frames to calibrate with.");
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, "No frames to calibrate with.");
         bool labelled = _options.LabelsFolder is not null;
         string checkpointPath = _options.CheckpointPath ?? outputPath + ".checkpoint.json";
         int classes = _model.Version.ClassCount;
@@ -162,6 +162,10 @@ public sealed class Calibrator
             {
                 throw new ModelException(e.Code, $"Frame '{path}': {e.Message}", e);
             }
+            catch (Strayspot.Service.Frames.FrameException e) when (!e.Message.Contains(path, StringComparison.Ordinal))
+            {
+                throw new Strayspot.Service.Frames.FrameException(e.Code, $"Frame '{path}': {e.Message}", e);
+            }
         }
 
         private ClassStatisticsAccumulator MeasureFrame(string path, FrameDecoder decoder, int classes, CalibrationOptions options)
@@ -175,7 +179,7 @@ public sealed class Calibrator
             {
                 string labelPath = Path.Combine(options.LabelsFolder, Path.GetFileNameWithoutExtension(path) + ".png");
                 if (!File.Exists(labelPath))
-                    throw new ModelException(ModelErrorCodes.FrameFormat, $"Frame '{Path.GetFileName(path)}' has no label map '{labelPath}'.");
+                    throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Missing, $"Frame '{Path.GetFileName(path)}' has no label map '{labelPath}'.");
                 acc.Add(reducer.MaxLogit, reducer.ClassIndex, LabelMapReader.Read(labelPath, frame.Width, frame.Height), options.IgnoreLabel);
             }
             return acc;

@@ -20,13 +20,13 @@ public static class LabelMapReader
         {
             using var stream = File.OpenRead(path);
             var info = Image.Identify(PngOnly, stream, out var format)
-                ?? throw new ModelException(ModelErrorCodes.FrameFormat, $"Label map '{path}' is not a PNG.");
+                ?? throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Format, $"Label map '{path}' is not a PNG.");
             var png = info.Metadata.GetPngMetadata();
             if (png.ColorType != PngColorType.Grayscale)
-                throw new ModelException(ModelErrorCodes.FrameFormat,
+                throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Format,
                     $"Label map '{path}' is a {png.ColorType} PNG; save labels as 8- or 16-bit grayscale (value = class index).");
             if (info.Width != expectedWidth || info.Height != expectedHeight)
-                throw new ModelException(ModelErrorCodes.FrameFormat,
+                throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Format,
                     $"Label map '{path}' is {info.Width}×{info.Height}; its frame is {expectedWidth}×{expectedHeight}.");
             stream.Position = 0;
             var labels = new ushort[expectedWidth * expectedHeight];
@@ -55,7 +55,7 @@ public static class LabelMapReader
         }
         catch (ImageFormatException e)
         {
-            throw new ModelException(ModelErrorCodes.FrameCorrupt, $"Label map '{path}' is damaged: {e.Message}", e);
+            throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.Corrupt, $"Label map '{path}' is damaged: {e.Message}", e);
         }
     }
 }

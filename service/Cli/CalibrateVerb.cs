@@ -79,12 +79,7 @@ public static class CalibrateVerb
                 stderr.WriteLine("Stopped. Progress up to the last checkpoint is kept: run the same command again to resume.");
                 return Task.FromResult(Interrupted);
             }
-            catch (ModelException e)
-            {
-                stderr.WriteLine($"error [{e.Code}]: {e.Message}");
-                return Task.FromResult(BadInput);
-            }
-            catch (ScoringInputException e)
+            catch (Strayspot.Scoring.CodedException e)
             {
                 stderr.WriteLine($"error [{e.Code}]: {e.Message}");
                 return Task.FromResult(BadInput);

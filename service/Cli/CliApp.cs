@@ -23,6 +23,7 @@ public static class CliApp
         root.Subcommands.Add(CheckInputVerb.Create());
         root.Subcommands.Add(EvaluateVerb.Create());
         root.Subcommands.Add(ServeVerb.Create());
+        root.Subcommands.Add(WorkVerb.Create());
         root.Subcommands.Add(HealthcheckVerb.Create());
         root.Subcommands.Add(ManifestVerb.Create());
         return root;
@@ -57,7 +58,7 @@ public static class CliApp
         {
             return body();
         }
-        catch (ScoringInputException e)
+        catch (Strayspot.Scoring.CodedException e)
         {
             Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
             return ExitBadInput;
@@ -65,11 +66,6 @@ public static class CliApp
         catch (Exception e) when (e is FileNotFoundException or DirectoryNotFoundException or UnauthorizedAccessException)
         {
             Console.Error.WriteLine($"error [file]: {e.Message}");
-            return ExitBadInput;
-        }
-        catch (Models.ModelException e)
-        {
-            Console.Error.WriteLine($"error [{e.Code}]: {e.Message}");
             return ExitBadInput;
         }
     }

@@ -21,14 +21,31 @@ public static class DemoVerb
             var (modelFolder, frames) = BundledDemo.Extract(Path.Combine(root, "model"), Path.Combine(root, "frames"));
             using var local = LocalModel.Open(modelFolder);
             string scores = Path.Combine(root, "scores");
+            var truth = GroundTruth(frames);
+            var tallies = new Dictionary<string, DemoFrameTally>(StringComparer.Ordinal);
             var ranking = FrameProgress.Run("scoring", frames.Count, Console.Out,
-                progress => ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames(frames), local.Version.Defaults, scores, progress));
+                progress => ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames(frames), local.Version.Defaults, scores, progress, inspect: (file, scored) =>
+                {
+                    if (truth.TryGetValue(file, out var t))
+                        tallies[file] = DemoFrameTally.Count(scored.Regions.Labels, scored.Regions.Regions.Count, t.DebrisMask, scored.Width, scored.Height);
+                }));
             Console.WriteLine($"Demo model:  {modelFolder}");
             Console.WriteLine($"Frames:      {Path.Combine(root, "frames")}");
             Console.WriteLine($"Results:     {scores}  (per frame: report.json, classes.png, heat.png, mask.png, overlay.png, score.npy)");
-            Console.WriteLine("Frames by frame score, highest first:");
+            Console.WriteLine("Frames by frame score, highest first, checked against the ground truth the scene generator made:");
+            Console.WriteLine("  frame score  regions  on debris  false  debris pieces found  frame");
             foreach (var r in ranking)
-                Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {Path.GetFileName(r.Frame)}");
+            {
+                string name = Path.GetFileName(r.Frame);
+                if (!tallies.TryGetValue(r.Frame, out var t))
+                    Console.WriteLine($"  {r.FrameScore,11:0.000}  {r.RegionCount,7}  {"?",9}  {"?",5}  {"no ground truth",19}  {name}");
+                else
+                {
+                    string pieces = t.Pieces == 0 ? "none painted" : $"{t.PiecesFound} of {t.Pieces}";
+                    Console.WriteLine($"  {r.FrameScore,11:0.000}  {t.Regions,7}  {t.OnDebris,9}  {t.False,5}  {pieces,19}  {name}");
+                }
+            }
+            Console.WriteLine("A region is on debris when any of its pixels is debris; every region on a frame without debris is false.");
             return CliApp.ExitOk;
         }));
 
@@ -59,5 +76,22 @@ public static class DemoVerb
         }));
         command.Subcommands.Add(heldOut);
         return command;
+    }
+
+    /// <summary>
+    /// The generator's ground truth for each extracted frame, regenerated from code; a frame whose pixels differ from
+    /// the regenerated one (an executable built from other demo files) gets none rather than a wrong one.
+    /// </summary>
+    private static Dictionary<string, DemoFrame> GroundTruth(IReadOnlyList<string> frames)
+    {
+        var byName = DemoAssets.DemoFrames().ToDictionary(f => f.FileName, StringComparer.Ordinal);
+        var truth = new Dictionary<string, DemoFrame>(StringComparer.Ordinal);
+        foreach (string file in frames)
+        {
+            if (!byName.TryGetValue(Path.GetFileName(file), out var demo)) continue;
+            var (rgb, width, height) = DemoPng.LoadRgb(file);
+            if (width == demo.Frame.Width && height == demo.Frame.Height && rgb.AsSpan().SequenceEqual(demo.Frame.Rgb)) truth[file] = demo;
+        }
+        return truth;
     }
 }

@@ -53,7 +53,8 @@ public static class ManifestVerb
             }
             try
             {
-                using var store = new BatchStore(dbPath);
+                using var database = Store.BatchDatabase.OpenSqlite(dbPath);
+                var store = database.Batches;
                 if (!BatchService.IsBatchId(id) || store.Get(id) is not { } record)
                 {
                     var known = store.List(10).Select(b => b.Id).ToList();
@@ -61,7 +62,7 @@ public static class ManifestVerb
                                   (known.Count > 0 ? $"; the newest are {string.Join(", ", known)}." : "; it holds no batches."));
                     return BadInput;
                 }
-                var decisions = store.Decisions(id);
+                var decisions = database.Decisions.Current(id);
                 var lines = Manifest.Lines(record, store.Frames(id), decisions, only);
                 string target = parse.GetValue(output)?.FullName
                                 ?? Path.Combine(options.ResolveRoot(dataRoot), id, only is null ? Manifest.FileName : $"manifest.{only}.jsonl");

@@ -19,7 +19,7 @@ public static class ScoreVerb
     public static Command Create()
     {
         var model = new Argument<DirectoryInfo>("model") { Description = "model folder (model.onnx, descriptor.json, calibration.json or statistics.json, optional profile.json)" };
-        var frames = new Argument<string[]>("frames") { Description = $"frame files ({FrameFormats.Listed}), folders of them (subfolders included) or .zip/.tar archives of them", Arity = ArgumentArity.OneOrMore };
+        var frames = new Argument<string[]>("frames") { Description = $"frame files ({FrameFormats.Listed}), folders of them (subfolders included), .zip/.tar archives of them, or recordings (video files; folders with --sequence)", Arity = ArgumentArity.OneOrMore };
         var output = new Option<DirectoryInfo>("--out") { Description = "output folder", Required = true };
         var threads = new Option<int?>("--threads") { Description = "ONNX Runtime intra-op threads (default or 0: every core)" };
         var artifacts = new Option<string?>("--artifacts")
@@ -28,17 +28,23 @@ public static class ScoreVerb
                           $"(default: {string.Join(",", LeanArtifacts)}; report.json is always written)",
         };
         var scoring = new ScoringOptionsBinding();
-        var command = new Command("score", "Score frames through a model and write reports and PNG artifacts.");
+        var recordings = new RecordingOptionsBinding();
+        var command = new Command("score", "Score frames or recordings through a model and write reports and PNG artifacts (tracks for recordings).");
         command.Arguments.Add(model);
         command.Arguments.Add(frames);
         command.Options.Add(output);
         command.Options.Add(threads);
         command.Options.Add(artifacts);
         scoring.AddTo(command);
+        recordings.AddTo(command);
         command.SetAction(p => CliApp.Guard(() =>
         {
-            var files = ExpandFrames(p.GetValue(frames)!);
-            if (files.Count == 0) throw new ModelException(ModelErrorCodes.FrameFormat, $"The frames given hold no {FrameFormats.Listed} files.");
+            var (videos, loose) = recordings.Split(p, p.GetValue(frames)!);
+            var recordingOptions = recordings.Options(p);
+            var tracking = recordings.Tracking(p);
+            var files = loose.Count > 0 ? ExpandFrames(loose) : [];
+            if (files.Count == 0 && videos.Count == 0)
+                throw new FrameException(FrameErrorCodes.Missing, $"The frames given hold no {FrameFormats.Listed} files.");
             using var local = LocalModel.Open(p.GetValue(model)!.FullName, ParallelSettings.FromThreads(p.GetValue(threads)));
             if (local.Version.Warning is not null) Console.Error.WriteLine($"warning: {local.Version.Warning}");
             var options = scoring.Apply(p, local.Version.Defaults);
@@ -46,6 +52,8 @@ public static class ScoreVerb
             foreach (var w in local.Version.WarningsFor(0, 0, options).Where(w => w.Code == ScoringWarnings.ThresholdOutOfRange))
                 Console.Error.WriteLine($"warning [{w.Code}]: {w.Message}");
             string outFolder = p.GetValue(output)!.FullName;
+            if (videos.Count > 0) ScoreRecordings.Run(local, videos, recordingOptions, tracking, options, outFolder, Console.Out);
+            if (files.Count == 0) return CliApp.ExitOk;
             var chosen = ParseArtifacts(p.GetValue(artifacts));
             var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(local, files, options, outFolder, progress, chosen));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
@@ -82,9 +90,13 @@ public static class ScoreVerb
         return names.Distinct().ToList();
     }
 
-    /// <summary>Scores each frame into its own subfolder (named by the frame's file stem) and writes ranking.json.</summary>
+    /// <summary>
+    /// Scores each frame into its own subfolder (named by the frame's file stem) and writes ranking.json.
+    /// <paramref name="inspect"/> sees each frame's scored maps (with the frame's path or id) while they are valid.
+    /// </summary>
     public static IReadOnlyList<RankedFrame> ScoreAll(LocalModel model, IReadOnlyList<SourceFrame> files, ScoringOptions options,
-        string outFolder, IProgress<FrameCount>? progress = null, IReadOnlyList<string>? artifacts = null)
+        string outFolder, IProgress<FrameCount>? progress = null, IReadOnlyList<string>? artifacts = null,
+        Action<string, FrameScoring>? inspect = null)
     {
         Directory.CreateDirectory(outFolder);
         var decoder = new FrameDecoder();
@@ -97,9 +109,13 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = files[i].Decode(decoder);
-            var report = model.Runner.Score(model.Lease, frame, options,
-                (scored, timings) => output.WriteAll(scored, timings, options, stem, folder, frame.Image, artifacts));
-            ranked.Add(new RankedFrame(files[i].Path ?? files[i].Id, report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, Rendering.ArtifactWriter.ReportFile)));
+            string file = files[i].Path ?? files[i].Id;
+            var report = model.Runner.Score(model.Lease, frame, options, (scored, timings) =>
+            {
+                inspect?.Invoke(file, scored);
+                return output.WriteAll(scored, timings, options, stem, folder, frame.Image, artifacts);
+            });
+            ranked.Add(new RankedFrame(file, report.FrameScore, report.Regions.Count, report.AnomalousShare, Path.Combine(stem, Rendering.ArtifactWriter.ReportFile)));
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
         ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));

@@ -48,7 +48,9 @@ public static class ServeVerb
         try
         {
             await using var app = ServiceHost.Build(settings);
-            await app.RunAsync(ct);
+            // Started, then checked against the addresses Kestrel really bound, before anything is served for long.
+            await ServiceHost.StartCheckedAsync(app, ct);
+            await app.WaitForShutdownAsync(ct);
             return 0;
         }
         catch (OptionsValidationException e)

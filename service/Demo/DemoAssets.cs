@@ -24,6 +24,9 @@ public sealed record DemoBuildOptions
     public DemoTrainingOptions Training { get; init; } = new();
 }
 
+/// <summary>One demo frame as written under frames/, and its debris mask (null: an ordinary frame).</summary>
+public sealed record DemoFrame(string FileName, ApronFrame Frame, byte[]? DebrisMask);
+
 public sealed record DemoBuildResult(DemoModel Model, CalibrationArtifact Calibration, IReadOnlyList<string> Files)
 {
     public ClassStatistics Statistics => Calibration.ToStatistics();
@@ -64,23 +67,39 @@ public static class DemoAssets
 
         string frames = Path.Combine(folder, FramesFolder);
         Directory.CreateDirectory(frames);
-        var demo = ApronSceneSet.Normal(options.DemoFrames, options.DemoSeed, options.Width, options.Height);
-        for (int i = 0; i < demo.Count; i++)
+        foreach (var demo in DemoFrames(options))
         {
-            var frame = demo[i];
-            string name = $"apron_{i + 1:D2}.png";
-            if (i < options.DemoDebrisFrames)
-            {
-                frame = ApronDebrisPainter.Paint(frame, ApronSceneSet.FrameSeed(options.DemoSeed, i) + 7919, 4).Frame;
-                name = $"apron_{i + 1:D2}_debris.png";
-            }
-            string path = Path.Combine(frames, name);
-            DemoPng.SaveRgb(path, frame.Rgb, frame.Width, frame.Height);
+            string path = Path.Combine(frames, demo.FileName);
+            DemoPng.SaveRgb(path, demo.Frame.Rgb, demo.Frame.Width, demo.Frame.Height);
             files.Add(path);
         }
 
         files.AddRange(WriteHeldOut(Path.Combine(folder, HeldOutFolder), options.HeldOutFrames, options));
         return new DemoBuildResult(model, calibration, files);
+    }
+
+    /// <summary>
+    /// The frames under frames/ with the ground truth the scene generator produced: <see cref="DemoFrame.DebrisMask"/>
+    /// (0 normal, 1 debris, 255 ignore) on the debris frames, null on the ordinary ones.
+    /// </summary>
+    public static IReadOnlyList<DemoFrame> DemoFrames(DemoBuildOptions? options = null)
+    {
+        options ??= new DemoBuildOptions();
+        var scenes = ApronSceneSet.Normal(options.DemoFrames, options.DemoSeed, options.Width, options.Height);
+        var result = new List<DemoFrame>(scenes.Count);
+        for (int i = 0; i < scenes.Count; i++)
+        {
+            if (i < options.DemoDebrisFrames)
+            {
+                var debris = ApronDebrisPainter.Paint(scenes[i], ApronSceneSet.FrameSeed(options.DemoSeed, i) + 7919, 4);
+                result.Add(new DemoFrame($"apron_{i + 1:D2}_debris.png", debris.Frame, debris.AnomalyMask));
+            }
+            else
+            {
+                result.Add(new DemoFrame($"apron_{i + 1:D2}.png", scenes[i], null));
+            }
+        }
+        return result;
     }
 
     /// <summary>Writes the first <paramref name="count"/> held-out debris frames and masks as frame_NNN.png / mask_NNN.png.</summary>

@@ -5,14 +5,15 @@ namespace Strayspot.Service.Demo;
 /// colour means over 4×4 cells (stride 4), their 5×5 neighbourhood mean, the mean gradient magnitude of grey over each
 /// cell (texture, log scale), its 5×5 neighbourhood mean, 15×15 neighbourhood means of colour and texture (the
 /// surroundings a larger network would see), and the cell row's height in the frame, (row + 0.5) / rows (the prior a
-/// convolutional network learns from padding: sky above, ground below). Output is [Count, H/4, W/4] planar, channels
-/// in that order.
+/// convolutional network learns from padding: sky above, ground below), and the largest chroma (max − min of R, G, B)
+/// of any pixel in the cell (a few saturated pixels stand out even where the cell mean is the ground's). Output is
+/// [Count, H/4, W/4] planar, channels in that order.
 /// </summary>
 public static class DemoFeatures
 {
     public const int Stride = 4;
     public const int Context = 5;
-    public const int Count = 13;
+    public const int Count = 14;
     public const int WideContext = 15;
     public const float GradientEpsilon = 1e-6f;
     public static readonly float[] GreyWeights = [0.299f, 0.587f, 0.114f];
@@ -87,6 +88,20 @@ public static class DemoFeatures
         NeighbourhoodMean(features.AsSpan(6 * m, m), features.AsSpan(11 * m, m), h, w, WideContext);
         var row = features.AsSpan(12 * m, m);
         for (int y = 0; y < h; y++) row.Slice(y * w, w).Fill((y + 0.5f) / h);
+        var chroma = features.AsSpan(13 * m, m);
+        for (int cy = 0; cy < h; cy++)
+            for (int cx = 0; cx < w; cx++)
+            {
+                float most = float.NegativeInfinity;
+                for (int dy = 0; dy < Stride; dy++)
+                    for (int dx = 0; dx < Stride; dx++)
+                    {
+                        int i = (cy * Stride + dy) * width + cx * Stride + dx;
+                        float r = input[i], g = input[n + i], b = input[2 * n + i];
+                        most = MathF.Max(most, MathF.Max(r, MathF.Max(g, b)) - MathF.Min(r, MathF.Min(g, b)));
+                    }
+                chroma[cy * w + cx] = most;
+            }
         return features;
     }
 

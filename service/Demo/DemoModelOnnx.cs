@@ -31,11 +31,21 @@ public static class DemoModelOnnx
         g.Initializer.Add(Floats("sum_sq_eps", [DemoFeatures.GradientEpsilon], 1));
         g.Initializer.Add(Floats("feature_mean", model.FeatureMean, 1, d, 1, 1));
         g.Initializer.Add(Floats("feature_std", model.FeatureStd, 1, d, 1, 1));
-        g.Initializer.Add(Floats("centres", model.Centres, 1, k, d, 1, 1));
+        // |z - c|² = |z|² - 2 z·c + |c|²: one 1×1 convolution instead of a [k, d, h, w] difference tensor.
+        var minusTwoCentres = new float[model.Centres.Length];
+        for (int i = 0; i < minusTwoCentres.Length; i++) minusTwoCentres[i] = -2f * model.Centres[i];
+        var centreNorms = new float[k];
+        for (int i = 0; i < k; i++)
+        {
+            double sum = 0;
+            for (int j = 0; j < d; j++) sum += (double)model.Centres[i * d + j] * model.Centres[i * d + j];
+            centreNorms[i] = (float)sum;
+        }
+        g.Initializer.Add(Floats("minus_two_centres", minusTwoCentres, k, d, 1, 1));
+        g.Initializer.Add(Floats("centre_norms", centreNorms, k));
         g.Initializer.Add(Floats("neg_inv_two_s2", [(float)(-1.0 / (2.0 * model.Bandwidth * model.Bandwidth))]));
         g.Initializer.Add(Floats("head_w", model.Weights, c, k, 1, 1));
         g.Initializer.Add(Longs("axis_1", [1L], 1));
-        g.Initializer.Add(Longs("axis_2", [2L], 1));
         g.Initializer.Add(Longs("rows_dim", [2L]));
         g.Initializer.Add(Floats("half", [0.5f]));
         g.Initializer.Add(Floats("one", [1f]));
@@ -67,14 +77,18 @@ public static class DemoModelOnnx
         g.Node.Add(Node("Div", ["row_centres", "cell_rows_f"], "row_fraction"));
         g.Node.Add(Node("Reshape", ["row_fraction", "row_column_shape"], "row_column"));
         g.Node.Add(Node("Expand", ["row_column", "cell_shape"], "row_position"));
-        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context", "colour_wide", "texture_wide", "row_position"],
+        g.Node.Add(Node("ReduceMax", [InputName], "channel_max", Ints("axes", 1), Int("keepdims", 1)));
+        g.Node.Add(Node("ReduceMin", [InputName], "channel_min", Ints("axes", 1), Int("keepdims", 1)));
+        g.Node.Add(Node("Sub", ["channel_max", "channel_min"], "chroma"));
+        g.Node.Add(Node("MaxPool", ["chroma"], "chroma_cell", Ints("kernel_shape", s, s), Ints("strides", s, s)));
+        g.Node.Add(Node("Concat", ["colour_cell", "colour_context", "texture_cell", "texture_context", "colour_wide", "texture_wide", "row_position", "chroma_cell"],
             "features", Int("axis", 1)));
         g.Node.Add(Node("Sub", ["features", "feature_mean"], "features_centred"));
         g.Node.Add(Node("Div", ["features_centred", "feature_std"], "features_std"));
-        g.Node.Add(Node("Unsqueeze", ["features_std", "axis_1"], "features_5d"));
-        g.Node.Add(Node("Sub", ["features_5d", "centres"], "offsets"));
-        g.Node.Add(Node("Mul", ["offsets", "offsets"], "offsets_sq"));
-        g.Node.Add(Node("ReduceSum", ["offsets_sq", "axis_2"], "distance_sq", Int("keepdims", 0)));
+        g.Node.Add(Node("Mul", ["features_std", "features_std"], "features_sq"));
+        g.Node.Add(Node("ReduceSum", ["features_sq", "axis_1"], "features_norm", Int("keepdims", 1)));
+        g.Node.Add(Node("Conv", ["features_std", "minus_two_centres", "centre_norms"], "cross_terms"));
+        g.Node.Add(Node("Add", ["cross_terms", "features_norm"], "distance_sq"));
         g.Node.Add(Node("Mul", ["distance_sq", "neg_inv_two_s2"], "exponent"));
         g.Node.Add(Node("Exp", ["exponent"], "activations"));
         g.Node.Add(Node("Conv", ["activations", "head_w"], OutputName));

@@ -4,7 +4,7 @@ namespace Strayspot.Service.Demo;
 public sealed record DemoTrainingOptions
 {
     /// <summary>Prototypes per class (k-means on that class's training features).</summary>
-    public int CentresPerClass { get; init; } = 16;
+    public int CentresPerClass { get; init; } = 32;
     /// <summary>Radial-basis width in standardized feature units.</summary>
     public float Bandwidth { get; init; } = 1.6f;
     public int Steps { get; init; } = 250;
@@ -16,6 +16,10 @@ public sealed record DemoTrainingOptions
     /// <summary>Pixels per class the prototypes are clustered from.</summary>
     public int ClusterSamplesPerClass { get; init; } = 4000;
     public int KMeansIterations { get; init; } = 15;
+    /// <summary>Share of each class's cluster and head samples drawn from cells next to another class.</summary>
+    public double BoundaryShare { get; init; } = 0.5;
+    /// <summary>Cells within this many cells of another class count as boundary cells.</summary>
+    public int BoundaryReach { get; init; } = 1;
     public int Seed { get; init; } = 2718;
 }
 
@@ -25,12 +29,15 @@ public sealed record DemoTrainingOptions
 /// </summary>
 public static class DemoModelTrainer
 {
+    private const int GradientChunks = 8;
+
     public static DemoModel Train(IReadOnlyList<ApronFrame> frames, DemoTrainingOptions options)
     {
         if (frames.Count == 0) throw new ArgumentException("Training needs at least one frame.", nameof(frames));
         int d = DemoFeatures.Count, classes = ApronClasses.Count;
         var samples = new List<float>();
         var labels = new List<byte>();
+        var nearEdge = new List<bool>();
         foreach (var f in frames)
         {
             var input = DemoFeatures.ToInput(f.Rgb, f.Width, f.Height);
@@ -42,6 +49,7 @@ public static class DemoModelTrainer
                 if (cellLabels[p] >= classes) continue;
                 for (int j = 0; j < d; j++) samples.Add(feat[j * m + p]);
                 labels.Add(cellLabels[p]);
+                nearEdge.Add(NearOtherClass(cellLabels, h, w, p, options.BoundaryReach, classes));
             }
         }
         int n = labels.Count;
@@ -69,7 +77,7 @@ public static class DemoModelTrainer
             var members = new List<int>();
             for (int i = 0; i < n; i++) if (y[i] == c) members.Add(i);
             if (members.Count == 0) continue;
-            var picked = Subsample(members, options.ClusterSamplesPerClass, rng);
+            var picked = Stratified(members, nearEdge, options.ClusterSamplesPerClass, options.BoundaryShare, rng);
             centres.AddRange(KMeans(x, d, picked, Math.Min(options.CentresPerClass, picked.Count), options.KMeansIterations, rng));
         }
         var centreArray = centres.ToArray();
@@ -77,7 +85,7 @@ public static class DemoModelTrainer
 
         var all = new List<int>(n);
         for (int i = 0; i < n; i++) all.Add(i);
-        var head = Subsample(all, options.HeadSamples, rng);
+        var head = Stratified(all, nearEdge, options.HeadSamples, options.BoundaryShare, rng);
         var probe = new DemoModel(mean, std, centreArray, options.Bandwidth, new float[classes * k], classes);
         int ns = head.Count;
         var phi = new double[ns * k];
@@ -89,6 +97,32 @@ public static class DemoModelTrainer
         }
         var weights = FitSoftmax(phi, target, ns, k, classes, options);
         return new DemoModel(mean, std, centreArray, options.Bandwidth, weights, classes);
+    }
+
+    private static bool NearOtherClass(byte[] cells, int h, int w, int p, int reach, int classes)
+    {
+        int cy = p / w, cx = p % w;
+        byte own = cells[p];
+        for (int yy = Math.Max(0, cy - reach); yy <= Math.Min(h - 1, cy + reach); yy++)
+            for (int xx = Math.Max(0, cx - reach); xx <= Math.Min(w - 1, cx + reach); xx++)
+            {
+                byte l = cells[yy * w + xx];
+                if (l < classes && l != own) return true;
+            }
+        return false;
+    }
+
+    /// <summary>Up to <paramref name="count"/> items, <paramref name="edgeShare"/> of them (when available) from cells near another class.</summary>
+    private static List<int> Stratified(List<int> items, List<bool> nearEdge, int count, double edgeShare, ApronRandom rng)
+    {
+        if (edgeShare <= 0 || items.Count <= count) return Subsample(items, count, rng);
+        var edge = new List<int>();
+        var inner = new List<int>();
+        foreach (int i in items) (nearEdge[i] ? edge : inner).Add(i);
+        int fromEdge = Math.Min(edge.Count, (int)Math.Round(count * edgeShare));
+        var picked = Subsample(edge, fromEdge, rng);
+        picked.AddRange(Subsample(inner, count - fromEdge, rng));
+        return picked;
     }
 
     private static List<int> Subsample(List<int> items, int count, ApronRandom rng)
@@ -166,37 +200,44 @@ public static class DemoModelTrainer
     {
         var w = new double[classes * k];
         var vw = new double[classes * k];
-        var gw = new double[classes * k];
-        var z = new double[classes];
+        // Fixed chunks summed in chunk order: the same bits on any core count.
+        int chunks = GradientChunks;
+        var partial = new double[chunks][];
+        for (int i = 0; i < chunks; i++) partial[i] = new double[classes * k];
         for (int step = 0; step < o.Steps; step++)
         {
-            Array.Clear(gw);
-            for (int i = 0; i < n; i++)
+            Parallel.For(0, chunks, chunk =>
             {
-                double max = double.NegativeInfinity;
-                for (int c = 0; c < classes; c++)
+                var gw = partial[chunk];
+                Array.Clear(gw);
+                Span<double> z = stackalloc double[classes];
+                int from = (int)((long)n * chunk / chunks), to = (int)((long)n * (chunk + 1) / chunks);
+                for (int i = from; i < to; i++)
                 {
-                    double s = 0;
-                    for (int j = 0; j < k; j++) s += w[c * k + j] * phi[i * k + j];
-                    z[c] = s;
-                    if (s > max) max = s;
+                    var row = phi.AsSpan(i * k, k);
+                    double max = double.NegativeInfinity;
+                    for (int c = 0; c < classes; c++)
+                    {
+                        double s = 0;
+                        for (int j = 0; j < k; j++) s += w[c * k + j] * row[j];
+                        z[c] = s;
+                        if (s > max) max = s;
+                    }
+                    double total = 0;
+                    for (int c = 0; c < classes; c++) { z[c] = Math.Exp(z[c] - max); total += z[c]; }
+                    for (int c = 0; c < classes; c++)
+                    {
+                        double g = z[c] / total - (target[i] == c ? 1 : 0);
+                        for (int j = 0; j < k; j++) gw[c * k + j] += g * row[j];
+                    }
                 }
-                double total = 0;
-                for (int c = 0; c < classes; c++) { z[c] = Math.Exp(z[c] - max); total += z[c]; }
-                for (int c = 0; c < classes; c++)
-                {
-                    double g = z[c] / total - (target[i] == c ? 1 : 0);
-                    for (int j = 0; j < k; j++) gw[c * k + j] += g * phi[i * k + j];
-                }
-            }
-            for (int c = 0; c < classes; c++)
+            });
+            for (int idx = 0; idx < w.Length; idx++)
             {
-                for (int j = 0; j < k; j++)
-                {
-                    int idx = c * k + j;
-                    vw[idx] = o.Momentum * vw[idx] - o.LearningRate * (gw[idx] / n + o.WeightDecay * w[idx]);
-                    w[idx] += vw[idx];
-                }
+                double g = 0;
+                for (int chunk = 0; chunk < chunks; chunk++) g += partial[chunk][idx];
+                vw[idx] = o.Momentum * vw[idx] - o.LearningRate * (g / n + o.WeightDecay * w[idx]);
+                w[idx] += vw[idx];
             }
         }
         var wf = new float[w.Length];

@@ -111,9 +111,9 @@ public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalo
                 Files = OutputFiles.ToDictionary(f => f, f => $"/v1/evaluations/{job.Id}/files/{f}"),
             });
         }
-        catch (Exception e) when (e is ModelException or ScoringInputException or UnsafePathException or IOException)
+        catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException)
         {
-            _jobs.Save(job with { State = "failed", Error = e.Message, FinishedUtc = DateTimeOffset.UtcNow });
+            _jobs.Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Evaluation {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }

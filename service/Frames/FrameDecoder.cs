@@ -24,7 +24,7 @@ public sealed record FrameDecoderOptions
 
 /// <summary>
 /// Turns uploaded or stored image bytes into an upright RGB frame, refusing unknown formats, oversized
-/// headers and damaged data with a <see cref="ModelException"/> before they cost memory.
+/// headers and damaged data with a <see cref="FrameException"/> before they cost memory.
 /// Thread-safe: one instance can serve every request.
 /// </summary>
 public sealed class FrameDecoder
@@ -74,7 +74,7 @@ public sealed class FrameDecoder
         stream = memory;
         long start = stream.Position;
         if (stream.Length - start == 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"{source} is empty (0 bytes).");
+            throw new FrameException(FrameErrorCodes.Format, $"{source} is empty (0 bytes).");
 
         IImageInfo? info;
         IImageFormat? format;
@@ -87,14 +87,14 @@ public sealed class FrameDecoder
             throw Map(e, source);
         }
         if (info is null || format is null)
-            throw new ModelException(ModelErrorCodes.FrameFormat,
+            throw new FrameException(FrameErrorCodes.Format,
                 $"{source} is not a {AcceptedFormats} image (its first bytes match no enabled format).");
 
         long pixels = (long)info.Width * info.Height;
         if (info.Width < 1 || info.Height < 1)
-            throw new ModelException(ModelErrorCodes.FrameCorrupt, $"{source} claims a size of {info.Width}×{info.Height}.");
+            throw new FrameException(FrameErrorCodes.Corrupt, $"{source} claims a size of {info.Width}×{info.Height}.");
         if (pixels > _options.MaxPixels)
-            throw new ModelException(ModelErrorCodes.FrameTooLarge,
+            throw new FrameException(FrameErrorCodes.TooLarge,
                 $"{source} is {info.Width}×{info.Height} = {pixels} pixels; the limit is {_options.MaxPixels}.");
 
         stream.Position = start;
@@ -125,7 +125,7 @@ public sealed class FrameDecoder
     private static void EnsureJpegComplete(ReadOnlySpan<byte> bytes, string source)
     {
         if (!JpegStructure.ReachesEndOfImage(bytes))
-            throw new ModelException(ModelErrorCodes.FrameCorrupt,
+            throw new FrameException(FrameErrorCodes.Corrupt,
                 $"{source} is a truncated or damaged JPEG: its data ends before the end-of-image marker.");
     }
 
@@ -135,13 +135,13 @@ public sealed class FrameDecoder
         e is ImageFormatException or InvalidMemoryOperationException or EndOfStreamException
             or IndexOutOfRangeException or ArgumentException or NotSupportedException or InvalidOperationException;
 
-    private ModelException Map(Exception e, string source) => Innermost(e) switch
+    private FrameException Map(Exception e, string source) => Innermost(e) switch
     {
-        UnknownImageFormatException => new ModelException(ModelErrorCodes.FrameFormat,
+        UnknownImageFormatException => new FrameException(FrameErrorCodes.Format,
             $"{source} is not a {AcceptedFormats} image: {e.Message}", e),
-        InvalidMemoryOperationException => new ModelException(ModelErrorCodes.FrameTooLarge,
+        InvalidMemoryOperationException => new FrameException(FrameErrorCodes.TooLarge,
             $"{source} needs more memory to decode than the {_options.AllocationLimitMegabytes} MB allowed: {e.Message}", e),
-        _ => new ModelException(ModelErrorCodes.FrameCorrupt, $"{source} is damaged or truncated: {e.Message}", e),
+        _ => new FrameException(FrameErrorCodes.Corrupt, $"{source} is damaged or truncated: {e.Message}", e),
     };
 
     // Decoders wrap an allocation refusal in a content error; the cause decides the code.

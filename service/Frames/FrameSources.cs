@@ -53,7 +53,7 @@ public sealed class FolderFrameSource(string folder, bool recursive = true) : IF
     public IEnumerable<SourceFrame> Frames()
     {
         if (!Directory.Exists(Name))
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"Frames folder '{folder}' does not exist.");
+            throw new Hosting.PathException(Hosting.PathErrorCodes.FolderNotFound, $"Frames folder '{folder}' does not exist.");
         var files = new List<(string Id, string Path)>();
         foreach (string file in Directory.EnumerateFiles(Name, "*", recursive ? Walk : Flat))
         {
@@ -114,7 +114,7 @@ public static class FrameSources
             else missing.Add(path);
         }
         if (missing.Count > 0)
-            throw new ModelException(ModelErrorCodes.FrameFormat, $"No such frame file or folder: {string.Join(", ", missing)}.");
+            throw new FrameException(FrameErrorCodes.Missing, $"No such frame file or folder: {string.Join(", ", missing)}.");
         return sources;
     }
 }

@@ -43,3 +43,10 @@ public sealed class JobFolder<TJob>(string root, Func<TJob, string> idOf) where 
         return _jobs.Values.ToList();
     }
 }
+
+/// <summary>The stable codes of calibration and evaluation jobs; never rename one.</summary>
+public static class JobErrorCodes
+{
+    public const string NotFound = "job-not-found";
+    public const string NotFinished = "job-not-finished";
+}

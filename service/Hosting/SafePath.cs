@@ -1,7 +1,17 @@
 namespace Strayspot.Service.Hosting;
 
+/// <summary>A path the service refuses or cannot find; codes in <see cref="PathErrorCodes"/>.</summary>
+public class PathException(string code, string message) : Strayspot.Scoring.CodedException(code, message);
+
 /// <summary>A path from a request that would leave the folder it must stay in.</summary>
-public sealed class UnsafePathException(string message) : Exception(message);
+public sealed class UnsafePathException(string message) : PathException(PathErrorCodes.OutsideData, message);
+
+/// <summary>The stable codes of <see cref="PathException"/>; never rename one.</summary>
+public static class PathErrorCodes
+{
+    public const string OutsideData = "path-outside-data";
+    public const string FolderNotFound = "folder-not-found";
+}
 
 /// <summary>
 /// Resolves a path sent by a client below a root folder and refuses anything that would leave it:
@@ -68,5 +78,40 @@ public static class SafePath
         foreach (string part in fullPath[current.Length..].Split(Path.DirectorySeparatorChar, StringSplitOptions.RemoveEmptyEntries))
             current = RealPath(Path.Combine(current, part));
         return current;
+    }
+}
+
+/// <summary>
+/// Error text for clients: absolute server paths are shown relative to the folder the client knows (the data folder, a
+/// batch folder, the models folder). The server log keeps the absolute paths.
+/// </summary>
+public static class ClientPaths
+{
+    /// <summary><paramref name="message"/> with every path under one of <paramref name="roots"/> made relative to it (most specific root first).</summary>
+    public static string Relative(string message, params string?[] roots)
+    {
+        var forms = new List<string>();
+        foreach (string? root in roots)
+        {
+            if (string.IsNullOrEmpty(root)) continue;
+            string full = Path.TrimEndingDirectorySeparator(Path.GetFullPath(root));
+            forms.Add(full);
+            // Paths resolved through links (SafePath) name the real folder.
+            try
+            {
+                if (Directory.ResolveLinkTarget(full, returnFinalTarget: true) is { } target)
+                    forms.Add(Path.TrimEndingDirectorySeparator(target.FullName));
+            }
+            catch (IOException) { }
+        }
+        // Longest first, so a batch folder wins over the data folder that holds it.
+        foreach (string root in forms.Distinct().OrderByDescending(r => r.Length))
+        {
+            if (root.Length <= 1) continue;
+            message = message.Replace(root + Path.DirectorySeparatorChar, "", StringComparison.Ordinal);
+            message = System.Text.RegularExpressions.Regex.Replace(message,
+                System.Text.RegularExpressions.Regex.Escape(root) + @"(?![\w.-])", ".");
+        }
+        return message;
     }
 }

@@ -44,14 +44,35 @@ public static class ServiceHost
         foreach (var (k, v) in settings.Configuration ?? new Dictionary<string, string?>()) overrides[k] = v;
         builder.Configuration.AddInMemoryCollection(overrides);
 
-        var urls = settings.Urls
-                   ?? builder.Configuration["urls"]?.Split(';', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries)
-                   ?? [ServiceHostSettings.DefaultUrl];
-        // Endpoints declared under Kestrel:Endpoints bypass "urls"; count them for the loopback rule too.
-        var kestrelUrls = builder.Configuration.GetSection("Kestrel:Endpoints").GetChildren()
-            .Select(e => e["Url"]).OfType<string>();
+        // Every source of a listen address counts for the loopback rule: the serve verb's --urls (each token may hold
+        // several addresses separated by ';'), configuration key "urls" (ASPNETCORE_URLS, STRAYSPOT_urls, appsettings)
+        // and endpoints declared under Kestrel:Endpoints (which Kestrel binds in addition, from any source).
+        var urls = settings.Urls is { Count: > 0 } given
+            ? ListenAddresses.Split(given)
+            : ListenAddresses.Split([builder.Configuration["urls"] ?? ""]) is { Count: > 0 } configured ? configured : [ServiceHostSettings.DefaultUrl];
+        string urlSource = settings.Urls is { Count: > 0 } ? "--urls" : builder.Configuration["urls"] is { Length: > 0 } ? "urls (ASPNETCORE_URLS or STRAYSPOT_urls)" : "the default";
+        var declared = urls.Select(u => new ListenAddress(u, urlSource)).ToList();
+        foreach (var e in builder.Configuration.GetSection("Kestrel:Endpoints").GetChildren())
+            declared.Add(new ListenAddress(e["Url"] ?? "(no Url)", $"Kestrel:Endpoints:{e.Key}:Url"));
         builder.WebHost.UseUrls(urls.ToArray());
-        builder.Services.AddSingleton(new ListenAddresses(urls.Concat(kestrelUrls).ToList()));
+        builder.Services.AddSingleton(new ListenAddresses(declared));
+    }
+
+    /// <summary>
+    /// Starts the server, then checks the addresses Kestrel actually bound (the last word on what listens): a wide one
+    /// without API keys stops the server again and throws, like a refused configuration.
+    /// </summary>
+    public static async Task StartCheckedAsync(WebApplication app, CancellationToken ct = default)
+    {
+        await app.StartAsync(ct);
+        var bound = app.Services.GetRequiredService<Microsoft.AspNetCore.Hosting.Server.IServer>()
+            .Features.Get<Microsoft.AspNetCore.Hosting.Server.Features.IServerAddressesFeature>()?.Addresses.ToList() ?? [];
+        var keys = app.Services.GetRequiredService<IOptions<ServiceOptions>>().Value.ApiKeys.Count;
+        if (ListenAddresses.Refusal(bound.Select(a => new ListenAddress(a, "the address Kestrel bound")).ToList(), keys) is { } refusal)
+        {
+            await app.StopAsync(CancellationToken.None);
+            throw new OptionsValidationException(ServiceOptions.Section, typeof(ServiceOptions), [refusal]);
+        }
     }
 
     private static void ConfigureServices(WebApplicationBuilder builder, ServiceHostSettings settings)
@@ -102,7 +123,12 @@ public static class ServiceHost
         services.AddSingleton<ModelCatalog>();
         services.AddHostedService<ModelCatalogLoader>();
         // One parallel policy and one model registry per process: every session and pipeline is built from them.
-        services.AddSingleton(sp => Inference.ParallelSettings.FromThreads(sp.GetRequiredService<IOptions<ServiceOptions>>().Value.IntraOpThreads));
+        // IntraOpThreads 0: the container's CPU quota decides, not the host's core count.
+        services.AddSingleton(sp =>
+        {
+            int threads = sp.GetRequiredService<IOptions<ServiceOptions>>().Value.IntraOpThreads;
+            return Inference.ParallelSettings.FromThreads(threads > 0 ? threads : CpuBudget.Current.IntraOpThreads);
+        });
         services.AddSingleton(sp => new Inference.ModelRegistry(sp.GetRequiredService<Inference.ParallelSettings>()));
         services.AddSingleton<ModelSessions>();
         services.AddHostedService<ModelSessionLoader>();
@@ -204,19 +230,23 @@ public static class ServiceHost
         app.UseAuthentication();
         app.UseAuthorization();
 
-        HealthApi.Map(app);
+        app.MapHealthApi();
         // Scraped like the health endpoints: no key, so keep the port on a trusted network.
         app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
+        // A worker replica takes batch work only: no scoring traffic reaches it.
+        // Read from configuration, not the options: their validation belongs to the start, where it names the setting.
+        if (app.Configuration.GetValue<bool>($"{Batches.BatchOptions.Section}:{nameof(Batches.BatchOptions.WorkerOnly)}")) return;
         Review.ReviewPage.Map(app);
         var v1 = app.MapGroup("/v1");
-        ModelsApi.Map(v1);
-        FramesApi.Map(v1);
-        CalibrationsApi.Map(v1);
-        EvaluationsApi.Map(v1);
-        LogitsApi.Map(v1);
-        ImageFramesApi.Map(v1);
-        BatchesApi.Map(v1);
-        ReviewApi.Map(v1);
+        // One area a file, each an extension on the /v1 group.
+        v1.MapModelsApi();
+        v1.MapArtifactsApi();
+        v1.MapCalibrationsApi();
+        v1.MapEvaluationsApi();
+        v1.MapLogitsApi();
+        v1.MapImageFramesApi();
+        v1.MapBatchesApi();
+        v1.MapReviewApi();
     }
 }
 

@@ -30,7 +30,7 @@ public sealed class ServiceOptions
     public TimeSpan RequestTimeout { get; set; } = TimeSpan.FromSeconds(30);
     /// <summary>Accepted API keys, stored as SHA-256 hashes; required when the service listens beyond loopback.</summary>
     public List<ApiKeyOptions> ApiKeys { get; set; } = new();
-    /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = one per core.</summary>
+    /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = from the container's CPU quota (<see cref="CpuBudget"/>).</summary>
     public int IntraOpThreads { get; set; }
     /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
     public double DriftHalfLifeFrames { get; set; } = 500;
@@ -78,23 +78,40 @@ public sealed class ServiceOptionsValidator(ListenAddresses listen) : IValidateO
                 $"Service:ApiKeys:{i}:Sha256 ('{k.Name}') must be 64 hex digits (the SHA-256 of the key, not the key itself).");
         }
 
-        var wide = listen.Urls.Where(u => !ListenAddresses.IsLoopback(u)).ToList();
-        if (wide.Count > 0 && o.ApiKeys.Count == 0)
-            errors.Add($"The service listens beyond loopback ({string.Join(", ", wide)}) but no API key is configured: " +
-                       "set Service:ApiKeys (e.g. STRAYSPOT_Service__ApiKeys__0__Sha256=<sha256 hex of the key>) or listen on 127.0.0.1.");
+        if (ListenAddresses.Refusal(listen.Declared, o.ApiKeys.Count) is { } refusal) errors.Add(refusal);
 
         return errors.Count == 0 ? ValidateOptionsResult.Success : ValidateOptionsResult.Fail(errors);
     }
 }
 
-/// <summary>The URLs the server was told to listen on, kept so startup can refuse an open port without keys.</summary>
-public sealed class ListenAddresses(IReadOnlyList<string> urls)
+/// <summary>One address the server is told to listen on and the setting that said so.</summary>
+public sealed record ListenAddress(string Url, string Source);
+
+/// <summary>The addresses the server was told to listen on, kept so startup can refuse an open port without keys.</summary>
+public sealed class ListenAddresses(IReadOnlyList<ListenAddress> declared)
 {
-    public IReadOnlyList<string> Urls { get; } = urls;
+    public IReadOnlyList<ListenAddress> Declared { get; } = declared;
+    public IReadOnlyList<string> Urls => Declared.Select(d => d.Url).ToList();
+
+    /// <summary>Every address in the given strings, each of which may list several separated by ';'.</summary>
+    public static List<string> Split(IEnumerable<string> values) =>
+        values.SelectMany(v => v.Split(';', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries)).ToList();
+
+    /// <summary>Why the service must not start (each wide address and its setting), or null.</summary>
+    public static string? Refusal(IReadOnlyList<ListenAddress> addresses, int apiKeys)
+    {
+        if (apiKeys > 0) return null;
+        var wide = addresses.Where(a => !IsLoopback(a.Url)).ToList();
+        if (wide.Count == 0) return null;
+        return $"The service would listen beyond loopback ({string.Join(", ", wide.Select(w => $"{w.Url} from {w.Source}"))}) " +
+               "but no API key is configured: set Service:ApiKeys (e.g. STRAYSPOT_Service__ApiKeys__0__Sha256=<sha256 hex of the key>) " +
+               "or listen on 127.0.0.1 only.";
+    }
 
     public static bool IsLoopback(string url)
     {
-        // "http://*:80", "http://+:80" and "http://0.0.0.0:80" all mean every interface.
+        // "http://*:80", "http://+:80" and "http://0.0.0.0:80" all mean every interface; an unsplit list is never loopback.
+        if (url.Contains(';')) return false;
         int scheme = url.IndexOf("://", StringComparison.Ordinal);
         string rest = scheme >= 0 ? url[(scheme + 3)..] : url;
         string host;

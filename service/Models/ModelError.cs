@@ -1,13 +1,10 @@
 namespace Strayspot.Service.Models;
 
 /// <summary>
-/// A model, descriptor, frame or calibration the service refuses. <see cref="Code"/> is stable
+/// A model, descriptor or calibration the service refuses (frames have <see cref="Frames.FrameException"/>). <see cref="Code"/> is stable
 /// (see <see cref="ModelErrorCodes"/>): HTTP problem details and the command line print it.
 /// </summary>
-public sealed class ModelException(string code, string message, Exception? inner = null) : Exception(message, inner)
-{
-    public string Code { get; } = code;
-}
+public sealed class ModelException(string code, string message, Exception? inner = null) : Scoring.CodedException(code, message, inner);
 
 /// <summary>The stable codes of <see cref="ModelException"/>; never rename one.</summary>
 public static class ModelErrorCodes
@@ -16,9 +13,6 @@ public static class ModelErrorCodes
     public const string ModelInvalid = "model-invalid";
     public const string ModelOutputMismatch = "model-output-mismatch";
     public const string ModelExternalData = "model-external-data";
-    public const string FrameFormat = "frame-format";
-    public const string FrameTooLarge = "frame-too-large";
-    public const string FrameCorrupt = "frame-corrupt";
     public const string CalibrationModelMismatch = "calibration-model-mismatch";
     public const string CalibrationInvalid = "calibration-invalid";
     /// <summary>Same string as the API's code: SML asked for, but the model has no class statistics.</summary>

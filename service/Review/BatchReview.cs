@@ -10,9 +10,15 @@ using Strayspot.Service.Reports;
 namespace Strayspot.Service.Review;
 
 /// <summary>A refused review request; <see cref="Code"/> is an API error code.</summary>
-public sealed class ReviewException(string code, string message) : Exception(message)
+public sealed class ReviewException(string code, string message) : Strayspot.Scoring.CodedException(code, message);
+
+/// <summary>The stable codes of <see cref="ReviewException"/>; never rename one.</summary>
+public static class ReviewErrorCodes
 {
-    public string Code { get; } = code;
+    public const string FrameNotFound = "frame-not-found";
+    public const string FrameNotScored = "frame-not-scored";
+    public const string RegionNotFound = "region-not-found";
+    public const string NoteTooLong = "note-too-long";
 }
 
 public sealed record ReviewClass(
@@ -88,7 +94,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
     {
         var batch = Batch(id);
         var frames = batches.Store.FrameSummaries(id);
-        var decisions = batches.Store.Decisions(id);
+        var decisions = batches.Decisions.Current(id);
         var decided = new Dictionary<int, int>();
         var frameVerdicts = new Dictionary<int, string>();
         foreach (var d in decisions)
@@ -126,7 +132,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var regions = Manifest.ReadRegions(frame.RegionsJson);
         Decision? frameDecision = null;
         var byRegion = new Dictionary<int, Decision>();
-        foreach (var d in batches.Store.Decisions(id, seq))
+        foreach (var d in batches.Decisions.Current(id, seq))
         {
             if (d.Region is int r) byRegion[r] = d;
             else frameDecision = d;
@@ -177,7 +183,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             throw new ReviewException(Api.ErrorCodes.ValidationFailed, "The note holds control characters; only text, tabs and line breaks are kept.");
         var batch = Batch(id);
         CheckTarget(batch, seq, region);
-        return batches.Store.Decide(id, seq, region, verdict!, note, decidedBy);
+        return batches.Decisions.Decide(id, seq, region, verdict!, note, decidedBy);
     }
 
     /// <summary>Withdraws a decision; false when the target had none.</summary>
@@ -185,7 +191,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
     {
         var batch = Batch(id);
         CheckTarget(batch, seq, region);
-        return batches.Store.Withdraw(id, seq, region, decidedBy);
+        return batches.Decisions.Withdraw(id, seq, region, decidedBy);
     }
 
     public IReadOnlyList<Decision> Decisions(string id, string? verdict)
@@ -193,14 +199,14 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         Batch(id);
         if (verdict is not null && !Verdicts.IsKnown(verdict))
             throw new ReviewException(Api.ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Verdicts.All)}; got '{verdict}'.");
-        var all = batches.Store.Decisions(id);
+        var all = batches.Decisions.Current(id);
         return verdict is null ? all : all.Where(d => d.Verdict == verdict).ToList();
     }
 
     public IReadOnlyList<DecisionEntry> Log(string id, long after, int limit)
     {
         Batch(id);
-        return batches.Store.DecisionLog(id, after, Math.Clamp(limit, 1, 10_000));
+        return batches.Decisions.Log(id, after, Math.Clamp(limit, 1, 10_000));
     }
 
     private void CheckTarget(BatchRecord batch, int seq, int? region)

@@ -117,7 +117,7 @@ public static class EvaluationBench
         Console.WriteLine("Ratios are medians of whole passes over the same files; the evaluation also reads each mask, spills the full method's map to disk for the threshold pass, and writes metrics, plots and frames.csv.");
     }
 
-    private static string RepositoryRoot()
+    internal static string RepositoryRoot()
     {
         var dir = new DirectoryInfo(AppContext.BaseDirectory);
         while (dir is not null && !File.Exists(Path.Combine(dir.FullName, "Service.sln"))) dir = dir.Parent;

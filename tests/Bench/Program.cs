@@ -2,10 +2,18 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), runtime, service, evaluation, review, all.
+/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, load, evaluation, review, recordings, all; replicas (worker processes on
+/// PostgreSQL: started on its own, not by all).
 /// </summary>
 public static class Program
 {
+    /// <summary><c>--frames-at-once N</c>: Service:MaxConcurrentFrames for the load suite.</summary>
+    private static int? FramesAtOnce(string[] args)
+    {
+        int i = Array.IndexOf(args, "--frames-at-once");
+        return i >= 0 && i + 1 < args.Length && int.TryParse(args[i + 1], out int n) && n > 0 ? n : null;
+    }
+
     public static int Main(string[] args)
     {
         string suite = args.Length > 0 && !args[0].StartsWith("--") ? args[0] : "scoring";
@@ -16,12 +24,16 @@ public static class Program
         switch (suite)
         {
             case "scoring": ScoringBench.Run(runs); return 0;
+            case "chain": PostHocChainBench.Run(runs); return 0;
+            case "load": LoadBench.Run(runs, FramesAtOnce(args)); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
             case "service": ServiceBench.Run(runs); return 0;
             case "evaluation": EvaluationBench.Run(runs); return 0;
             case "review": ReviewBench.Run(runs); return 0;
-            case "all": ScoringBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, runtime, service, evaluation, review, all"); return 2;
+            case "recordings": RecordingBench.Run(runs); return 0;
+            case "replicas": ReplicaBench.Run(Math.Min(runs, 5)); return 0;
+            case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); RecordingBench.Run(runs); return 0;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, load, evaluation, review, recordings, replicas, all"); return 2;
         }
     }
 }

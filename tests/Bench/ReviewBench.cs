@@ -42,26 +42,28 @@ public static class ReviewBench
     {
         Seed(db, frames);
         var open = Stopwatch.StartNew();
-        using var store = new BatchStore(db); // builds the region index from the frames' stored regions
+        using var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(db); // schema step 2 builds the region index from the frames' stored regions
+        var store = database.Batches;
+        var decisions = database.Decisions;
         double openMs = open.Elapsed.TotalMilliseconds;
         var rng = new Random(5);
         for (int i = 0; i < frames * RegionsPerFrame / 20; i++)
-            store.Decide("big", 1 + rng.Next(frames), 1 + rng.Next(RegionsPerFrame), i % 3 == 0 ? Verdicts.FalseAlarm : Verdicts.LabelIt, null, "bench");
+            decisions.Decide("big", 1 + rng.Next(frames), 1 + rng.Next(RegionsPerFrame), i % 3 == 0 ? Verdicts.FalseAlarm : Verdicts.LabelIt, null, "bench");
 
         ReviewCounts? a = null, b = null;
         double indexed = Measure.MedianMs(runs, () =>
-            a = ReviewTally.Count(store.FrameSummaries("big"), store.RegionBriefs("big"), store.Decisions("big")));
+            a = ReviewTally.Count(store.FrameSummaries("big"), store.RegionBriefs("big"), decisions.Current("big")));
         double parsed = Measure.MedianMs(runs, () =>
         {
             var all = store.Frames("big");
             var briefs = new List<RegionBrief>();
             foreach (var f in all)
                 foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.ClassBeneath, r.MaxScore));
-            b = ReviewTally.Count(all.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, store.Decisions("big"));
+            b = ReviewTally.Count(all.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, decisions.Current("big"));
         });
         if (a!.Regions != b!.Regions) throw new InvalidOperationException("the two ways of counting disagree");
         int k = 0;
-        double decide = Measure.MedianMs(runs, () => store.Decide("big", 1 + (k++ % frames), 1, Verdicts.Unsure, "bench", "bench"));
+        double decide = Measure.MedianMs(runs, () => decisions.Decide("big", 1 + (k++ % frames), 1, Verdicts.Unsure, "bench", "bench"));
         var inv = CultureInfo.InvariantCulture;
         Console.WriteLine(string.Create(inv, $"| {frames} | {indexed:F1} ms | {parsed:F1} ms | {parsed / indexed:F1}× | {openMs:F0} ms | {decide:F2} ms |"));
     }
@@ -69,9 +71,17 @@ public static class ReviewBench
     /// <summary>A done batch written straight into the tables (one transaction, no fsync per frame), without its index.</summary>
     private static void Seed(string db, int frames)
     {
-        new BatchStore(db).Dispose(); // the schema
+        Strayspot.Service.Store.BatchDatabase.OpenSqlite(db).Dispose(); // the schema
         using var c = new SqliteConnection($"Data Source={db};Pooling=False");
         c.Open();
+        using (var back = c.CreateCommand())
+        {
+            // Back to schema version 1, as a file from before the region index: the next open runs the steps that fill it.
+            back.CommandText = "DELETE FROM schema_version WHERE version > 1; DROP INDEX frames_open; ALTER TABLE frames DROP COLUMN lease_owner; " +
+                               "ALTER TABLE frames DROP COLUMN lease_until; ALTER TABLE frames DROP COLUMN scored_by; " +
+                               "ALTER TABLE batches DROP COLUMN callback_owner; ALTER TABLE batches DROP COLUMN callback_until;";
+            back.ExecuteNonQuery();
+        }
         using var tx = c.BeginTransaction();
         using (var b = c.CreateCommand())
         {

@@ -12,8 +12,7 @@ public static class ScoringBench
 
     public static void Run(int runs)
     {
-        var stats = new ClassStatistics(Enumerable.Range(0, Classes)
-            .Select(c => new ClassStatistic($"class_{c}", 10_000, 8 + 0.1 * c, 1.5 + 0.05 * c)).ToList());
+        var stats = Statistics(Classes);
         var full = new ScoringOptions { Method = ScoreMethod.Sml };
 
         Console.WriteLine();
@@ -24,6 +23,10 @@ public static class ScoringBench
         Console.WriteLine();
         Console.WriteLine("Times are medians in ms; the naive reduction upsamples all C channels to a C×H×W buffer, then reduces.");
     }
+
+    /// <summary>Made-up class statistics for the synthetic logits: means and spreads that grow a little with the class.</summary>
+    internal static ClassStatistics Statistics(int classes) => new(Enumerable.Range(0, classes)
+        .Select(c => new ClassStatistic($"class_{c}", 10_000, 8 + 0.1 * c, 1.5 + 0.05 * c)).ToList());
 
     private static void Case(string name, int h, int w, int frameH, int frameW, ScoringOptions options, ClassStatistics stats, int runs)
     {

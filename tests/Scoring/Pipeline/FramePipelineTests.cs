@@ -111,6 +111,27 @@ public class FramePipelineTests
     }
 
     [Theory]
+    [InlineData(0, 0, 0, float.NaN)]
+    [InlineData(2, 47, 63, float.PositiveInfinity)]
+    [InlineData(1, 20, 9, float.NegativeInfinity)]
+    public void Non_finite_logits_at_frame_size_are_refused_with_where_the_first_one_is(int channel, int y, int x, float bad)
+    {
+        // Logits at frame size are checked inside the reduction, band by band: the error must be the plain check's.
+        foreach (var (h, w) in new[] { (48, 64), (400, 200) })
+        {
+            var data = new float[3 * h * w];
+            for (int i = 0; i < data.Length; i++) data[i] = (i % 7) * 0.5f;
+            data[(channel * h + y) * w + x] = bad;
+            var logits = new LogitsView(data, 3, h, w);
+            var expected = Assert.Throws<ScoringInputException>(() => LogitsValidation.EnsureFinite(logits));
+            var e = Assert.Throws<ScoringInputException>(() =>
+                new FramePipeline(Plain with { Method = ScoreMethod.MaxLogit }, null).Score(logits, h, w));
+            Assert.Equal(ScoringErrorCodes.LogitsNonFinite, e.Code);
+            Assert.Equal(expected.Message, e.Message);
+        }
+    }
+
+    [Theory]
     [InlineData(ScoreMethod.Msp)]
     [InlineData(ScoreMethod.Entropy)]
     [InlineData(ScoreMethod.Energy)]

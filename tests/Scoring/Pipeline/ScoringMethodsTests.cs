@@ -32,13 +32,13 @@ public class ScoringMethodsTests
         var m = ScoringMethods.Of(id);
         Assert.Equal($"\"{m.Name}\"", JsonSerializer.Serialize(id));
         Assert.Equal(id, JsonSerializer.Deserialize<ScoreMethod>($"\"{m.Name}\""));
-        Assert.Equal(id, LogitsForm.ParseMethod(m.Name));
-        Assert.Equal(id, LogitsForm.ParseMethod(m.Name.ToUpperInvariant()));
+        Assert.Equal(id, ScoringForm.ParseMethod(m.Name));
+        Assert.Equal(id, ScoringForm.ParseMethod(m.Name.ToUpperInvariant()));
         Assert.Equal(id, ScoringOptionsBinding.ParseMethod(m.Name));
         foreach (string alias in m.CliAliases)
         {
             Assert.Equal(id, ScoringOptionsBinding.ParseMethod(alias));
-            Assert.Null(LogitsForm.ParseMethod(alias));
+            Assert.Null(ScoringForm.ParseMethod(alias));
         }
     }
 
@@ -84,7 +84,7 @@ public class ScoringMethodsTests
     [Fact]
     public void Unknown_names_are_refused_with_the_table_listed()
     {
-        Assert.Null(LogitsForm.ParseMethod("softmax"));
+        Assert.Null(ScoringForm.ParseMethod("softmax"));
         var e = Assert.Throws<ScoringInputException>(() => ScoringOptionsBinding.ParseMethod("softmax"));
         foreach (var m in ScoringMethods.All) Assert.Contains(m.Name, e.Message);
     }

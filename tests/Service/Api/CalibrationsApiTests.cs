@@ -90,7 +90,7 @@ public class CalibrationsApiTests
 
     [Theory]
     [InlineData("../outside", "path-outside-data", 400)]
-    [InlineData("missing", "frame-format", 415)]
+    [InlineData("missing", "folder-not-found", 404)] // a missing folder is not a frame format problem
     public async Task Folders_outside_the_data_root_or_missing_are_refused(string folder, string code, int status)
     {
         await using var s = await TestService.StartAsync(models => TestService.WriteModel(models, "apron-a"));

@@ -76,7 +76,7 @@ public class ImageFramesApiTests
         string body = await r.Content.ReadAsStringAsync();
         Assert.InRange((int)r.StatusCode, 400, 499);
         string code = JsonDocument.Parse(body).RootElement.GetProperty("code").GetString()!;
-        Assert.Contains(code, new[] { ModelErrorCodes.FrameFormat, ModelErrorCodes.FrameCorrupt });
+        Assert.Contains(code, new[] { Strayspot.Service.Frames.FrameErrorCodes.Format, Strayspot.Service.Frames.FrameErrorCodes.Corrupt });
     }
 
     [Fact]

@@ -49,7 +49,11 @@ public class ReloadUnderTrafficTests
         {
             await Task.Delay(150);
             var put = await s.Client.PutAsync("/v1/models/demo/profile",
-                new StringContent($$"""{ "version": "traffic-{{i}}", "options": { "threshold": {{2 + i}} } }""", Encoding.UTF8, "application/json"));
+                new StringContent($$"""
+                    { "version": "traffic-{{i}}", "options": { "method": "sml", "energyTemperature": 1, "threshold": {{2 + i}}, "minimumRegionArea": 64,
+                      "boundarySuppression": { "enabled": true, "initialWidth": 4, "widthStep": 1, "iterations": 4 },
+                      "smoothing": { "enabled": true, "kernelSize": 7, "sigma": 1, "dilation": 6 } } }
+                    """, Encoding.UTF8, "application/json"));
             Assert.Equal(HttpStatusCode.OK, put.StatusCode);
             versions.Add($"traffic-{i}");
             Assert.Equal(HttpStatusCode.OK, (await s.Client.PostAsync("/v1/models/reload", null)).StatusCode);

@@ -1,4 +1,3 @@
-using System.Collections.Concurrent;
 using System.Diagnostics;
 using System.Text.Json;
 using Strayspot.Service.Batches;
@@ -15,6 +14,11 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
 {
     private const int FrameCount = 12;
 
+    private static Dictionary<string, string> Paused(TimeSpan pause) => new()
+    {
+        ["STRAYSPOT_Service__Batches__PauseBetweenFrames"] = pause.ToString("c"),
+    };
+
     [Fact]
     public async Task Killed_server_resumes_the_batch_without_losing_or_rescoring_frames()
     {
@@ -30,7 +34,7 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
             // A rest between frames keeps the batch from finishing before the kill: the eight frames after the fourth take
             // at least 2 s however fast the server is, while this process (slowed by tests running beside it) polls and
             // kills. The kill lands inside a frame or inside a rest; both must resume cleanly.
-            using (var first = ServerProcess.Start(models, data, port, pause: TimeSpan.FromMilliseconds(250)))
+            using (var first = ServiceProcess.Start(models, data, port, Paused(TimeSpan.FromMilliseconds(250))))
             {
                 using var client = await first.ReadyClientAsync();
                 await PostFolderAsync(client, "night", batchId: "night-1");
@@ -43,8 +47,9 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
 
             int doneAtKill, pendingAtKill;
             Dictionary<string, DateTimeOffset> doneInStore;
-            using (var store = new BatchStore(Path.Combine(data, ".strayspot", "batches.db")))
+            using (var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(Path.Combine(data, ".strayspot", "batches.db")))
             {
+                var store = database.Batches;
                 var b = store.Get("night-1")!;
                 Assert.Equal(BatchStates.Running, b.State);
                 doneAtKill = b.DoneCount;
@@ -61,7 +66,7 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
 
             port = FreePort();
             var restart = Stopwatch.StartNew();
-            using (var second = ServerProcess.Start(models, data, port, pause: TimeSpan.Zero))
+            using (var second = ServiceProcess.Start(models, data, port, Paused(TimeSpan.Zero)))
             {
                 using var client = await second.ReadyClientAsync();
                 var done = await WaitForStateAsync(client, "night-1", "done", TimeSpan.FromSeconds(60));
@@ -94,84 +99,6 @@ public sealed class BatchCrashTests(ITestOutputHelper output)
         finally
         {
             try { Directory.Delete(root, recursive: true); } catch (IOException) { }
-        }
-    }
-
-    /// <summary><c>dotnet strayspot.dll serve</c> from beside the tests, on a loopback port.</summary>
-    private sealed class ServerProcess : IDisposable
-    {
-        private readonly Process _process;
-        private readonly ConcurrentQueue<string> _log = new();
-        private readonly int _port;
-
-        private ServerProcess(Process process, int port)
-        {
-            _process = process;
-            _port = port;
-            process.OutputDataReceived += (_, e) => { if (e.Data is not null) _log.Enqueue(e.Data); };
-            process.ErrorDataReceived += (_, e) => { if (e.Data is not null) _log.Enqueue(e.Data); };
-            process.BeginOutputReadLine();
-            process.BeginErrorReadLine();
-        }
-
-        public static ServerProcess Start(string models, string data, int port, TimeSpan pause)
-        {
-            string dll = Path.Combine(AppContext.BaseDirectory, "strayspot.dll");
-            Assert.True(File.Exists(dll), $"{dll} is missing: the tests project references the service, which copies it here");
-            var info = new ProcessStartInfo("dotnet")
-            {
-                RedirectStandardOutput = true,
-                RedirectStandardError = true,
-                UseShellExecute = false,
-            };
-            foreach (string a in new[] { dll, "serve", "--models", models, "--data", data, "--urls", $"http://127.0.0.1:{port}" })
-                info.ArgumentList.Add(a);
-            info.Environment["STRAYSPOT_Service__Batches__PauseBetweenFrames"] = pause.ToString("c");
-            info.Environment["STRAYSPOT_Service__Batches__PollInterval"] = "00:00:00.200";
-            info.Environment["STRAYSPOT_Service__IntraOpThreads"] = "1";
-            return new ServerProcess(Process.Start(info)!, port);
-        }
-
-        public async Task<HttpClient> ReadyClientAsync()
-        {
-            var client = new HttpClient { BaseAddress = new Uri($"http://127.0.0.1:{_port}"), Timeout = TimeSpan.FromSeconds(10) };
-            var deadline = DateTime.UtcNow + TimeSpan.FromSeconds(60);
-            while (DateTime.UtcNow < deadline)
-            {
-                if (_process.HasExited) break;
-                try
-                {
-                    var r = await client.GetAsync("/readyz");
-                    if (r.IsSuccessStatusCode) return client;
-                }
-                catch (HttpRequestException) { }
-                await Task.Delay(100);
-            }
-            client.Dispose();
-            Assert.Fail($"The server did not become ready (exited: {_process.HasExited}). Log:\n{string.Join('\n', _log)}");
-            return null!;
-        }
-
-        /// <summary>SIGKILL: no shutdown hooks, no flushing; exactly what a crash or an OOM kill does.</summary>
-        public void Kill()
-        {
-            _process.Kill(entireProcessTree: true);
-            _process.WaitForExit(10_000);
-        }
-
-        /// <summary>SIGTERM through the kill command, then wait for the graceful stop.</summary>
-        public async Task StopAsync()
-        {
-            using (var term = Process.Start("kill", ["-TERM", _process.Id.ToString()])) await term.WaitForExitAsync();
-            using var cts = new CancellationTokenSource(TimeSpan.FromSeconds(15));
-            await _process.WaitForExitAsync(cts.Token);
-            Assert.True(_process.ExitCode == 0, $"exit code {_process.ExitCode}. Log:\n{string.Join('\n', _log)}");
-        }
-
-        public void Dispose()
-        {
-            if (!_process.HasExited) Kill();
-            _process.Dispose();
         }
     }
 }

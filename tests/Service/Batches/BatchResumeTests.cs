@@ -33,8 +33,9 @@ public class BatchResumeTests
 
             // The store opened directly, as after a crash: the batch is still running, some frames done.
             List<FrameRecord> done, pending;
-            using (var store = new BatchStore(Path.Combine(data, ".strayspot", "batches.db")))
+            using (var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(Path.Combine(data, ".strayspot", "batches.db")))
             {
+                var store = database.Batches;
                 Assert.Equal(BatchStates.Running, store.Get("run-1")!.State);
                 done = store.Frames("run-1", FrameStates.Done).ToList();
                 pending = store.Frames("run-1", FrameStates.Pending).ToList();
@@ -82,34 +83,31 @@ public class BatchResumeTests
     }
 
     [Fact]
-    public void Store_marks_a_frame_done_once_and_keeps_frame_ids_unique_per_batch()
+    public void Reopened_store_keeps_done_marks_and_voids_the_claims_of_the_process_before()
     {
         string dir = Path.Combine(Path.GetTempPath(), "strayspot-store-" + Guid.NewGuid().ToString("N"));
         string db = Path.Combine(dir, "b.db");
+        var lease = TimeSpan.FromHours(1);
         try
         {
-            using (var store = new BatchStore(db))
+            using (var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(db))
             {
-                var (batch, created, added) = store.Submit("b1", "m", "folder:x", null, [new("a.png", "x/a.png"), new("b.png", "x/b.png"), new("a.png", "x/a2.png")]);
-                Assert.True(created);
-                Assert.Equal(2, added);
-                Assert.Equal(2, batch.FrameCount);
-                var f = store.StartNextFrame("b1")!;
-                Assert.Equal("a.png", f.FrameId);
-                Assert.True(store.CompleteFrame("b1", f.Seq, new FrameResult(1.5f, 0, "frames/00001/report.json", "[]")));
-                Assert.False(store.CompleteFrame("b1", f.Seq, new FrameResult(9f, 0, "frames/00001/report.json", "[]")));
+                var store = database.Batches;
+                store.Submit("b1", "m", "folder:x", null, [new("a.png", "x/a.png"), new("b.png", "x/b.png")]);
+                store.Transition("b1", BatchStates.Running, [BatchStates.Queued]);
+                var f = store.ClaimNextFrame("b1", "first", lease)!;
+                Assert.True(store.CompleteFrame(f, new FrameResult(1.5f, 0, "frames/00001/report.json", "[]")));
+                Assert.Equal("b.png", store.ClaimNextFrame("b1", "first", lease)!.Frame.FrameId); // held for an hour, then the process stops
             }
-            using (var again = new BatchStore(db))
+            using (var again = Strayspot.Service.Store.BatchDatabase.OpenSqlite(db))
             {
-                var b = again.Get("b1")!;
-                Assert.Equal(1, b.DoneCount);
-                Assert.Equal(1, b.PendingCount);
-                Assert.Equal(1.5f, again.Frames("b1", FrameStates.Done).Single().FrameScore);
-                Assert.Equal("b.png", again.StartNextFrame("b1")!.FrameId);
-                var (_, created, added) = again.Submit("b1", "m", "folder:x", null, [new("a.png", "x/a.png"), new("c.png", "x/c.png")]);
-                Assert.False(created);
-                Assert.Equal(1, added);
-                Assert.Equal(3, again.Get("b1")!.FrameCount);
+                var store = again.Batches;
+                var b = store.Get("b1")!;
+                Assert.Equal((1, 1), (b.DoneCount, b.PendingCount));
+                Assert.Equal(1.5f, store.Frames("b1", FrameStates.Done).Single().FrameScore);
+                // One process per file: what the last one held is free at once, not after its lease.
+                var taken = store.ClaimNextFrame("b1", "second", lease)!;
+                Assert.Equal(("b.png", 2), (taken.Frame.FrameId, taken.Frame.Attempts));
             }
         }
         finally

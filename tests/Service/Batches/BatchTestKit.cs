@@ -25,10 +25,11 @@ public static class BatchTestKit
     /// Writes <paramref name="count"/> apron frames of 256×128 into <paramref name="folder"/>; the first <paramref name="debris"/>
     /// carry debris. Names: <c>{prefix}NN.png</c> (debris ones end in <c>_debris</c>).
     /// </summary>
-    public static List<string> WriteFrames(string folder, int count, int debris = 0, int seed = 11, string prefix = "cam_")
+    public static List<string> WriteFrames(string folder, int count, int debris = 0, int seed = 11, string prefix = "cam_",
+        int width = Width, int height = Height)
     {
         Directory.CreateDirectory(folder);
-        var scenes = ApronSceneSet.Normal(count, seed, Width, Height);
+        var scenes = ApronSceneSet.Normal(count, seed, width, height);
         var names = new List<string>();
         for (int i = 0; i < count; i++)
         {

@@ -141,10 +141,9 @@ public class CalibratorTests
         using var _ = dir;
         File.WriteAllBytes(Path.Combine(framesFolder, "f01.png"), [0x89, 0x50, 0x4E, 0x47, 1, 2, 3]);
         using var local = Open(modelFolder);
-        var model = local.Lease.Session;
-        var e = Assert.Throws<ModelException>(() =>
+        var e = Assert.Throws<Strayspot.Service.Frames.FrameException>(() =>
             Make(local, new CalibrationOptions { CheckpointEvery = 0 }).Run(Calibrator.ListFrames(framesFolder), dir["cal.json"]));
-        Assert.True(e.Code is ModelErrorCodes.FrameCorrupt or ModelErrorCodes.FrameFormat, e.Code);
+        Assert.True(e.Code is Strayspot.Service.Frames.FrameErrorCodes.Corrupt or Strayspot.Service.Frames.FrameErrorCodes.Format, e.Code);
         Assert.Contains("f01.png", e.Message);
         Assert.False(File.Exists(dir["cal.json"]));
         Assert.Empty(Directory.EnumerateFiles(dir.Path, "*.tmp"));

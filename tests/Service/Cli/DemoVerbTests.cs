@@ -33,5 +33,22 @@ public sealed class DemoVerbTests : IDisposable
         Assert.Equal(frames.Length, scores.Count);
         Assert.Equal(scores.OrderByDescending(s => s), scores);
         Assert.Contains("Results:", output.ToString());
+
+        // Each frame's line counts its regions against the generator's ground truth.
+        var lines = output.ToString().Split('\n').Where(l => l.TrimEnd().EndsWith(".png", StringComparison.Ordinal) && l.Contains("  ")).ToList();
+        var rows = lines.Select(l => l.Split(' ', StringSplitOptions.RemoveEmptyEntries)).ToList();
+        Assert.Equal(frames.Length, rows.Count);
+        foreach (var row in rows)
+        {
+            int regions = int.Parse(row[1]), onDebris = int.Parse(row[2]), falseRegions = int.Parse(row[3]);
+            Assert.Equal(regions, onDebris + falseRegions);
+            if (row[^1].Contains("_debris", StringComparison.Ordinal))
+                Assert.Matches(@"^\d+$", row[4]);
+            else
+                Assert.Equal(0, onDebris);
+        }
+        // The demo has to show the method working: both debris frames rank above both ordinary frames.
+        var order = rows.Select(r => r[^1].Contains("_debris", StringComparison.Ordinal)).ToList();
+        Assert.Equal(order.OrderByDescending(d => d), order);
     }
 }

@@ -22,18 +22,19 @@ public sealed class ManifestVerbTests : IDisposable
     /// <summary>A batch of three done frames as the service leaves it, with decisions on two of them.</summary>
     private void SeedBatch()
     {
-        using var store = new BatchStore(Path.Combine(_data, ".strayspot", "batches.db"));
+        using var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(Path.Combine(_data, ".strayspot", "batches.db"));
+        var store = database.Batches;
         store.Submit("night", "demo", "folder:cams", null, [new NewFrame("a.png", "cams/a.png"), new NewFrame("b.png", "cams/b.png"), new NewFrame("c.png", "cams/c.png")]);
         store.Transition("night", BatchStates.Running, [BatchStates.Queued]);
         float[] scores = [3.1f, 4.2f, 2.0f];
         for (int seq = 1; seq <= 3; seq++)
         {
-            var start = store.StartNextFrame("night")!;
+            var start = store.ClaimNextFrame("night", "seed", TimeSpan.FromMinutes(1))!;
             var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], "pavement", true, [[4, 4], [11, 4], [11, 9]]);
-            store.CompleteFrame("night", start.Seq, new FrameResult(scores[seq - 1], 1, $"frames/{start.Seq:D5}/report.json", Manifest.RegionsJson([region])));
+            store.CompleteFrame(start, new FrameResult(scores[seq - 1], 1, $"frames/{start.Seq:D5}/report.json", Manifest.RegionsJson([region])));
         }
-        store.Decide("night", 2, 1, Verdicts.LabelIt, "chock left behind", "tester");
-        store.Decide("night", 1, null, Verdicts.FalseAlarm, null, "tester");
+        database.Decisions.Decide("night", 2, 1, Verdicts.LabelIt, "chock left behind", "tester");
+        database.Decisions.Decide("night", 1, null, Verdicts.FalseAlarm, null, "tester");
     }
 
     [Fact]

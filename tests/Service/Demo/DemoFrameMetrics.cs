@@ -40,7 +40,10 @@ internal static class DemoFrameMetrics
         return new ScoringOptions
         {
             Method = m switch { Method.Msp => ScoreMethod.Msp, Method.MaxLogit => ScoreMethod.MaxLogit, _ => ScoreMethod.Sml },
-            BoundarySuppression = new BoundarySuppressionOptions { Enabled = boundary },
+            // Narrow: the demo profile's boundary suppression (1 pixel, 1 round) for the demo model's sharp class edges.
+            BoundarySuppression = m == Method.SmlFullNarrow
+                ? new BoundarySuppressionOptions { Enabled = boundary, InitialWidth = 1, Iterations = 1 }
+                : new BoundarySuppressionOptions { Enabled = boundary },
             // Narrow: dilation 2 reaches 6 pixels, which suits the demo's small debris at 1024x512; the default reaches 18.
             Smoothing = new SmoothingOptions { Enabled = smoothing, Dilation = m == Method.SmlFullNarrow ? 2 : new SmoothingOptions().Dilation },
         };

@@ -30,16 +30,16 @@ public class FrameDecoderTests
     [Fact]
     public void NonImageBytesAreRefusedAsUnknownFormat()
     {
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(Encoding.UTF8.GetBytes("{\"this is\": \"json, not a picture\"}")));
-        Assert.Equal(ModelErrorCodes.FrameFormat, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(Encoding.UTF8.GetBytes("{\"this is\": \"json, not a picture\"}")));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Format, e.Code);
         Assert.Contains("PNG, JPEG or WebP", e.Message);
     }
 
     [Fact]
     public void EmptyInputIsRefused()
     {
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(Array.Empty<byte>()));
-        Assert.Equal(ModelErrorCodes.FrameFormat, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(Array.Empty<byte>()));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Format, e.Code);
     }
 
     [Fact]
@@ -47,8 +47,8 @@ public class FrameDecoderTests
     {
         using var img = TestImages.Noise(64, 48, seed: 1);
         byte[] jpeg = TestImages.Jpeg(img);
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(jpeg.AsMemory(0, jpeg.Length / 3)));
-        Assert.Equal(ModelErrorCodes.FrameCorrupt, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(jpeg.AsMemory(0, jpeg.Length / 3)));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Corrupt, e.Code);
     }
 
     [Fact]
@@ -56,8 +56,8 @@ public class FrameDecoderTests
     {
         using var img = TestImages.Noise(64, 48, seed: 2);
         byte[] jpeg = TestImages.Jpeg(img);
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(jpeg.AsMemory(0, 40)));
-        Assert.True(e.Code is ModelErrorCodes.FrameCorrupt or ModelErrorCodes.FrameFormat, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(jpeg.AsMemory(0, 40)));
+        Assert.True(e.Code is Strayspot.Service.Frames.FrameErrorCodes.Corrupt or Strayspot.Service.Frames.FrameErrorCodes.Format, e.Code);
     }
 
     [Fact]
@@ -65,8 +65,8 @@ public class FrameDecoderTests
     {
         using var img = TestImages.Noise(64, 48, seed: 6);
         byte[] png = TestImages.Png(img);
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(png.AsMemory(0, png.Length / 2)));
-        Assert.Equal(ModelErrorCodes.FrameCorrupt, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(png.AsMemory(0, png.Length / 2)));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Corrupt, e.Code);
     }
 
     [Fact]
@@ -88,8 +88,8 @@ public class FrameDecoderTests
         byte[] png = CraftPngHeader(30000, 30000);
         // Decoding would need 2.7 GB; a 1 MB allocation cap proves the refusal came from the header alone.
         var tight = new FrameDecoder(new FrameDecoderOptions { AllocationLimitMegabytes = 1 });
-        var e = Assert.Throws<ModelException>(() => tight.Decode(png));
-        Assert.Equal(ModelErrorCodes.FrameTooLarge, e.Code);
+        var e = Assert.Throws<FrameException>(() => tight.Decode(png));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.TooLarge, e.Code);
         Assert.Contains("30000×30000", e.Message);
         Assert.Contains("40000000", e.Message);
     }
@@ -99,8 +99,8 @@ public class FrameDecoderTests
     {
         using var img = TestImages.Noise(1200, 1000, seed: 3);
         var tight = new FrameDecoder(new FrameDecoderOptions { AllocationLimitMegabytes = 1 });
-        var e = Assert.Throws<ModelException>(() => tight.Decode(TestImages.Png(img)));
-        Assert.True(e.Code == ModelErrorCodes.FrameTooLarge, e.Message + " | " + e.InnerException);
+        var e = Assert.Throws<FrameException>(() => tight.Decode(TestImages.Png(img)));
+        Assert.True(e.Code == Strayspot.Service.Frames.FrameErrorCodes.TooLarge, e.Message + " | " + e.InnerException);
     }
 
     [Fact]
@@ -128,8 +128,8 @@ public class FrameDecoderTests
         using var img = TestImages.Gradient(5, 4);
         using var ms = new MemoryStream();
         img.Save(ms, new BmpEncoder());
-        var e = Assert.Throws<ModelException>(() => _decoder.Decode(ms.ToArray()));
-        Assert.Equal(ModelErrorCodes.FrameFormat, e.Code);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(ms.ToArray()));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Format, e.Code);
         using var frame = new FrameDecoder(new FrameDecoderOptions { AllowBmpAndTiff = true }).Decode(ms.ToArray());
         Assert.Equal(img[3, 2], frame.Image[3, 2]);
     }

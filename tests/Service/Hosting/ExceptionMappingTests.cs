@@ -18,7 +18,7 @@ public class ExceptionMappingTests
         var log = new LogCapture();
         await using var app = TestService.BuildOnly(root, log: log);
         app.MapGet("/test/scoring", () => { throw new ScoringInputException(ScoringErrorCodes.FrameSize, "Frame size must be positive; got 0×4."); });
-        app.MapGet("/test/model", () => { throw new ModelException(ModelErrorCodes.FrameTooLarge, "The frame has 90000000 pixels."); });
+        app.MapGet("/test/model", () => { throw new Strayspot.Service.Frames.FrameException(Strayspot.Service.Frames.FrameErrorCodes.TooLarge, "The frame has 90000000 pixels."); });
         app.MapGet("/test/path", () => { throw new UnsafePathException("The path '../x' contains '..'."); });
         app.MapGet("/test/bug", () => { throw new InvalidOperationException("internal detail 7f3a"); });
         await app.StartAsync();

@@ -4,9 +4,9 @@ using Strayspot.Service.Hosting;
 namespace Strayspot.Service.Api;
 
 /// <summary>Per-frame artifacts (PNG maps, score arrays), kept for the retention period.</summary>
-public static class FramesApi
+public static class ArtifactsApi
 {
-    public static void Map(RouteGroupBuilder v1)
+    public static void MapArtifactsApi(this RouteGroupBuilder v1)
     {
         v1.MapGet("/frames/{frameId}/{artifact}", Results<PhysicalFileHttpResult, ProblemHttpResult> (string frameId, string artifact, ArtifactStore store) =>
             {

@@ -5,7 +5,7 @@ using Strayspot.Service.Api;
 
 namespace Strayspot.Tests.Service.Api;
 
-public class LogitsFormTests
+public class ScoringFormTests
 {
     private static FormCollection Form(params (string Key, string Value)[] fields) =>
         new(fields.GroupBy(f => f.Key).ToDictionary(g => g.Key, g => new StringValues(g.Select(f => f.Value).ToArray())));
@@ -14,7 +14,7 @@ public class LogitsFormTests
     public void Overrides_replace_only_what_they_name()
     {
         var profile = new ScoringOptions { Method = ScoreMethod.Sml, Threshold = 2f, MinimumRegionArea = 64 };
-        var (r, errors) = LogitsForm.Parse(Form(("method", "Energy"), ("threshold", "-1.5"), ("smoothing", "off"),
+        var (r, errors) = ScoringForm.Parse(Form(("method", "Energy"), ("threshold", "-1.5"), ("smoothing", "off"),
             ("frameWidth", "640"), ("frameHeight", "480"), ("rigId", "rig-7"), ("captureTime", "2026-12-01T08:30:00Z"),
             ("artifacts", "mask, heat")), profile, 1_000_000);
         Assert.Empty(errors);
@@ -33,11 +33,11 @@ public class LogitsFormTests
     public void No_fields_keep_the_profile_and_default_artifacts()
     {
         var profile = new ScoringOptions { Threshold = 1.25f };
-        var (r, errors) = LogitsForm.Parse(Form(), profile, 100);
+        var (r, errors) = ScoringForm.Parse(Form(), profile, 100);
         Assert.Empty(errors);
         Assert.Equal(profile, r!.Options);
         Assert.Null(r.FrameWidth);
-        Assert.Equal(LogitsForm.DefaultArtifacts, r.Artifacts);
+        Assert.Equal(ScoringForm.DefaultArtifacts, r.Artifacts);
     }
 
     [Theory]
@@ -53,7 +53,7 @@ public class LogitsFormTests
     [InlineData("treshold", "2", "'treshold' is not a field")]
     public void Each_bad_value_is_named_with_its_field(string field, string value, string expected)
     {
-        var (r, errors) = LogitsForm.Parse(Form((field, value)), new ScoringOptions(), 1_000_000);
+        var (r, errors) = ScoringForm.Parse(Form((field, value)), new ScoringOptions(), 1_000_000);
         Assert.Null(r);
         Assert.Contains(expected, Assert.Contains(field == "frameWidth" ? "frameWidth" : field, errors)[0]);
     }
@@ -61,9 +61,9 @@ public class LogitsFormTests
     [Fact]
     public void Frame_size_needs_both_sides_and_respects_the_pixel_limit()
     {
-        var (_, one) = LogitsForm.Parse(Form(("frameWidth", "100")), new ScoringOptions(), 1_000_000);
+        var (_, one) = ScoringForm.Parse(Form(("frameWidth", "100")), new ScoringOptions(), 1_000_000);
         Assert.Contains("together", one["frameHeight"][0]);
-        var (_, big) = LogitsForm.Parse(Form(("frameWidth", "2000"), ("frameHeight", "1000")), new ScoringOptions(), 1_000_000);
+        var (_, big) = ScoringForm.Parse(Form(("frameWidth", "2000"), ("frameHeight", "1000")), new ScoringOptions(), 1_000_000);
         Assert.Contains("2000000", big["frameWidth"][0]);
         Assert.Contains("1000000", big["frameWidth"][0]);
     }
@@ -71,7 +71,7 @@ public class LogitsFormTests
     [Fact]
     public void A_field_given_twice_is_refused()
     {
-        var (_, errors) = LogitsForm.Parse(Form(("method", "sml"), ("method", "msp")), new ScoringOptions(), 100);
+        var (_, errors) = ScoringForm.Parse(Form(("method", "sml"), ("method", "msp")), new ScoringOptions(), 100);
         Assert.Contains("2 times", errors["method"][0]);
     }
 }

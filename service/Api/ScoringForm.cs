@@ -18,10 +18,10 @@ public sealed record LogitsRequest(
     bool Inline = false);
 
 /// <summary>
-/// Reads the text fields of a logits upload. Every field is checked and every problem is reported at once;
+/// Reads the text fields of a scoring upload, logits or camera image alike. Every field is checked and every problem is reported at once;
 /// an unknown field is an error, so a misspelt option never silently falls back to the profile.
 /// </summary>
-public static class LogitsForm
+public static class ScoringForm
 {
     public const string LogitsPart = "logits";
     public static readonly string[] DefaultArtifacts = ["classes", "mask", "heat"];
@@ -33,6 +33,10 @@ public static class LogitsForm
         "clientFrameId", "captureTime", "rigId", "artifacts", "response",
     ];
 
+    /// <summary>The text fields an upload with file part <paramref name="filePart"/> takes: an image already has its size.</summary>
+    public static IReadOnlyList<string> FieldsFor(string filePart) =>
+        filePart == LogitsPart ? Fields : Fields.Where(f => f is not ("frameWidth" or "frameHeight")).ToList();
+
     /// <summary>The checked request, or the errors by field name.</summary>
     public static (LogitsRequest? Request, Dictionary<string, string[]> Errors) Parse(
         IFormCollection form, ScoringOptions profile, long maxPixels, IReadOnlySet<string>? availableArtifacts = null,
@@ -41,19 +45,13 @@ public static class LogitsForm
         var errors = new Dictionary<string, string[]>(StringComparer.Ordinal);
         void Fail(string field, string message) => errors[field] = [message];
 
-        // An image already has its size: the frame size fields belong to logits uploads only.
-        var fields = filePart == LogitsPart ? Fields : Fields.Where(f => f is not ("frameWidth" or "frameHeight")).ToList();
-        foreach (string key in form.Keys)
-            if (!fields.Contains(key, StringComparer.Ordinal))
-                Fail(key, $"'{key}' is not a field of this endpoint; the fields are {filePart} (file), {string.Join(", ", fields)}.");
-        foreach (var file in form.Files)
-            if (file.Name != filePart)
-                Fail(file.Name, $"File part '{file.Name}' is not expected; send the {fileDescription} as file part '{filePart}'.");
+        foreach (var (field, messages) in UploadForm.Check(form, filePart, fileDescription, FieldsFor(filePart), requireFile: false))
+            errors[field] = messages;
 
         string? Single(string field)
         {
             if (!form.TryGetValue(field, out StringValues v) || v.Count == 0) return null;
-            if (v.Count > 1) { Fail(field, $"'{field}' is given {v.Count} times; give it once."); return null; }
+            if (v.Count > 1) return null; // refused by UploadForm.Check
             string s = v[0]!.Trim();
             return s.Length == 0 ? null : s;
         }
