@@ -225,7 +225,8 @@ public static class ServiceHost
         // Scraped like the health endpoints: no key, so keep the port on a trusted network.
         app.MapPrometheusScrapingEndpoint("/metrics").AllowAnonymous();
         // A worker replica takes batch work only: no scoring traffic reaches it.
-        if (app.Services.GetRequiredService<IOptions<Batches.BatchOptions>>().Value.WorkerOnly) return;
+        // Read from configuration, not the options: their validation belongs to the start, where it names the setting.
+        if (app.Configuration.GetValue<bool>($"{Batches.BatchOptions.Section}:{nameof(Batches.BatchOptions.WorkerOnly)}")) return;
         Review.ReviewPage.Map(app);
         var v1 = app.MapGroup("/v1");
         // One area a file, each an extension on the /v1 group.
