@@ -40,7 +40,14 @@ public sealed partial record ModelDescriptor
             throw new ModelException(ModelErrorCodes.DescriptorInvalid,
                 $"{source} is not valid JSON (line {e.LineNumber + 1}, position {e.BytePositionInLine + 1}).", e);
         }
-        var unknown = DescriptorKeys.Unknown(tree);
+        List<string> unknown;
+        // A key given twice in one object surfaces only when the tree is walked.
+        try { unknown = DescriptorKeys.Unknown(tree); }
+        catch (ArgumentException e)
+        {
+            throw new ModelException(ModelErrorCodes.DescriptorInvalid,
+                $"{source} gives a key twice in one object; each key may appear once ({e.Message.Split('\n')[0]}).", e);
+        }
         if (unknown.Count > 0)
             throw new ModelException(ModelErrorCodes.DescriptorInvalid,
                 $"{source} has {unknown.Count} problem(s):\n  - " + string.Join("\n  - ", unknown));
