@@ -26,7 +26,7 @@ public sealed class ModelSessions(ModelCatalog catalog, ModelRegistry registry, 
     public ModelLease BorrowPools(CatalogEntry entry) => registry.Borrow(Usable(entry), SessionUse.None)!;
 
     /// <summary>The model's version for background work (batches, jobs): loads the session when it is not loaded yet.</summary>
-    public ModelLease Borrow(CatalogEntry entry) => registry.Borrow(Usable(entry))!;
+    public ModelLease Borrow(CatalogEntry entry) => registry.BorrowLoaded(Usable(entry));
 
     /// <summary>Problems that keep the service from being ready: models still loading or failed.</summary>
     public IEnumerable<string> Problems()

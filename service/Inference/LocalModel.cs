@@ -26,7 +26,7 @@ public sealed class LocalModel : IDisposable
         var registry = new ModelRegistry(parallel ?? ParallelSettings.Default);
         try
         {
-            return new LocalModel(registry, registry.Borrow(version)!, new FrameRunner(observer));
+            return new LocalModel(registry, registry.BorrowLoaded(version), new FrameRunner(observer));
         }
         catch
         {

@@ -74,6 +74,11 @@ public sealed class ModelRegistry : IDisposable
         }
     }
 
+    /// <summary>Borrows with its session loaded, or fails with a model error when the folder changed during the load.</summary>
+    public ModelLease BorrowLoaded(ModelVersion version) => Borrow(version)
+        ?? throw new ModelException(ModelErrorCodes.ModelInvalid,
+            $"Model '{version.Name}' changed while its {SegmentationModel.ModelFileName} was read; reload the models and retry.");
+
     /// <summary>Borrows and returns at once: loads and warms the session of <paramref name="version"/>.</summary>
     public void Load(ModelVersion version)
     {
@@ -118,8 +123,13 @@ public sealed class ModelRegistry : IDisposable
             {
                 model = SegmentationModel.Load(version.ModelPath, version.Descriptor, Parallel.Runtime());
                 if (model.ModelSha256 != version.WeightsSha256)
-                    throw new ModelException(ModelErrorCodes.ModelInvalid,
-                        $"{SegmentationModel.ModelFileName} changed while it was read (SHA-256 {model.ModelSha256}, expected {version.WeightsSha256}); reload the models.");
+                {
+                    // The file is no longer this version (replaced meanwhile, or a stale version borrowed during a
+                    // reload): a lost race, not a broken model. Recording it would refuse these weights for good,
+                    // even after they come back; the borrower gets null and retries with the catalog's version.
+                    model.Dispose();
+                    return;
+                }
             }
             catch (Exception e) when (e is ModelException or IOException or UnauthorizedAccessException)
             {

@@ -64,7 +64,8 @@ public class FrameSourcesTests
     [Fact]
     public void Missing_paths_are_listed_at_once()
     {
-        var e = Assert.Throws<Strayspot.Service.Models.ModelException>(() => FrameSources.FromPaths(["/nope/a", "/nope/b"]));
+        var e = Assert.Throws<FrameException>(() => FrameSources.FromPaths(["/nope/a", "/nope/b"]));
+        Assert.Equal(FrameErrorCodes.Missing, e.Code);
         Assert.Contains("/nope/a", e.Message);
         Assert.Contains("/nope/b", e.Message);
     }

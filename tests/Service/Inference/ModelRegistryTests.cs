@@ -42,7 +42,9 @@ public class ModelRegistryTests
             {
                 try
                 {
-                    using var lease = registry.Borrow(Volatile.Read(ref current))!;
+                    // Null: this thread's version was replaced and its weights are gone (the caller retries).
+                    using var lease = registry.Borrow(Volatile.Read(ref current));
+                    if (lease is null) continue;
                     using var frame = decoder.Decode(png.ToArray());
                     runner.Score(lease, frame, null, (s, _) => s.FrameScore);
                     Interlocked.Increment(ref scored);
@@ -52,6 +54,8 @@ public class ModelRegistryTests
         })).ToArray();
 
         // Profile changes keep the session; new weights replace it while frames are in flight.
+        // The traffic must be running before the first replacement: on a loaded machine its tasks may start late.
+        SpinWait.SpinUntil(() => Volatile.Read(ref scored) > 0 || !failures.IsEmpty, TimeSpan.FromSeconds(20));
         for (int i = 0; i < 6; i++)
         {
             Thread.Sleep(40);
