@@ -124,6 +124,16 @@ public static class ScoreVerb
     }
 
     /// <summary>The frames of files, folders (walked) and archives as given, in order; fails listing every missing path at once.</summary>
-    public static IReadOnlyList<SourceFrame> ExpandFrames(IEnumerable<string> paths) =>
-        FrameSources.FromPaths(paths).SelectMany(source => source.Frames()).ToList();
+    public static IReadOnlyList<SourceFrame> ExpandFrames(IEnumerable<string> paths)
+    {
+        // Archives are unpacked under one temporary folder of this run, removed when the process ends.
+        string unpackRoot = Path.Combine(Path.GetTempPath(), "strayspot-unpacked-" + Guid.NewGuid().ToString("N"));
+        AppDomain.CurrentDomain.ProcessExit += (_, _) =>
+        {
+            try { if (Directory.Exists(unpackRoot)) Directory.Delete(unpackRoot, recursive: true); }
+            catch (IOException) { } // best effort: the temp folder is the system's to clear after that
+            catch (UnauthorizedAccessException) { }
+        };
+        return FrameSources.FromPaths(paths, unpackRoot).SelectMany(source => source.Frames()).ToList();
+    }
 }
