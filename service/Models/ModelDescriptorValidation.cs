@@ -33,7 +33,7 @@ public sealed partial record ModelDescriptor
     {
         ModelDescriptor? d;
         System.Text.Json.Nodes.JsonNode? tree;
-        var documentOptions = new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true };
+        var documentOptions = new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true, AllowDuplicateProperties = false };
         try { tree = System.Text.Json.Nodes.JsonNode.Parse(json, documentOptions: documentOptions); }
         catch (JsonException e)
         {

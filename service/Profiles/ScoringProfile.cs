@@ -105,6 +105,8 @@ public sealed record ScoringProfile
             node = System.Text.Json.Nodes.JsonNode.Parse(body, documentOptions: new JsonDocumentOptions
             {
                 CommentHandling = JsonCommentHandling.Skip, AllowTrailingCommas = true, MaxDepth = 16,
+                // A key given twice would otherwise surface as a runtime error when the tree is walked.
+                AllowDuplicateProperties = false,
             });
         }
         catch (JsonException e)

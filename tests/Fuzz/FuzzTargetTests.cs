@@ -34,7 +34,8 @@ public class FuzzTargetTests(ITestOutputHelper output)
         Assert.NotEmpty(seeds);
         foreach (var seed in seeds) Check(target, seed, "seed");
 
-        var random = new Random(target.GetHashCode(StringComparison.Ordinal) & 0x7fffffff ^ 20261202);
+        // string.GetHashCode differs from process to process; a fixed hash keeps the mutations the same in every run.
+        var random = new Random(StableHash(target) ^ 20261202);
         var clock = Stopwatch.StartNew();
         int ran = 0;
         for (; ran < Mutations && clock.Elapsed < Budget; ran++)
@@ -91,5 +92,12 @@ public class FuzzTargetTests(ITestOutputHelper output)
             }
         }
         return data.ToArray();
+    }
+
+    private static int StableHash(string text)
+    {
+        uint h = 2166136261;
+        foreach (char c in text) h = (h ^ c) * 16777619;
+        return (int)(h & 0x7fffffff);
     }
 }
