@@ -46,9 +46,9 @@ public static class ImageFramesApi
     }
 
     private static async Task<Results<Ok<ScoredFrame>, InlineArtifactsResult, ProblemHttpResult>> Score(
-        string model, HttpRequest request, ModelCatalog catalog, ModelSessions sessions, ScoringLane lane, FrameRunner runner,
-        ArtifactStore store, FrameDecoder decoder, ServiceMetrics metrics, IOptions<ServiceOptions> options, TimeProvider time, ILoggerFactory logs, CancellationToken ct)
+        string model, HttpRequest request, [AsParameters] ScoringServices services, FrameDecoder decoder, CancellationToken ct)
     {
+        var (catalog, sessions, lane, runner, store, metrics, options, time, logs) = services;
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
