@@ -80,14 +80,15 @@ public static class BatchesApi
                 }
                 if (!Review.Verdicts.IsKnown(verdict))
                     return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
-                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
+                var lines = Manifest.Lines(batches.BatchFolder(id), b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
                 using var buffer = new MemoryStream();
                 Manifest.WriteTo(buffer, lines);
                 return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);
             })
             .WithName("GetBatchManifest")
             .WithSummary("JSON lines, one per frame, highest frame score first (regions with outlines and review decisions, artifact paths " +
-                         "relative to the batch folder); rewrites manifest.jsonl in the batch folder. ?verdict=label-it gives only the " +
+                         "relative to the batch folder); a recording's line (kind 'recording': its kept tracks and timeline) is followed by " +
+                         "one line per sampled frame (kind 'recording-frame': index, timeSeconds, each region's track); rewrites manifest.jsonl in the batch folder. ?verdict=label-it gives only the " +
                          "frames with that verdict on the frame or a region, without touching the file.")
             .Produces(200, contentType: Manifest.ContentType)
             .ProducesProblem(400).ProducesProblem(404);

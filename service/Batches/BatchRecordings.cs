@@ -1,15 +1,43 @@
+using System.Globalization;
+using System.Text.Json;
+using System.Text.Json.Serialization;
 using Strayspot.Service.Frames;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Recordings;
 using Strayspot.Service.Reports;
+using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Batches;
+
+/// <summary>A track as a recording's manifest line sums it up: enough to draw it on a timeline (the sightings stay in <c>tracks.json</c>).</summary>
+public sealed record TrackSpan(
+    [property: JsonPropertyName("id")] int Id,
+    [property: JsonPropertyName("kept")] bool Kept,
+    [property: JsonPropertyName("firstTime")] double FirstTime,
+    [property: JsonPropertyName("lastTime")] double LastTime,
+    [property: JsonPropertyName("framesSeen")] int FramesSeen,
+    [property: JsonPropertyName("maxScore")] float MaxScore,
+    [property: JsonPropertyName("meanScore")] float MeanScore,
+    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("bestFrameId")] string BestFrameId,
+    [property: JsonPropertyName("bestTime")] double BestTime);
+
+/// <summary>A recording's summary on its manifest line: its span, every track (kept or not) and the ranked time segments.</summary>
+public sealed record RecordingTimeline(
+    [property: JsonPropertyName("durationSeconds")] double DurationSeconds,
+    [property: JsonPropertyName("framesScored")] int FramesScored,
+    [property: JsonPropertyName("minimumFramesSeen")] int MinimumFramesSeen,
+    [property: JsonPropertyName("tracksFound")] int TracksFound,
+    [property: JsonPropertyName("tracksKept")] int TracksKept,
+    [property: JsonPropertyName("tracks")] IReadOnlyList<TrackSpan> Tracks,
+    [property: JsonPropertyName("segments")] IReadOnlyList<TimeSegment> Segments);
 
 /// <summary>
 /// Recordings inside batches: a video file in a submitted folder or archive is one work item, scored whole into its
 /// folder (<c>tracks.json</c>, <c>frames.jsonl</c> with each sampled frame's timestamp, the plot and the tracks' best
-/// frames). Its manifest line carries the kept tracks where a frame's line carries regions, so a decision on region N
-/// of that line is a decision on track N.
+/// frames). In the store its regions are its kept tracks, so a decision on region N of that work item is a decision
+/// on track N; in the manifest it becomes a recording line and one line per sampled frame, on whose regions the
+/// decision on their track shows.
 /// </summary>
 public static class BatchRecordings
 {
@@ -60,6 +88,88 @@ public static class BatchRecordings
                 $"The uploaded recording is {length:N0} bytes; at most {maxBytes:N0} are accepted (Service:Batches:MaxArchiveBytes).");
         File.Copy(upload, Path.Combine(destination, nameParts[0]), overwrite: true);
         return nameParts[0];
+    }
+
+    /// <summary>
+    /// The manifest lines of a scored recording: its own line (kept tracks as regions, the timeline, the decision on
+    /// the whole recording), then one line per sampled frame in time order with its index, timestamp, the ranked
+    /// segment it falls in, and each region's track and that track's decision. Frame ids are the recording's id, '@'
+    /// and the frame index, unique in the batch. With <paramref name="onlyVerdict"/>, only lines carrying it.
+    /// </summary>
+    public static IEnumerable<ManifestLine> Lines(string batchFolder, BatchRecord batch, FrameRecord recording,
+        Func<int, int?, Decision?> decisionOn, string? onlyVerdict)
+    {
+        string folder = Path.GetDirectoryName(recording.ReportPath!)!.Replace('\\', '/');
+        var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
+        foreach (var (key, file) in ArtifactFiles) artifacts[key] = folder + "/" + file;
+        var report = ReadReport(Path.Combine(batchFolder, recording.ReportPath!));
+        var tracks = Manifest.ReadRegions(recording.RegionsJson);
+        bool keep = onlyVerdict is null;
+        for (int i = 0; i < tracks.Count; i++)
+        {
+            if (decisionOn(recording.Seq, tracks[i].Id) is not { } d) continue;
+            tracks[i] = tracks[i] with { Decision = DecisionMark.From(d) };
+            keep |= d.Verdict == onlyVerdict;
+        }
+        var whole = decisionOn(recording.Seq, null);
+        keep |= whole?.Verdict == onlyVerdict;
+        if (keep)
+            yield return new ManifestLine(recording.Seq, recording.FrameId, recording.SourcePath, recording.FrameScore, tracks, artifacts,
+                batch.Model, batch.ModelSha256, batch.ProfileVersion, Decision: whole is null ? null : DecisionMark.From(whole),
+                Kind: ManifestKinds.Recording, Recording: recording.FrameId, Timeline: report is null ? null : Timeline(report, recording.FrameId));
+
+        string framesPath = Path.Combine(batchFolder, folder, RecordingRun.FramesFile);
+        if (!File.Exists(framesPath)) yield break;
+        var segments = report?.Segments ?? [];
+        var marks = new Dictionary<int, DecisionMark?>();
+        foreach (string text in File.ReadLines(framesPath))
+        {
+            if (ReadFrameLine(text) is not { } line) continue;
+            var regions = new List<ManifestRegion>(line.Regions.Count);
+            bool keepFrame = onlyVerdict is null;
+            foreach (var r in line.Regions)
+            {
+                DecisionMark? mark = null;
+                if (r.Track is int track && !marks.TryGetValue(track, out mark))
+                {
+                    var d = decisionOn(recording.Seq, track);
+                    marks[track] = mark = d is null ? null : DecisionMark.From(d);
+                }
+                keepFrame |= mark?.Verdict == onlyVerdict;
+                regions.Add(mark is null ? r : r with { Decision = mark });
+            }
+            if (!keepFrame) continue;
+            int? segment = null;
+            foreach (var s in segments)
+                if (line.TimeSeconds >= s.StartSeconds && line.TimeSeconds <= s.EndSeconds) { segment = s.Rank; break; }
+            yield return new ManifestLine(recording.Seq, RecordingFrame.IdOf(recording.FrameId, line.Index), recording.SourcePath, line.FrameScore,
+                regions, artifacts, batch.Model, batch.ModelSha256, batch.ProfileVersion, Kind: ManifestKinds.RecordingFrame,
+                Recording: recording.FrameId, Index: line.Index, TimeSeconds: line.TimeSeconds, Segment: segment);
+        }
+    }
+
+    /// <summary>The timeline of a recording's line; frame ids renamed to the manifest's (the recording's id in the batch).</summary>
+    public static RecordingTimeline Timeline(RecordingReport report, string recordingId)
+    {
+        string Rename(string frameId) => RecordingFrame.IdOf(recordingId, long.Parse(frameId[(frameId.LastIndexOf('@') + 1)..], CultureInfo.InvariantCulture));
+        var tracks = report.Tracks.Select(t => new TrackSpan(t.Id, t.Kept, t.FirstTime, t.LastTime, t.FramesSeen, t.MaxScore, t.MeanScore,
+            t.ClassBeneathName ?? t.ClassBeneath.ToString(CultureInfo.InvariantCulture), Rename(t.BestFrameId), t.BestTime)).ToList();
+        var segments = report.Segments.Select(s => s with { BestFrameId = Rename(s.BestFrameId) }).ToList();
+        return new RecordingTimeline(report.DurationSeconds, report.FramesScored, report.MinimumFramesSeen, report.TracksFound, report.TracksKept,
+            tracks, segments);
+    }
+
+    private static RecordingReport? ReadReport(string path)
+    {
+        try { return JsonSerializer.Deserialize<RecordingReport>(File.ReadAllBytes(path), FrameReport.JsonOptions); }
+        catch (Exception e) when (e is IOException or JsonException or UnauthorizedAccessException) { return null; }
+    }
+
+    /// <summary>One line of <c>frames.jsonl</c>; null for a line this version cannot read (written before regions carried tracks).</summary>
+    private static RecordingFrameLine? ReadFrameLine(string text)
+    {
+        try { return JsonSerializer.Deserialize<RecordingFrameLine>(text, Manifest.LineJson); }
+        catch (JsonException) { return null; }
     }
 
     public static bool IsRecordingReport(string reportPath) => reportPath.EndsWith("/" + RecordingRun.TracksFile, StringComparison.Ordinal);

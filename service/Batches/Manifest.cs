@@ -8,7 +8,10 @@ using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Batches;
 
-/// <summary>One region in a manifest line; <see cref="Outline"/> is the outer boundary, at most <see cref="Manifest.MaxOutlinePoints"/> points.</summary>
+/// <summary>
+/// One region in a manifest line; <see cref="Outline"/> is the outer boundary, at most <see cref="Manifest.MaxOutlinePoints"/> points.
+/// On a recording's frame line <see cref="Track"/> is the track the region joined (a decision on that track shows on it).
+/// </summary>
 public sealed record ManifestRegion(
     [property: JsonPropertyName("id")] int Id,
     [property: JsonPropertyName("box")] BoxReport Box,
@@ -18,9 +21,15 @@ public sealed record ManifestRegion(
     [property: JsonPropertyName("classBeneath")] string ClassBeneath,
     [property: JsonPropertyName("onSurface")] bool OnSurface,
     [property: JsonPropertyName("outline")] int[][] Outline,
-    [property: JsonPropertyName("decision")] DecisionMark? Decision = null);
+    [property: JsonPropertyName("decision")] DecisionMark? Decision = null,
+    [property: JsonPropertyName("track")] int? Track = null);
 
-/// <summary>One line of the manifest: a frame, its score, regions and output files (relative to the batch folder).</summary>
+/// <summary>
+/// One line of the manifest: a frame, its score, regions and output files (relative to the batch folder).
+/// <see cref="Kind"/> says what the line is: a <c>frame</c> (an image), a <c>recording</c> (a video, its regions its
+/// kept tracks, <see cref="Timeline"/> its tracks' spans and ranked segments) or a <c>recording-frame</c> (one sampled
+/// frame of the <see cref="Recording"/> whose line shares its <see cref="Seq"/>, at <see cref="TimeSeconds"/>).
+/// </summary>
 public sealed record ManifestLine(
     [property: JsonPropertyName("seq")] int Seq,
     [property: JsonPropertyName("frameId")] string FrameId,
@@ -32,12 +41,27 @@ public sealed record ManifestLine(
     [property: JsonPropertyName("modelSha256")] string? ModelSha256,
     [property: JsonPropertyName("profileVersion")] string? ProfileVersion,
     [property: JsonPropertyName("error")] string? Error = null,
-    [property: JsonPropertyName("decision")] DecisionMark? Decision = null);
+    [property: JsonPropertyName("decision")] DecisionMark? Decision = null,
+    [property: JsonPropertyName("kind")] string Kind = ManifestKinds.Frame,
+    [property: JsonPropertyName("recording")] string? Recording = null,
+    [property: JsonPropertyName("index")] long? Index = null,
+    [property: JsonPropertyName("timeSeconds")] double? TimeSeconds = null,
+    [property: JsonPropertyName("segment")] int? Segment = null,
+    [property: JsonPropertyName("timeline")] RecordingTimeline? Timeline = null);
+
+/// <summary>What a manifest line stands for.</summary>
+public static class ManifestKinds
+{
+    public const string Frame = "frame";
+    public const string Recording = "recording";
+    public const string RecordingFrame = "recording-frame";
+}
 
 /// <summary>
 /// The batch manifest: JSON lines, one per frame, highest frame score first; frames that failed come last with
-/// their error. Review decisions ride along: the frame's own on the line, each region's on the region. Built from
-/// the store alone, so it can be rewritten at any time.
+/// their error. A recording ranks by its line (its highest kept track's score), followed by one line per sampled
+/// frame in time order (<see cref="BatchRecordings.Lines"/>). Review decisions ride along: the frame's own on the
+/// line, each region's on the region. Built from the store and the recordings' files, so it can be rewritten at any time.
 /// </summary>
 public static class Manifest
 {
@@ -48,7 +72,7 @@ public static class Manifest
     /// <summary>The files a manifest line links, named as in reports and review routes (<see cref="ArtifactWriter"/>'s table).</summary>
     private static readonly string[] LinkedArtifacts = ["classes", "mask", "heat", "overlay", ArtifactWriter.Report];
 
-    private static readonly JsonSerializerOptions LineJson = new()
+    internal static readonly JsonSerializerOptions LineJson = new()
     {
         WriteIndented = false,
         DefaultIgnoreCondition = JsonIgnoreCondition.WhenWritingNull,
@@ -104,18 +128,24 @@ public static class Manifest
     /// <summary>
     /// The lines of a batch in manifest order: done frames by score (highest first, then seq), failed frames after.
     /// With <paramref name="onlyVerdict"/>, just the done frames that carry that verdict on the frame or on a region.
+    /// Lazy: a long recording's frame lines are read from its <c>frames.jsonl</c> as they are written out.
     /// </summary>
-    public static List<ManifestLine> Lines(BatchRecord batch, IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision>? decisions = null,
-        string? onlyVerdict = null)
+    public static IEnumerable<ManifestLine> Lines(string batchFolder, BatchRecord batch, IReadOnlyList<FrameRecord> frames,
+        IReadOnlyList<Decision>? decisions = null, string? onlyVerdict = null)
     {
         var bySeq = new Dictionary<(int Seq, int? Region), Decision>();
         foreach (var d in decisions ?? []) bySeq[(d.Seq, d.Region)] = d;
         var done = frames.Where(f => f.State == FrameStates.Done)
             .OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq);
         var failed = frames.Where(f => f.State == FrameStates.Failed).OrderBy(f => f.Seq);
-        var lines = new List<ManifestLine>(frames.Count);
         foreach (var f in done)
         {
+            if (BatchRecordings.IsRecordingReport(f.ReportPath!))
+            {
+                foreach (var line in BatchRecordings.Lines(batchFolder, batch, f, (seq, region) => bySeq.GetValueOrDefault((seq, region)), onlyVerdict))
+                    yield return line;
+                continue;
+            }
             var regions = ReadRegions(f.RegionsJson);
             bool keep = onlyVerdict is null;
             for (int i = 0; i < regions.Count; i++)
@@ -129,34 +159,34 @@ public static class Manifest
             if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
-            if (BatchRecordings.IsRecordingReport(f.ReportPath!))
-                foreach (var (key, file) in BatchRecordings.ArtifactFiles) artifacts[key] = folder + "/" + file;
-            else
-                foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
-            lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
-                batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
+            foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+            yield return new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
+                batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision));
         }
-        if (onlyVerdict is not null) return lines;
+        if (onlyVerdict is not null) yield break;
         foreach (var f in failed)
-            lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error));
-        return lines;
+            yield return new ManifestLine(f.Seq, f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error,
+                Kind: Recordings.VideoRecording.IsVideoFile(f.SourcePath) ? ManifestKinds.Recording : ManifestKinds.Frame);
     }
 
-    public static void WriteTo(Stream stream, IEnumerable<ManifestLine> lines)
+    /// <summary>Writes the lines as JSON lines; returns how many.</summary>
+    public static int WriteTo(Stream stream, IEnumerable<ManifestLine> lines)
     {
+        int count = 0;
         foreach (var line in lines)
         {
             JsonSerializer.Serialize(stream, line, LineJson);
             stream.WriteByte((byte)'\n');
+            count++;
         }
+        return count;
     }
 
     /// <summary>Writes the manifest of a batch, with its decisions, atomically into its folder; returns the path.</summary>
     public static string Write(string batchFolder, BatchRecord batch, IReadOnlyList<FrameRecord> frames, IReadOnlyList<Decision> decisions)
     {
         string path = Path.Combine(batchFolder, FileName);
-        var lines = Lines(batch, frames, decisions);
-        AtomicFile.Write(path, s => WriteTo(s, lines));
+        AtomicFile.Write(path, s => WriteTo(s, Lines(batchFolder, batch, frames, decisions)));
         return path;
     }
 }

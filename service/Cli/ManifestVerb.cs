@@ -63,12 +63,14 @@ public static class ManifestVerb
                     return BadInput;
                 }
                 var decisions = database.Decisions.Current(id);
-                var lines = Manifest.Lines(record, store.Frames(id), decisions, only);
+                string batchFolder = Path.Combine(options.ResolveRoot(dataRoot), id);
+                var lines = Manifest.Lines(batchFolder, record, store.Frames(id), decisions, only);
                 string target = parse.GetValue(output)?.FullName
-                                ?? Path.Combine(options.ResolveRoot(dataRoot), id, only is null ? Manifest.FileName : $"manifest.{only}.jsonl");
+                                ?? Path.Combine(batchFolder, only is null ? Manifest.FileName : $"manifest.{only}.jsonl");
                 Directory.CreateDirectory(Path.GetDirectoryName(target)!);
-                AtomicFile.Write(target, s => Manifest.WriteTo(s, lines));
-                outWriter.WriteLine($"Wrote {lines.Count} frame line(s) of batch '{id}' with {decisions.Count} decision(s) to {target}");
+                int written = 0;
+                AtomicFile.Write(target, s => written = Manifest.WriteTo(s, lines));
+                outWriter.WriteLine($"Wrote {written} frame line(s) of batch '{id}' with {decisions.Count} decision(s) to {target}");
                 return 0;
             }
             catch (Exception e) when (e is IOException or UnauthorizedAccessException or Microsoft.Data.Sqlite.SqliteException)

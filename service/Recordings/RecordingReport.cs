@@ -1,18 +1,22 @@
 using System.Text.Json.Serialization;
 using Strayspot.Scoring.Tracks;
+using Strayspot.Service.Batches;
 using Strayspot.Service.Reports;
 
 namespace Strayspot.Service.Recordings;
 
-/// <summary>One sampled frame's line in <c>frames.jsonl</c>: where it is in time and what it holds.</summary>
+/// <summary>
+/// One sampled frame's line in <c>frames.jsonl</c>: where it is in time and what it holds. Its regions have the
+/// manifest's shape (outline included) plus the track each joined, so a batch manifest's frame line is this line with
+/// the batch's fields added.
+/// </summary>
 public sealed record RecordingFrameLine(
     [property: JsonPropertyName("frameId")] string FrameId,
     [property: JsonPropertyName("index")] long Index,
     [property: JsonPropertyName("timeSeconds")] double TimeSeconds,
     [property: JsonPropertyName("frameScore")] float FrameScore,
     [property: JsonPropertyName("anomalousShare")] double AnomalousShare,
-    [property: JsonPropertyName("regions")] IReadOnlyList<RegionReport> Regions,
-    [property: JsonPropertyName("tracks")] IReadOnlyList<int> Tracks);
+    [property: JsonPropertyName("regions")] IReadOnlyList<ManifestRegion> Regions);
 
 /// <summary>A track as <c>tracks.json</c> writes it.</summary>
 public sealed record TrackReport

@@ -3,6 +3,7 @@ using System.Text.Json;
 using SixLabors.ImageSharp.PixelFormats;
 using Strayspot.Scoring.Pipeline;
 using Strayspot.Scoring.Tracks;
+using Strayspot.Service.Batches;
 using Strayspot.Service.Inference;
 using Strayspot.Service.Reports;
 using Strayspot.Service.Rendering;
@@ -57,13 +58,12 @@ public static class RecordingRun
                     {
                         var regions = s.Regions.Regions;
                         var assigned = linker.Add(rf.Sample, rf.Index, rf.TimeSeconds, s.Width, s.Height, regions);
-                        var reports = new List<RegionReport>(regions.Count);
-                        var trackIds = new int[regions.Count];
+                        var reports = Manifest.Regions(s, names);
                         string? written = null;
                         for (int i = 0; i < regions.Count; i++)
                         {
-                            reports.Add(RegionReport.From(regions[i], names));
-                            int id = trackIds[i] = assigned[i];
+                            int id = assigned[i];
+                            reports[i] = reports[i] with { Track = id };
                             if (best.TryGetValue(id, out float top) && top >= regions[i].MaxScore) continue;
                             best[id] = regions[i].MaxScore;
                             string path = Path.Combine(folder, TracksFolder, OverlayName(id));
@@ -74,7 +74,7 @@ public static class RecordingRun
                             AtomicFile.Write(path, st => ArtifactRenderer.SavePng(overlay, st));
                             written = path;
                         }
-                        return new RecordingFrameLine(rf.Id, rf.Index, Math.Round(rf.TimeSeconds, 6), s.FrameScore, s.AnomalousShare, reports, trackIds);
+                        return new RecordingFrameLine(rf.Id, rf.Index, Math.Round(rf.TimeSeconds, 6), s.FrameScore, s.AnomalousShare, reports);
                     }, cancel);
                     scoreMs += Stopwatch.GetElapsedTime(s0).TotalMilliseconds;
                     lines.WriteLine(JsonSerializer.Serialize(line, Compact));

@@ -68,30 +68,75 @@ public static class RecordingBench
             Console.WriteLine("|---|---|---|");
             Console.WriteLine($"| drive-by 1024×512 | {scored} | {Measure.Median(whole):0.0} |");
 
-            Console.WriteLine();
-            Console.WriteLine("## Recordings: resident memory along a long recording (1024×512, drive-by looped, 1 frame in 4 scored)");
-            Console.WriteLine();
-            string longer = Path.Combine(dir, "long.mp4");
-            Ffmpeg("-stream_loop", "14", "-i", drive, "-c", "copy", longer);
-            var sampling = RecordingSampling.Every(4);
-            var video = VideoRecording.Open(longer, new RecordingOptions { Sampling = sampling });
-            var rss = new List<(int Frames, double Mib)>();
-            var watch = Stopwatch.StartNew();
-            var final = RecordingRun.Score(local.Runner, local.Lease, video, longer, sampling, local.Version.Defaults, new TrackingSettings(), Path.Combine(dir, "out-long"),
-                new Progress(n =>
-                {
-                    if (n == 5 || n % 20 == 0) rss.Add((n, Process.GetCurrentProcess().WorkingSet64 / 1048576.0));
-                }));
-            Console.WriteLine($"| frames scored | resident MiB |");
-            Console.WriteLine("|---|---|");
-            foreach (var (n, mib) in rss) Console.WriteLine($"| {n} | {mib:0} |");
-            Console.WriteLine($"\n{final.FramesScored} frames scored of {video.Header.FrameCount} decoded in {watch.Elapsed.TotalSeconds:0} s; " +
-                              $"{final.TracksFound} tracks, {final.TracksKept} kept.");
+            Memory(local, dir);
         }
         finally
         {
             Directory.Delete(dir, recursive: true);
         }
+    }
+
+    /// <summary>Only the memory part: <c>-- recording-memory</c>.</summary>
+    public static void RunMemory()
+    {
+        string dir = Directory.CreateTempSubdirectory("strayspot-bench-mem-").FullName;
+        try
+        {
+            using var local = LocalModel.Open(Path.Combine(EvaluationBench.RepositoryRoot(), "models", "demo"));
+            Memory(local, dir);
+        }
+        finally
+        {
+            Directory.Delete(dir, recursive: true);
+        }
+    }
+
+    /// <summary>
+    /// Resident memory along a long recording: a 512×256 drive-by (129 frames) looped 60 times by ffmpeg (7740 frames,
+    /// 12.9 minutes at 10 frames/s), 1 frame in 2 scored through <c>RecordingRun</c>. The slope is a least-squares fit
+    /// over the samples after the first tenth, so warm-up (sessions, pools, JIT) does not count as growth.
+    /// </summary>
+    private static void Memory(LocalModel local, string dir)
+    {
+        Console.WriteLine();
+        Console.WriteLine("## Recordings: resident memory along a long recording (512×256 drive-by looped 60 times, 7740 frames, 1 in 2 scored)");
+        Console.WriteLine();
+        string clip = Encode(dir, new ApronDriveBy(512, 256, 1536, 8), "drive-512x256.mp4");
+        string longer = Path.Combine(dir, "long.mp4");
+        Ffmpeg("-stream_loop", "59", "-i", clip, "-c", "copy", longer);
+        var sampling = RecordingSampling.Every(2);
+        var video = VideoRecording.Open(longer, new RecordingOptions { Sampling = sampling });
+        var samples = new List<(int Frames, double RssMib, double HeapMib)>();
+        var watch = Stopwatch.StartNew();
+        var final = RecordingRun.Score(local.Runner, local.Lease, video, longer, sampling, local.Version.Defaults, new TrackingSettings(),
+            Path.Combine(dir, "out-long"), new Progress(n =>
+            {
+                if (n % 100 != 0) return;
+                using var self = Process.GetCurrentProcess();
+                samples.Add((n, self.WorkingSet64 / 1048576.0, GC.GetGCMemoryInfo().HeapSizeBytes / 1048576.0));
+            }));
+        double seconds = watch.Elapsed.TotalSeconds;
+        Console.WriteLine("| frames scored | resident MiB | managed heap MiB |");
+        Console.WriteLine("|---|---|---|");
+        foreach (var (n, rss, heap) in samples) Console.WriteLine($"| {n} | {rss:0.0} | {heap:0.0} |");
+        var steady = samples.Skip(samples.Count / 10).ToList();
+        var first = steady[0];
+        var middle = steady[steady.Count / 2];
+        var last = steady[^1];
+        Console.WriteLine();
+        Console.WriteLine($"{final.FramesScored} frames scored of {video.Header.FrameCount} decoded in {seconds:0} s ({final.FramesScored / seconds:0.00} frames/s); " +
+                          $"{final.TracksFound} tracks, {final.TracksKept} kept.");
+        Console.WriteLine($"resident after warm-up: first {first.RssMib:0.0} MiB (frame {first.Frames}), middle {middle.RssMib:0.0} MiB (frame {middle.Frames}), " +
+                          $"last {last.RssMib:0.0} MiB (frame {last.Frames}); slope {1000 * Slope(steady.Select(x => (x.Frames, x.RssMib)).ToList()):0.00} MiB per 1000 scored frames " +
+                          $"(managed heap {1000 * Slope(steady.Select(x => (x.Frames, x.HeapMib)).ToList()):0.00}).");
+    }
+
+    /// <summary>Least-squares slope of y over x.</summary>
+    private static double Slope(List<(int X, double Y)> points)
+    {
+        double mx = points.Average(p => p.X), my = points.Average(p => p.Y);
+        double sxy = points.Sum(p => (p.X - mx) * (p.Y - my)), sxx = points.Sum(p => (p.X - mx) * (p.X - mx));
+        return sxx > 0 ? sxy / sxx : 0;
     }
 
     private sealed class Progress(Action<int> report) : IProgress<int>
