@@ -12,7 +12,7 @@ namespace Strayspot.Service.Cli;
 
 /// <summary>
 /// Scores frames (files or a folder) through a model folder and writes, per frame, the report and PNG artifacts,
-/// plus <c>ranking.json</c>: every frame, highest frame score first.
+/// plus <c>ranking.json</c>: every frame and every recording's time segment, highest score first.
 /// </summary>
 public static class ScoreVerb
 {
@@ -52,21 +52,44 @@ public static class ScoreVerb
             foreach (var w in local.Version.WarningsFor(0, 0, options).Where(w => w.Code == ScoringWarnings.ThresholdOutOfRange))
                 Console.Error.WriteLine($"warning [{w.Code}]: {w.Message}");
             string outFolder = p.GetValue(output)!.FullName;
-            if (videos.Count > 0) ScoreRecordings.Run(local, videos, recordingOptions, tracking, options, outFolder, Console.Out);
-            if (files.Count == 0) return CliApp.ExitOk;
+            var segments = videos.Count > 0 ? ScoreRecordings.Run(local, videos, recordingOptions, tracking, options, outFolder, Console.Out) : [];
+            if (files.Count == 0)
+            {
+                WriteRanking(outFolder, segments);
+                Console.WriteLine($"ranking: {Path.Combine(outFolder, RankingFile)}");
+                return CliApp.ExitOk;
+            }
             var chosen = ParseArtifacts(p.GetValue(artifacts));
             var ranking = FrameProgress.Run("scoring", files.Count, Console.Out, progress => ScoreAll(local, files, options, outFolder, progress, chosen));
             Console.WriteLine($"scored {ranking.Count} frame(s) into {outFolder}");
             foreach (var r in ranking.Take(5))
                 Console.WriteLine($"  {r.FrameScore,8:0.000}  {r.RegionCount,3} region(s)  {r.Frame}");
-            Console.WriteLine($"ranking: {Path.Combine(outFolder, "ranking.json")}");
+            if (segments.Count > 0) WriteRanking(outFolder, [.. ranking, .. segments]);
+            Console.WriteLine($"ranking: {Path.Combine(outFolder, RankingFile)}");
             return CliApp.ExitOk;
         }));
         return command;
     }
 
-    /// <summary>One line of ranking.json; <c>regionCount</c> is a count (a frame report's <c>regions</c> is the list).</summary>
-    public sealed record RankedFrame(string Frame, float FrameScore, int RegionCount, double AnomalousShare, string Report);
+    public const string RankingFile = "ranking.json";
+
+    /// <summary>
+    /// One entry of ranking.json; <c>regionCount</c> is a count (a frame report's <c>regions</c> is the list). A
+    /// recording's time segment is an entry too: <c>frame</c> is the recording's file, <c>frameScore</c> the segment's
+    /// highest track score, <c>regionCount</c> its tracks, <c>report</c> its <c>tracks.json</c>, and the segment's
+    /// rank within the recording, span and best frame follow.
+    /// </summary>
+    public sealed record RankedFrame(string Frame, float FrameScore, int RegionCount, double? AnomalousShare, string Report,
+        string? Recording = null, int? Segment = null, double? StartSeconds = null, double? EndSeconds = null, string? BestFrameId = null,
+        IReadOnlyList<int>? Tracks = null);
+
+    /// <summary>Writes ranking.json: the entries, highest score first (stable, so equal scores keep their order).</summary>
+    public static void WriteRanking(string outFolder, IEnumerable<RankedFrame> entries)
+    {
+        Directory.CreateDirectory(outFolder);
+        var ranked = entries.OrderByDescending(e => e.FrameScore).ToList();
+        AtomicFile.WriteAllBytes(Path.Combine(outFolder, RankingFile), JsonSerializer.SerializeToUtf8Bytes(ranked, FrameReport.JsonOptions));
+    }
 
     /// <summary>What <c>score</c> writes per frame unless told otherwise: the mask and the picture a person looks at.
     /// The full-size maps (class map, heat map, score NPY and 16-bit PNG) are opt-in: at 1920×1080 all of them take about 14 MB a frame.</summary>
@@ -119,7 +142,7 @@ public static class ScoreVerb
             progress?.Report(new FrameCount(i + 1, files.Count));
         }
         ranked.Sort((a, b) => b.FrameScore.CompareTo(a.FrameScore));
-        AtomicFile.WriteAllBytes(Path.Combine(outFolder, "ranking.json"), JsonSerializer.SerializeToUtf8Bytes(ranked, FrameReport.JsonOptions));
+        WriteRanking(outFolder, ranked);
         return ranked;
     }
 

@@ -51,6 +51,17 @@ public sealed class ScoreRecordingVerbTests : IDisposable
             Assert.True(File.Exists(Path.Combine(folder, t.GetProperty("bestOverlay").GetString()!)));
         }
         Assert.True(File.Exists(Path.Combine(folder, RecordingRun.PlotFile)));
+        // Each frame line's regions name their track; ranking.json ranks the recording's time segments.
+        var sightings = report.GetProperty("tracks").EnumerateArray().SelectMany(t => t.GetProperty("sightings").EnumerateArray()
+            .Select(g => (g.GetProperty("index").GetInt64(), g.GetProperty("region").GetInt32(), t.GetProperty("id").GetInt32()))).ToHashSet();
+        Assert.Equal(sightings, lines.SelectMany(l => l.GetProperty("regions").EnumerateArray()
+            .Select(r => (l.GetProperty("index").GetInt64(), r.GetProperty("id").GetInt32(), r.GetProperty("track").GetInt32()))).ToHashSet());
+        var segments = report.GetProperty("segments").EnumerateArray().ToList();
+        Assert.NotEmpty(segments);
+        var ranking = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(outDir, ScoreVerb.RankingFile))).RootElement.EnumerateArray().ToList();
+        Assert.Equal(segments.Select(g => g.GetProperty("rank").GetInt32()), ranking.Select(r => r.GetProperty("segment").GetInt32()));
+        Assert.All(ranking, r => Assert.Equal(Path.Combine("pass", RecordingRun.TracksFile), r.GetProperty("report").GetString()));
+        Assert.Equal(segments.Select(g => g.GetProperty("startSeconds").GetDouble()), ranking.Select(r => r.GetProperty("startSeconds").GetDouble()));
     }
 
     [Fact]
