@@ -5,7 +5,7 @@ namespace Strayspot.Service.Cli;
 
 /// <summary>
 /// <c>strayspot healthcheck</c>: asks a running service on this machine whether it is alive. The container's
-/// HEALTHCHECK runs it because chiseled images have no shell or curl.
+/// HEALTHCHECK runs it so the image needs no curl or wget.
 /// </summary>
 public static class HealthcheckVerb
 {
