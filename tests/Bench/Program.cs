@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, load, evaluation, review, recordings (recording-memory: its memory part alone), all; replicas (worker processes on
+/// one run as a Markdown table. Suites: scoring (default), chain, runtime, service, load, evaluation, review, recordings (recording-memory: its memory part alone), drive-by (tracking settings on the demo drive-by), all; replicas (worker processes on
 /// PostgreSQL: started on its own, not by all).
 /// </summary>
 public static class Program
@@ -32,9 +32,10 @@ public static class Program
             case "review": ReviewBench.Run(runs); return 0;
             case "recordings": RecordingBench.Run(runs); return 0;
             case "recording-memory": RecordingBench.RunMemory(); return 0;
+            case "drive-by": DriveByBench.Run(); return 0;
             case "replicas": ReplicaBench.Run(Math.Min(runs, 5)); return 0;
             case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); RecordingBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, load, evaluation, review, recordings, recording-memory, replicas, all"); return 2;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, service, load, evaluation, review, recordings, recording-memory, drive-by, replicas, all"); return 2;
         }
     }
 }

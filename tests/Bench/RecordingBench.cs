@@ -171,13 +171,13 @@ public static class RecordingBench
         return t.Elapsed.TotalMilliseconds / Math.Max(1, frames);
     }
 
-    private static string Encode(string dir, ApronDriveBy drive, string name)
+    public static string Encode(string dir, ApronDriveBy drive, string name, int crf = 18)
     {
         string path = Path.Combine(dir, name);
         var start = new ProcessStartInfo("ffmpeg") { RedirectStandardInput = true, UseShellExecute = false };
         foreach (string a in (string[])["-hide_banner", "-loglevel", "error", "-y", "-f", "rawvideo", "-pix_fmt", "rgb24",
                      "-s", $"{drive.FrameWidth}x{drive.FrameHeight}", "-r", "10", "-i", "pipe:0", "-c:v", "libx264", "-preset", "veryfast",
-                     "-crf", "18", "-pix_fmt", "yuv420p", path])
+                     "-crf", crf.ToString(System.Globalization.CultureInfo.InvariantCulture), "-pix_fmt", "yuv420p", path])
             start.ArgumentList.Add(a);
         using var p = Process.Start(start)!;
         for (int i = 0; i < drive.FrameCount; i++) p.StandardInput.BaseStream.Write(drive.Rgb(i));

@@ -30,30 +30,6 @@ public sealed class DriveByTrackTests(ITestOutputHelper output) : IDisposable
         else Directory.Delete(_dir, recursive: true);
     }
 
-    /// <summary>Track-level counts. An object counts as in view when all its pixels are inside at least 3 sampled frames.</summary>
-    public sealed record TrackCounts(int InView, int Found, int Missed, int False);
-
-    /// <summary>
-    /// A track belongs to the object under the centroid of most of its sightings' boxes (in panorama pixels);
-    /// an object is found when a kept track belongs to it; a kept track that belongs to no object is false.
-    /// </summary>
-    public static TrackCounts Judge(ApronDriveBy drive, IReadOnlyList<TrackReport> tracks, IReadOnlyList<long> sampled)
-    {
-        var inView = drive.Objects.Where(o => sampled.Count(i => drive.VisiblePixels(o.Id, i) == o.Area) >= 3).Select(o => o.Id).ToHashSet();
-        var found = new HashSet<int>();
-        int falseTracks = 0;
-        foreach (var t in tracks.Where(t => t.Kept))
-        {
-            var votes = t.Sightings
-                .Select(s => drive.ObjectAt(drive.Offset(s.Index) + s.Box.X + s.Box.Width / 2, s.Box.Y + s.Box.Height / 2))
-                .GroupBy(id => id).OrderByDescending(g => g.Count()).First();
-            if (votes.Key != 0 && votes.Count() * 2 > t.Sightings.Count) found.Add(votes.Key);
-            else falseTracks++;
-        }
-        found.IntersectWith(drive.Objects.Select(o => o.Id));
-        return new TrackCounts(inView.Count, found.Count(inView.Contains), inView.Count(id => !found.Contains(id)), falseTracks);
-    }
-
     [VideoFact]
     public void The_drive_by_yields_a_track_per_debris_object_and_the_persistence_rule_cuts_false_ones()
     {
@@ -72,8 +48,8 @@ public sealed class DriveByTrackTests(ITestOutputHelper output) : IDisposable
             .Select(l => JsonDocument.Parse(l).RootElement.GetProperty("index").GetInt64()).ToList();
         Assert.Equal(Enumerable.Range(0, (drive.FrameCount + 1) / 2).Select(i => 2L * i), sampled);
 
-        var all = Judge(drive, report.Tracks, sampled);
-        var persistent = Judge(drive, report.Tracks.Select(t => t with { Kept = t.FramesSeen >= 3 }).ToList(), sampled);
+        var all = DriveByJudge.Judge(drive, report.Tracks, sampled);
+        var persistent = DriveByJudge.Judge(drive, report.Tracks.Select(t => t with { Kept = t.FramesSeen >= 3 }).ToList(), sampled);
         output.WriteLine($"all tracks ({report.TracksFound}): {all}");
         output.WriteLine($"seen in ≥ 3 frames ({report.Tracks.Count(t => t.FramesSeen >= 3)}): {persistent}");
         foreach (var t in report.Tracks)
