@@ -9,27 +9,17 @@ using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Batches;
 
-/// <summary>A track as a recording's manifest line sums it up: enough to draw it on a timeline (the sightings stay in <c>tracks.json</c>).</summary>
-public sealed record TrackSpan(
-    [property: JsonPropertyName("id")] int Id,
-    [property: JsonPropertyName("kept")] bool Kept,
-    [property: JsonPropertyName("firstTime")] double FirstTime,
-    [property: JsonPropertyName("lastTime")] double LastTime,
-    [property: JsonPropertyName("framesSeen")] int FramesSeen,
-    [property: JsonPropertyName("maxScore")] float MaxScore,
-    [property: JsonPropertyName("meanScore")] float MeanScore,
-    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
-    [property: JsonPropertyName("bestFrameId")] string BestFrameId,
-    [property: JsonPropertyName("bestTime")] double BestTime);
-
-/// <summary>A recording's summary on its manifest line: its span, every track (kept or not) and the ranked time segments.</summary>
+/// <summary>
+/// A recording's summary on its manifest line: its span, every track (kept or not, as in <c>tracks.json</c> but
+/// without the sightings, so the line grows with the tracks, not the frames) and the ranked time segments.
+/// </summary>
 public sealed record RecordingTimeline(
     [property: JsonPropertyName("durationSeconds")] double DurationSeconds,
     [property: JsonPropertyName("framesScored")] int FramesScored,
     [property: JsonPropertyName("minimumFramesSeen")] int MinimumFramesSeen,
     [property: JsonPropertyName("tracksFound")] int TracksFound,
     [property: JsonPropertyName("tracksKept")] int TracksKept,
-    [property: JsonPropertyName("tracks")] IReadOnlyList<TrackSpan> Tracks,
+    [property: JsonPropertyName("tracks")] IReadOnlyList<TrackReport> Tracks,
     [property: JsonPropertyName("segments")] IReadOnlyList<TimeSegment> Segments);
 
 /// <summary>
@@ -71,7 +61,7 @@ public static class BatchRecordings
         {
             if (!t.Kept) continue;
             score = Math.Max(score, t.MaxScore);
-            tracks.Add(new ManifestRegion(t.Id, t.BestBox, t.Sightings.Count, t.MeanScore, t.MaxScore,
+            tracks.Add(new ManifestRegion(t.Id, t.BestBox, t.FramesSeen, t.MeanScore, t.MaxScore,
                 t.ClassBeneathName ?? t.ClassBeneath.ToString(System.Globalization.CultureInfo.InvariantCulture), false, []));
         }
         return (float.IsFinite(score) ? score : 0f, tracks);
@@ -116,7 +106,7 @@ public static class BatchRecordings
         if (keep)
             yield return new ManifestLine(recording.Seq, recording.FrameId, recording.SourcePath, recording.FrameScore, tracks, artifacts,
                 batch.Model, batch.ModelSha256, batch.ProfileVersion, Decision: whole is null ? null : DecisionMark.From(whole),
-                Kind: ManifestKinds.Recording, Recording: recording.FrameId, Timeline: report is null ? null : Timeline(report, recording.FrameId));
+                Kind: ManifestKinds.Recording, Recording: recording.FrameId, Timeline: report is null ? null : Timeline(report, recording.FrameId, folder));
 
         string framesPath = Path.Combine(batchFolder, folder, RecordingRun.FramesFile);
         if (!File.Exists(framesPath)) yield break;
@@ -148,12 +138,17 @@ public static class BatchRecordings
         }
     }
 
-    /// <summary>The timeline of a recording's line; frame ids renamed to the manifest's (the recording's id in the batch).</summary>
-    public static RecordingTimeline Timeline(RecordingReport report, string recordingId)
+    /// <summary>
+    /// The timeline of a recording's line: frame ids renamed to the manifest's (the recording's id in the batch), overlay
+    /// paths made relative to the batch folder like every manifest path (<paramref name="folder"/> is the recording's).
+    /// </summary>
+    public static RecordingTimeline Timeline(RecordingReport report, string recordingId, string folder)
     {
         string Rename(string frameId) => RecordingFrame.IdOf(recordingId, long.Parse(frameId[(frameId.LastIndexOf('@') + 1)..], CultureInfo.InvariantCulture));
-        var tracks = report.Tracks.Select(t => new TrackSpan(t.Id, t.Kept, t.FirstTime, t.LastTime, t.FramesSeen, t.MaxScore, t.MeanScore,
-            t.ClassBeneathName ?? t.ClassBeneath.ToString(CultureInfo.InvariantCulture), Rename(t.BestFrameId), t.BestTime)).ToList();
+        var tracks = report.Tracks.Select(t => t with
+        {
+            BestFrameId = Rename(t.BestFrameId), Sightings = null, BestOverlay = t.BestOverlay is null ? null : folder + "/" + t.BestOverlay.Replace('\\', '/'),
+        }).ToList();
         var segments = report.Segments.Select(s => s with { BestFrameId = Rename(s.BestFrameId) }).ToList();
         return new RecordingTimeline(report.DurationSeconds, report.FramesScored, report.MinimumFramesSeen, report.TracksFound, report.TracksKept,
             tracks, segments);

@@ -22,10 +22,12 @@ public static class DriveByJudge
         int falseTracks = 0;
         foreach (var t in tracks.Where(t => t.Kept))
         {
-            var votes = t.Sightings
+            var sightings = t.Sightings ?? [];
+            if (sightings.Count == 0) { falseTracks++; continue; }
+            var votes = sightings
                 .Select(s => drive.ObjectAt(drive.Offset(s.Index) + s.Box.X + s.Box.Width / 2, s.Box.Y + s.Box.Height / 2))
                 .GroupBy(id => id).OrderByDescending(g => g.Count()).First();
-            if (votes.Key != 0 && votes.Count() * 2 > t.Sightings.Count) found.Add(votes.Key);
+            if (votes.Key != 0 && votes.Count() * 2 > sightings.Count) found.Add(votes.Key);
             else falseTracks++;
         }
         found.IntersectWith(drive.Objects.Select(o => o.Id));

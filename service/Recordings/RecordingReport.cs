@@ -37,8 +37,8 @@ public sealed record TrackReport
     [JsonPropertyName("bestRegion")] public int BestRegion { get; init; }
     [JsonPropertyName("bestBox")] public BoxReport BestBox { get; init; } = new(0, 0, 0, 0);
     [JsonPropertyName("bestOverlay")] public string? BestOverlay { get; init; }
-    /// <summary>Every sighting (frame, region, box, score), in time order.</summary>
-    [JsonPropertyName("sightings")] public IReadOnlyList<SightingReport> Sightings { get; init; } = [];
+    /// <summary>Every sighting (frame, region, box, score), in time order; null where a summary leaves them out (a manifest's timeline).</summary>
+    [JsonPropertyName("sightings")] public IReadOnlyList<SightingReport>? Sightings { get; init; } = [];
 
     public static TrackReport From(Track t, bool kept, string recording, IReadOnlyList<string>? classNames, string? overlay) => new()
     {

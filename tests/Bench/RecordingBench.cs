@@ -107,6 +107,7 @@ public static class RecordingBench
         var sampling = RecordingSampling.Every(2);
         var video = VideoRecording.Open(longer, new RecordingOptions { Sampling = sampling });
         var samples = new List<(int Frames, double RssMib, double HeapMib)>();
+        var live = new List<(int Frames, double Mib)>();
         var watch = Stopwatch.StartNew();
         var final = RecordingRun.Score(local.Runner, local.Lease, video, longer, sampling, local.Version.Defaults, new TrackingSettings(),
             Path.Combine(dir, "out-long"), new Progress(n =>
@@ -114,6 +115,8 @@ public static class RecordingBench
                 if (n % 100 != 0) return;
                 using var self = Process.GetCurrentProcess();
                 samples.Add((n, self.WorkingSet64 / 1048576.0, GC.GetGCMemoryInfo().HeapSizeBytes / 1048576.0));
+                // Every 500 frames, the live managed heap after a full collection: what the run really holds on to.
+                if (n % 500 == 0) live.Add((n, GC.GetTotalMemory(forceFullCollection: true) / 1048576.0));
             }));
         double seconds = watch.Elapsed.TotalSeconds;
         Console.WriteLine("| frames scored | resident MiB | managed heap MiB |");
@@ -129,6 +132,8 @@ public static class RecordingBench
         Console.WriteLine($"resident after warm-up: first {first.RssMib:0.0} MiB (frame {first.Frames}), middle {middle.RssMib:0.0} MiB (frame {middle.Frames}), " +
                           $"last {last.RssMib:0.0} MiB (frame {last.Frames}); slope {1000 * Slope(steady.Select(x => (x.Frames, x.RssMib)).ToList()):0.00} MiB per 1000 scored frames " +
                           $"(managed heap {1000 * Slope(steady.Select(x => (x.Frames, x.HeapMib)).ToList()):0.00}).");
+        Console.WriteLine($"live managed heap after a full collection: {string.Join(", ", live.Select(l => $"{l.Mib:0.0} MiB at {l.Frames}"))}; " +
+                          $"slope {1000 * Slope(live):0.00} MiB per 1000 scored frames (the tracks' sightings, kept for tracks.json).");
     }
 
     /// <summary>Least-squares slope of y over x.</summary>

@@ -42,6 +42,8 @@ public class RecordingBatchTests
         var spans = timeline.GetProperty("tracks").EnumerateArray().ToDictionary(t => t.GetProperty("id").GetInt32());
         Assert.Equal(tracks.GetProperty("tracks").GetArrayLength(), spans.Count);
         Assert.Equal(kept, spans.Values.Where(t => t.GetProperty("kept").GetBoolean()).Select(t => t.GetProperty("id").GetInt32()));
+        Assert.All(spans.Values, t => Assert.False(t.TryGetProperty("sightings", out _)));
+        Assert.All(spans.Values, t => Assert.True(File.Exists(Path.Combine(batchFolder, t.GetProperty("bestOverlay").GetString()!))));
         var segments = timeline.GetProperty("segments").EnumerateArray().ToList();
         Assert.Equal(Enumerable.Range(1, segments.Count), segments.Select(g => g.GetProperty("rank").GetInt32()));
         Assert.All(segments, g => Assert.StartsWith("pass.mp4@", g.GetProperty("bestFrameId").GetString()));
