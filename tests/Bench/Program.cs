@@ -14,6 +14,13 @@ public static class Program
         return i >= 0 && i + 1 < args.Length && int.TryParse(args[i + 1], out int n) && n > 0 ? n : null;
     }
 
+    /// <summary><c>--loops N</c>: how many times recording-memory loops the drive-by.</summary>
+    private static int Loops(string[] args)
+    {
+        int i = Array.IndexOf(args, "--loops");
+        return i >= 0 && i + 1 < args.Length && int.TryParse(args[i + 1], out int n) && n > 0 ? n : 60;
+    }
+
     public static int Main(string[] args)
     {
         string suite = args.Length > 0 && !args[0].StartsWith("--") ? args[0] : "scoring";
@@ -31,7 +38,7 @@ public static class Program
             case "evaluation": EvaluationBench.Run(runs); return 0;
             case "review": ReviewBench.Run(runs); return 0;
             case "recordings": RecordingBench.Run(runs); return 0;
-            case "recording-memory": RecordingBench.RunMemory(); return 0;
+            case "recording-memory": RecordingBench.RunMemory(Loops(args)); return 0;
             case "drive-by": DriveByBench.Run(); return 0;
             case "replicas": ReplicaBench.Run(Math.Min(runs, 5)); return 0;
             case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); RecordingBench.Run(runs); return 0;

@@ -76,14 +76,14 @@ public static class RecordingBench
         }
     }
 
-    /// <summary>Only the memory part: <c>-- recording-memory</c>.</summary>
-    public static void RunMemory()
+    /// <summary>Only the memory part: <c>-- recording-memory [--loops N]</c> (default 60).</summary>
+    public static void RunMemory(int loops = 60)
     {
         string dir = Directory.CreateTempSubdirectory("strayspot-bench-mem-").FullName;
         try
         {
             using var local = LocalModel.Open(Path.Combine(EvaluationBench.RepositoryRoot(), "models", "demo"));
-            Memory(local, dir);
+            Memory(local, dir, loops);
         }
         finally
         {
@@ -96,14 +96,14 @@ public static class RecordingBench
     /// 12.9 minutes at 10 frames/s), 1 frame in 2 scored through <c>RecordingRun</c>. The slope is a least-squares fit
     /// over the samples after the first tenth, so warm-up (sessions, pools, JIT) does not count as growth.
     /// </summary>
-    private static void Memory(LocalModel local, string dir)
+    private static void Memory(LocalModel local, string dir, int loops = 60)
     {
         Console.WriteLine();
-        Console.WriteLine("## Recordings: resident memory along a long recording (512×256 drive-by looped 60 times, 7740 frames, 1 in 2 scored)");
+        Console.WriteLine($"## Recordings: resident memory along a long recording (512×256 drive-by looped {loops} times, {loops * 129} frames, 1 in 2 scored)");
         Console.WriteLine();
         string clip = Encode(dir, new ApronDriveBy(512, 256, 1536, 8), "drive-512x256.mp4");
         string longer = Path.Combine(dir, "long.mp4");
-        Ffmpeg("-stream_loop", "59", "-i", clip, "-c", "copy", longer);
+        Ffmpeg("-stream_loop", (loops - 1).ToString(System.Globalization.CultureInfo.InvariantCulture), "-i", clip, "-c", "copy", longer);
         var sampling = RecordingSampling.Every(2);
         var video = VideoRecording.Open(longer, new RecordingOptions { Sampling = sampling });
         var samples = new List<(int Frames, double RssMib, double HeapMib)>();
@@ -115,8 +115,8 @@ public static class RecordingBench
                 if (n % 100 != 0) return;
                 using var self = Process.GetCurrentProcess();
                 samples.Add((n, self.WorkingSet64 / 1048576.0, GC.GetGCMemoryInfo().HeapSizeBytes / 1048576.0));
-                // Every 500 frames, the live managed heap after a full collection: what the run really holds on to.
-                if (n % 500 == 0) live.Add((n, GC.GetTotalMemory(forceFullCollection: true) / 1048576.0));
+                // Every 1000 frames, the live managed heap after a full collection: what the run really holds on to.
+                if (n % 1000 == 0) live.Add((n, GC.GetTotalMemory(forceFullCollection: true) / 1048576.0));
             }));
         double seconds = watch.Elapsed.TotalSeconds;
         Console.WriteLine("| frames scored | resident MiB | managed heap MiB |");
