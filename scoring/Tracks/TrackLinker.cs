@@ -92,7 +92,26 @@ public sealed class TrackLinker
         return _assigned;
     }
 
-    /// <summary>Every track, open or closed, numbered 1..N in order of first sighting (then of region id).</summary>
+    /// <summary>
+    /// Hands over the tracks closed since the last call (no later sighting can join them) and forgets them, so a
+    /// long recording's finished tracks can be written out instead of held; <see cref="Tracks"/> then lists only the
+    /// tracks not yet taken. With <paramref name="all"/>, the open tracks too (the recording has ended).
+    /// </summary>
+    public IReadOnlyList<Track> TakeClosed(bool all = false)
+    {
+        if (all)
+        {
+            _closed.AddRange(_open);
+            _open.Clear();
+        }
+        _closed.Sort((a, b) => a.Id.CompareTo(b.Id));
+        var tracks = new List<Track>(_closed.Count);
+        foreach (var (id, sightings) in _closed) tracks.Add(Summarize(id, sightings));
+        _closed.Clear();
+        return tracks;
+    }
+
+    /// <summary>Every track not yet taken, open or closed, numbered 1..N in order of first sighting (then of region id).</summary>
     public IReadOnlyList<Track> Tracks()
     {
         var all = new List<(int Id, List<TrackSighting> Sightings)>(_closed.Count + _open.Count);

@@ -33,6 +33,7 @@ public static class RecordingRun
     public const string PlotFile = "score-over-time.png";
     public const string TracksFolder = "tracks";
 
+    /// <returns>The report as <c>tracks.json</c> holds it, but with only the kept tracks, without their sightings (the file has every track whole).</returns>
     public static RecordingReport Score(FrameRunner runner, ModelLease model, IRecording recording, string source, RecordingSampling sampling,
         ScoringOptions options, TrackingSettings tracking, string folder, IProgress<int>? progress = null, CancellationToken cancel = default)
     {
@@ -42,6 +43,25 @@ public static class RecordingRun
         var scores = new List<double>();
         var best = new Dictionary<int, float>();
         var names = model.Version.ClassNames;
+        // Finished tracks go to a scratch file as they close, so what stays in memory is the open tracks and the kept
+        // tracks' summaries, not every sighting of a long recording; tracks.json is written from the file at the end.
+        using var spill = new FileStream(Path.Combine(folder, TracksFile + ".sightings.part"), FileMode.Create, FileAccess.ReadWrite,
+            FileShare.None, 1 << 16, FileOptions.DeleteOnClose);
+        var spilled = new List<(int Id, long Offset, int Length)>();
+        var keptTracks = new List<TrackReport>();
+        void Spill(IReadOnlyList<Track> closed)
+        {
+            var keep = PersistenceRule.Keep(closed, tracking.MinimumFramesSeen).Select(k => k.Id).ToHashSet();
+            foreach (var k in closed)
+            {
+                var r = TrackReport.From(k, keep.Contains(k.Id), recording.Name, model.Version.ClassNames, Path.Combine(TracksFolder, OverlayName(k.Id)));
+                byte[] json = JsonSerializer.SerializeToUtf8Bytes(r, Compact);
+                spilled.Add((k.Id, spill.Position, json.Length));
+                spill.Write(json);
+                if (r.Kept) keptTracks.Add(r with { Sightings = null });
+                best.Remove(k.Id);
+            }
+        }
         double decodeMs = 0, scoreMs = 0;
         int scored = 0;
         string framesPath = Path.Combine(folder, FramesFile);
@@ -58,6 +78,7 @@ public static class RecordingRun
                     {
                         var regions = s.Regions.Regions;
                         var assigned = linker.Add(rf.Sample, rf.Index, rf.TimeSeconds, s.Width, s.Height, regions);
+                        Spill(linker.TakeClosed());
                         var reports = Manifest.Regions(s, names);
                         string? written = null;
                         for (int i = 0; i < regions.Count; i++)
@@ -88,23 +109,49 @@ public static class RecordingRun
         }
         File.Move(framesPath + ".part", framesPath, overwrite: true);
 
-        var tracks = linker.Tracks();
-        var kept = new HashSet<int>(PersistenceRule.Keep(tracks, tracking.MinimumFramesSeen).Select(k => k.Id));
-        var trackReports = tracks.Select(k => TrackReport.From(k, kept.Contains(k.Id), recording.Name, names,
-            Path.Combine(TracksFolder, OverlayName(k.Id)))).ToList();
+        Spill(linker.TakeClosed(all: true));
+        spilled.Sort((a, b) => a.Id.CompareTo(b.Id));
+        keptTracks.Sort((a, b) => a.Id.CompareTo(b.Id));
         var report = new RecordingReport
         {
             Recording = recording.Name, Source = source, Frame = new SizeReport(recording.Width, recording.Height),
             Sampling = sampling.ToString(), FramesScored = scored, DurationSeconds = times.Count > 0 ? times[^1] - times[0] : 0,
             Threshold = options.Threshold, Linking = tracking.Linking, MinimumFramesSeen = tracking.MinimumFramesSeen,
-            TracksFound = tracks.Count, TracksKept = kept.Count, Tracks = trackReports,
-            Segments = Segments(trackReports.Where(k => k.Kept).ToList(), tracking.SegmentGapSeconds),
+            TracksFound = spilled.Count, TracksKept = keptTracks.Count, Tracks = keptTracks,
+            Segments = Segments(keptTracks, tracking.SegmentGapSeconds),
             Notes = recording.Notes.ToList(),
             TimingsMs = new() { ["decode"] = Math.Round(decodeMs, 1), ["score"] = Math.Round(scoreMs, 1) },
         };
-        AtomicFile.WriteAllBytes(Path.Combine(folder, TracksFile), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
+        // Streamed out: every track with its sightings, read back one at a time in id order.
+        AtomicFile.Write(Path.Combine(folder, TracksFile), st => JsonSerializer.Serialize(st, report with { Tracks = new SpilledTracks(spill, spilled) },
+            FrameReport.JsonOptions));
         AtomicFile.WriteAllBytes(Path.Combine(folder, PlotFile), RecordingPlot.Render(report, times, scores));
         return report;
+    }
+
+    /// <summary>Tracks written to the scratch file, read back one by one in the given order while tracks.json is serialized.</summary>
+    private sealed class SpilledTracks(FileStream file, List<(int Id, long Offset, int Length)> entries) : IReadOnlyList<TrackReport>
+    {
+        public int Count => entries.Count;
+
+        public TrackReport this[int index]
+        {
+            get
+            {
+                var (_, offset, length) = entries[index];
+                var bytes = new byte[length];
+                file.Seek(offset, SeekOrigin.Begin);
+                file.ReadExactly(bytes);
+                return JsonSerializer.Deserialize<TrackReport>(bytes, Compact)!;
+            }
+        }
+
+        public IEnumerator<TrackReport> GetEnumerator()
+        {
+            for (int i = 0; i < entries.Count; i++) yield return this[i];
+        }
+
+        System.Collections.IEnumerator System.Collections.IEnumerable.GetEnumerator() => GetEnumerator();
     }
 
     public static string OverlayName(int trackId) => $"track-{trackId:D4}.png";

@@ -133,4 +133,34 @@ public class TrackLinkerTests
         Assert.Throws<ArgumentOutOfRangeException>(() => new TrackLinker(new TrackLinkOptions { MissedFrames = -1 }));
         Assert.Throws<ArgumentOutOfRangeException>(() => new TrackLinker(new TrackLinkOptions { MinimumOverlap = 0 }));
     }
+
+    [Fact]
+    public void Closed_tracks_are_handed_over_once_and_the_rest_at_the_end_the_same_as_linking_without_taking()
+    {
+        // A box seen in samples 0–1, then gone; another, far off, from sample 2 on. One missed frame is tolerated: at
+        // sample 3 track 1 has missed 3 − 1 − 1 = 1 frame (still open), at sample 4 it has missed 2 and closes.
+        var taking = new TrackLinker();
+        var keeping = new TrackLinker();
+        var taken = new List<(int Sample, Track Track)>();
+        Region[][] frames =
+        [
+            [Box(1, 10, 10, 10, 10)], [Box(1, 11, 10, 10, 10)], [Box(1, 150, 60, 10, 10)],
+            [Box(1, 151, 60, 10, 10)], [Box(1, 152, 60, 10, 10)], [Box(1, 153, 60, 10, 10)],
+        ];
+        for (int i = 0; i < frames.Length; i++)
+        {
+            Assert.Equal(keeping.Add(i, i, 0.1 * i, W, H, frames[i]), taking.Add(i, i, 0.1 * i, W, H, frames[i]));
+            foreach (var t in taking.TakeClosed()) taken.Add((i, t));
+        }
+        // Track 1 was last seen at sample 1: samples 2 and 3 missed it, so it closes as sample 4 comes in.
+        var first = Assert.Single(taken);
+        Assert.Equal((4, 1, 2), (first.Sample, first.Track.Id, first.Track.FramesSeen));
+        Assert.Equal([2], taking.Tracks().Select(t => t.Id));
+        foreach (var t in taking.TakeClosed(all: true)) taken.Add((frames.Length, t));
+        Assert.Empty(taking.Tracks());
+        Assert.Empty(taking.TakeClosed(all: true));
+        var expected = keeping.Tracks();
+        Assert.Equal(expected.Select(t => (t.Id, t.FramesSeen, t.MaxScore, t.MeanScore, t.Best.FrameIndex)),
+            taken.Select(x => x.Track).Select(t => (t.Id, t.FramesSeen, t.MaxScore, t.MeanScore, t.Best.FrameIndex)));
+    }
 }

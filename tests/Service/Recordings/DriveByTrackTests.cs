@@ -48,11 +48,16 @@ public sealed class DriveByTrackTests(ITestOutputHelper output) : IDisposable
             .Select(l => JsonDocument.Parse(l).RootElement.GetProperty("index").GetInt64()).ToList();
         Assert.Equal(Enumerable.Range(0, (drive.FrameCount + 1) / 2).Select(i => 2L * i), sampled);
 
-        var all = DriveByJudge.Judge(drive, report.Tracks, sampled);
-        var persistent = DriveByJudge.Judge(drive, report.Tracks.Select(t => t with { Kept = t.FramesSeen >= 3 }).ToList(), sampled);
+        // tracks.json holds every track with its sightings (the returned report only the kept ones, in brief).
+        var tracks = JsonSerializer.Deserialize<RecordingReport>(File.ReadAllBytes(Path.Combine(outFolder, RecordingRun.TracksFile)),
+            Strayspot.Service.Reports.FrameReport.JsonOptions)!.Tracks;
+        Assert.Equal(report.TracksFound, tracks.Count);
+        Assert.Equal(Enumerable.Range(1, tracks.Count), tracks.Select(t => t.Id));
+        var all = DriveByJudge.Judge(drive, tracks, sampled);
+        var persistent = DriveByJudge.Judge(drive, tracks.Select(t => t with { Kept = t.FramesSeen >= 3 }).ToList(), sampled);
         output.WriteLine($"all tracks ({report.TracksFound}): {all}");
-        output.WriteLine($"seen in ≥ 3 frames ({report.Tracks.Count(t => t.FramesSeen >= 3)}): {persistent}");
-        foreach (var t in report.Tracks)
+        output.WriteLine($"seen in ≥ 3 frames ({tracks.Count(t => t.FramesSeen >= 3)}): {persistent}");
+        foreach (var t in tracks)
             output.WriteLine($"  track {t.Id}: {t.FirstTime:0.0}–{t.LastTime:0.0} s, {t.FramesSeen} frame(s), max {t.MaxScore:0.00}, on {t.ClassBeneathName}");
 
         Assert.True(all.InView >= 2, $"the drive-by should bring at least two objects fully into view; {all.InView}");
@@ -61,7 +66,7 @@ public sealed class DriveByTrackTests(ITestOutputHelper output) : IDisposable
         Assert.Equal(all.Found, persistent.Found);
         // Outputs: the plot, one best-frame overlay per track, ranked segments within the recording.
         Assert.True(new FileInfo(Path.Combine(outFolder, RecordingRun.PlotFile)).Length > 1000);
-        foreach (var t in report.Tracks) Assert.True(File.Exists(Path.Combine(outFolder, t.BestOverlay!)));
+        foreach (var t in tracks) Assert.True(File.Exists(Path.Combine(outFolder, t.BestOverlay!)));
         Assert.NotEmpty(report.Segments);
         Assert.All(report.Segments, s => Assert.InRange(s.StartSeconds, 0, s.EndSeconds));
     }
