@@ -154,9 +154,30 @@ public static class BatchRecordings
             tracks, segments);
     }
 
+    /// <summary>tracks.json read without the sightings (a long recording's bulk), which a manifest line leaves out anyway.</summary>
+    private static readonly JsonSerializerOptions ReportInBrief = new(FrameReport.JsonOptions)
+    {
+        TypeInfoResolver = new System.Text.Json.Serialization.Metadata.DefaultJsonTypeInfoResolver
+        {
+            Modifiers =
+            {
+                info =>
+                {
+                    if (info.Type != typeof(TrackReport)) return;
+                    for (int i = info.Properties.Count - 1; i >= 0; i--)
+                        if (info.Properties[i].Name == "sightings") info.Properties.RemoveAt(i);
+                },
+            },
+        },
+    };
+
     private static RecordingReport? ReadReport(string path)
     {
-        try { return JsonSerializer.Deserialize<RecordingReport>(File.ReadAllBytes(path), FrameReport.JsonOptions); }
+        try
+        {
+            using var file = File.OpenRead(path);
+            return JsonSerializer.Deserialize<RecordingReport>(file, ReportInBrief);
+        }
         catch (Exception e) when (e is IOException or JsonException or UnauthorizedAccessException) { return null; }
     }
 
