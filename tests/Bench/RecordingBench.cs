@@ -133,7 +133,7 @@ public static class RecordingBench
                           $"last {last.RssMib:0.0} MiB (frame {last.Frames}); slope {1000 * Slope(steady.Select(x => (x.Frames, x.RssMib)).ToList()):0.00} MiB per 1000 scored frames " +
                           $"(managed heap {1000 * Slope(steady.Select(x => (x.Frames, x.HeapMib)).ToList()):0.00}).");
         Console.WriteLine($"live managed heap after a full collection: {string.Join(", ", live.Select(l => $"{l.Mib:0.0} MiB at {l.Frames}"))}; " +
-                          $"slope {1000 * Slope(live):0.00} MiB per 1000 scored frames (the tracks' sightings, kept for tracks.json).");
+                          $"slope {1000 * Slope(live):0.00} MiB per 1000 scored frames (the kept tracks in brief and the plot's points).");
     }
 
     /// <summary>Least-squares slope of y over x.</summary>
