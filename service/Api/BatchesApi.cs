@@ -3,6 +3,7 @@ using System.Text.Json.Serialization;
 using Microsoft.AspNetCore.Http.HttpResults;
 using Strayspot.Service.Batches;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Api;
 
@@ -80,7 +81,7 @@ public static class BatchesApi
                 }
                 if (!Review.Verdicts.IsKnown(verdict))
                     return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
-                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
+                var lines = Manifest.Lines(b, batches.Store.Frames(id), batches.Decisions.Effective(id), verdict);
                 using var buffer = new MemoryStream();
                 Manifest.WriteTo(buffer, lines);
                 return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);

@@ -5,6 +5,7 @@ using Microsoft.Extensions.Options;
 using Strayspot.Service.Api;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Review;
 using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Batches;
@@ -66,7 +67,7 @@ public sealed partial class BatchService : IDisposable
 
     /// <summary>Rewrites the batch's manifest from the store (frames so far, with their decisions); returns its path.</summary>
     public string WriteManifest(BatchRecord batch) =>
-        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Current(batch.Id));
+        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Effective(batch.Id));
 
     /// <summary>An absolute path for a stored source: relative ones are resolved under DataRoot (links checked again).</summary>
     public string ResolveSource(string source) => Path.IsPathRooted(source) ? source : SafePath.Resolve(DataRoot, source);

@@ -62,7 +62,7 @@ public static class ManifestVerb
                                   (known.Count > 0 ? $"; the newest are {string.Join(", ", known)}." : "; it holds no batches."));
                     return BadInput;
                 }
-                var decisions = database.Decisions.Current(id);
+                var decisions = database.Decisions.Effective(id);
                 var lines = Manifest.Lines(record, store.Frames(id), decisions, only);
                 string target = parse.GetValue(output)?.FullName
                                 ?? Path.Combine(options.ResolveRoot(dataRoot), id, only is null ? Manifest.FileName : $"manifest.{only}.jsonl");

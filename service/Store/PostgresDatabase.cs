@@ -196,5 +196,19 @@ public sealed class PostgresDatabase : IDisposable
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
         new(4, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN callback_owner text, ADD COLUMN callback_until timestamptz")),
+        new(5, tx => Exec(c, tx, """
+            ALTER TABLE decision_log ADD COLUMN track integer;
+            CREATE TABLE track_decisions (
+                batch_id text NOT NULL REFERENCES batches(id),
+                seq integer NOT NULL,
+                track integer NOT NULL,
+                verdict text NOT NULL,
+                note text,
+                decided_by text,
+                decided_at timestamptz NOT NULL,
+                revision bigint NOT NULL,
+                PRIMARY KEY (batch_id, seq, track),
+                FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+            """)),
     ];
 }

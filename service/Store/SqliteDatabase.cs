@@ -187,6 +187,20 @@ public sealed class SqliteDatabase : IDisposable
             ALTER TABLE batches ADD COLUMN callback_owner TEXT;
             ALTER TABLE batches ADD COLUMN callback_until TEXT;
             """)),
+        new(5, tx => Exec(tx, """
+            ALTER TABLE decision_log ADD COLUMN track INTEGER;
+            CREATE TABLE track_decisions (
+                batch_id TEXT NOT NULL REFERENCES batches(id),
+                seq INTEGER NOT NULL,
+                track INTEGER NOT NULL,
+                verdict TEXT NOT NULL,
+                note TEXT,
+                decided_by TEXT,
+                decided_at TEXT NOT NULL,
+                revision INTEGER NOT NULL,
+                PRIMARY KEY (batch_id, seq, track),
+                FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+            """)),
     ];
 
     public void IndexRegions(SqliteTransaction tx, string batchId, int seq, string? regionsJson)

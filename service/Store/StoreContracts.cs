@@ -83,6 +83,18 @@ public interface IDecisionStore
 
     /// <summary>Every write to the batch's decisions, oldest first, from <paramref name="after"/> on (exclusive).</summary>
     IReadOnlyList<DecisionEntry> Log(string batchId, long after = 0, int limit = 1000);
+
+    /// <summary>
+    /// Stores <paramref name="verdict"/> as the current decision on track <paramref name="track"/> of the recording
+    /// <paramref name="seq"/> and logs it once (one log entry, whatever the number of frames the track spans).
+    /// </summary>
+    Decision DecideTrack(string batchId, int seq, int track, string verdict, string? note, string? decidedBy);
+
+    /// <summary>Withdraws the current decision on a track (logged); false when there was none.</summary>
+    bool WithdrawTrack(string batchId, int seq, int track, string? decidedBy);
+
+    /// <summary>The current track decisions of a batch (or of one recording), by recording then track; each has <see cref="Decision.Track"/> set and no region.</summary>
+    IReadOnlyList<Decision> CurrentTracks(string batchId, int? seq = null);
 }
 
 /// <summary>Who holds claims: host, process and a random part (process ids repeat across containers).</summary>

@@ -191,6 +191,39 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
     }
 
     [Theory, InlineData("sqlite"), PostgresData]
+    public void A_track_decision_is_kept_apart_from_region_decisions_logged_once_and_laid_on_its_region_when_later(string engine)
+    {
+        var db = Open(engine);
+        var s = db.Batches;
+        s.Submit("b", "m", "folder:x", null, Frames(1));
+        Run(s, "b");
+        var c = s.ClaimNextFrame("b", "a", Lease)!;
+        s.CompleteFrame(c, Result(c, 3f, Region(1, "apron", 4f), Region(2, "apron", 5f)));
+        var d = db.Decisions;
+        var region = d.Decide("b", 1, 2, Verdicts.FalseAlarm, null, "ann");
+        var track = d.DecideTrack("b", 1, 2, Verdicts.LabelIt, "whole pass", "bo");
+        d.DecideTrack("b", 1, 1, Verdicts.Unsure, null, "bo");
+        Assert.Equal((2, (int?)null, Verdicts.LabelIt, "whole pass", "f001.png"), (track.Track!.Value, track.Region, track.Verdict, track.Note, track.FrameId));
+        Assert.True(track.Revision > region.Revision);
+        // Region decisions and track decisions are read apart; the region's own decision is still stored.
+        Assert.Equal([(1, (int?)2, (int?)null)], d.Current("b").Select(x => (x.Seq, x.Region, x.Track)));
+        Assert.Equal([1, 2], d.CurrentTracks("b").Select(x => x.Track!.Value));
+        Assert.Equal([1, 2], d.CurrentTracks("b", 1).Select(x => x.Track!.Value));
+        // Effective: the later write wins on region 2 (the track), and track 1 stands in for region 1.
+        Assert.Equal([(1, Verdicts.Unsure, (int?)1), (2, Verdicts.LabelIt, (int?)2)], d.Effective("b").Select(x => (x.Region!.Value, x.Verdict, x.Track)));
+        var later = d.Decide("b", 1, 2, Verdicts.FalseAlarm, "not this one", "ann");
+        Assert.Equal((Verdicts.FalseAlarm, (int?)null), d.Effective("b", 1).Where(x => x.Region == 2).Select(x => (x.Verdict, x.Track)).Single());
+        Assert.True(d.WithdrawTrack("b", 1, 2, "bo"));
+        Assert.False(d.WithdrawTrack("b", 1, 2, "bo"));
+        Assert.Equal([1], d.CurrentTracks("b").Select(x => x.Track!.Value));
+        // One log entry per track write (withdrawal included), beside the region entries, in revision order.
+        var log = d.Log("b");
+        Assert.Equal([(2, (int?)null), (null, 2), (null, 1), (2, null), (null, 2)], log.Select(e => (e.Region, e.Track)));
+        Assert.Equal([Verdicts.FalseAlarm, Verdicts.LabelIt, Verdicts.Unsure, Verdicts.FalseAlarm, null], log.Select(e => e.Verdict));
+        Assert.Equal(later.Revision, log[3].Revision);
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
     public void Both_engines_reach_the_same_schema_version_and_reopening_changes_nothing(string engine)
     {
         var db = Open(engine);
