@@ -39,14 +39,15 @@ public sealed record ReviewProvenance(
     [property: JsonPropertyName("threshold")] float? Threshold,
     [property: JsonPropertyName("calibration")] CalibrationSummary? Calibration);
 
-/// <summary>One frame in the review list.</summary>
+/// <summary>One frame in the review list; a recording's regions are its kept tracks.</summary>
 public sealed record ReviewFrameItem(
     [property: JsonPropertyName("seq")] int Seq,
     [property: JsonPropertyName("frameId")] string FrameId,
     [property: JsonPropertyName("frameScore")] float? FrameScore,
     [property: JsonPropertyName("regionCount")] int RegionCount,
     [property: JsonPropertyName("regionsDecided")] int RegionsDecided,
-    [property: JsonPropertyName("verdict")] string? Verdict);
+    [property: JsonPropertyName("verdict")] string? Verdict,
+    [property: JsonPropertyName("recording"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingDefault)] bool Recording = false);
 
 public sealed record EvaluationLink(
     [property: JsonPropertyName("id")] string Id,
@@ -109,7 +110,7 @@ public sealed partial class BatchReview(BatchService batches, ModelCatalog catal
         var ranked = withFrames ? frames.Where(f => f.State == FrameStates.Done) : [];
         foreach (var f in ranked.OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq))
             items.Add(new ReviewFrameItem(f.Seq, f.FrameId, f.FrameScore, f.RegionCount ?? 0, decided.GetValueOrDefault(f.Seq),
-                frameVerdicts.GetValueOrDefault(f.Seq)));
+                frameVerdicts.GetValueOrDefault(f.Seq), Recordings.VideoRecording.IsVideoFile(f.FrameId)));
 
         catalog.TryGet(batch.Model, out var entry);
         var classes = new List<ReviewClass>();

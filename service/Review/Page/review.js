@@ -245,8 +245,8 @@ function renderFrameList() {
     const li = el('li', { 'data-seq': String(f.seq), title: f.frameId }, [
       el('span', { class: 'name', text: f.frameId }),
       el('span', { class: 'score', text: fmtScore(f.frameScore) }),
-      el('span', { class: 'meta', text: (f.regionCount ? f.regionsDecided + '/' + f.regionCount + ' regions decided' : 'no regions') +
-        (f.verdict ? ' · frame: ' + VERDICT_TEXT[f.verdict] : '') }),
+      el('span', { class: 'meta', text: (f.recording ? 'recording · ' : '') + (f.regionCount ? f.regionsDecided + '/' + f.regionCount + (f.recording ? ' tracks' : ' regions') + ' decided'
+        : f.recording ? 'no tracks' : 'no regions') + (f.verdict ? (f.recording ? ' · recording: ' : ' · frame: ') + VERDICT_TEXT[f.verdict] : '') }),
       el('span', { class: 'progress', 'aria-hidden': 'true' }, [bar]),
     ]);
     if (isReviewed(f)) li.classList.add('reviewed');
@@ -654,9 +654,14 @@ async function nextFrameToReview(saved) {
 
 const STRIP = { left: 46, right: 14, top: 10, plot: 96, axis: 20, lane: 14, laneGap: 4, maxLanes: 8 };
 
+function setUnit(word) {
+  for (const e of document.querySelectorAll('.unit')) e.textContent = word;
+}
+
 function leaveRecording() {
   state.recording = null;
   state.track = null;
+  setUnit('region');
   $('center').classList.remove('recording-mode');
   $('recording-view').hidden = true;
 }
@@ -702,6 +707,7 @@ function showRecording(frame, recording) {
   }
   recording.lanes = Math.max(1, ends.length);
   $('center').classList.add('recording-mode');
+  setUnit('track');
   $('recording-view').hidden = false;
   const span = recording.endSeconds - recording.startSeconds;
   $('frame-title').textContent = (state.index + 1) + ' of ' + state.frames.length + ': ' + frame.frameId + ' · recording ' +
@@ -856,6 +862,7 @@ async function renderTrackDetail() {
   if (!t) {
     img.removeAttribute('src');
     img.removeAttribute('data-track');
+    $('track-mark').hidden = true;
     img.alt = '';
     $('track-caption').textContent = state.recording.tracks.length ? 'Pick a track to see its best frame.' : 'No track was kept in this recording.';
     return;
@@ -873,17 +880,33 @@ async function renderTrackDetail() {
   if (own && region && now === own) rows.push(['Region decision', VERDICT_TEXT[region.verdict] + ' (earlier; the track decision wins)']);
   for (const [k, v] of rows) facts.append(el('dt', { text: k }), el('dd', { text: v }));
   $('track-caption').textContent = 'Track ' + t.id + ': best frame ' + t.bestFrameId + ' at ' + fmtTime(t.bestTime) + ', with its overlay.';
-  if (img.dataset.track === String(t.id)) return;
+  if (img.dataset.track === String(t.id)) { placeTrackMark(); return; }
+  $('track-mark').hidden = true;
   const frame = state.frame;
   try {
     const url = await objectUrl(t.best);
     if (state.frame !== frame || state.track !== t.id) return;
+    img.onload = placeTrackMark;
     img.src = url;
     img.dataset.track = String(t.id);
     img.alt = 'Best frame of track ' + t.id + ' with its overlay';
   } catch (e) {
     setStatus('The best frame of track ' + t.id + ' could not be loaded: ' + e.message, true);
   }
+}
+
+// The track's box in its best frame, drawn over the shown image (scaled as the image is; the PNG's legend strip is below the frame).
+function placeTrackMark() {
+  const t = findTrack(state.track);
+  const img = $('track-best'), mark = $('track-mark');
+  if (!t || !img.naturalWidth || img.dataset.track !== String(t.id)) { mark.hidden = true; return; }
+  const scale = Math.min(img.clientWidth / img.naturalWidth, img.clientHeight / img.naturalHeight);
+  const b = t.bestBox;
+  mark.style.left = (img.offsetLeft + img.clientLeft + b.x * scale - 3) + 'px';
+  mark.style.top = (img.offsetTop + img.clientTop + b.y * scale - 3) + 'px';
+  mark.style.width = (b.width * scale + 6) + 'px';
+  mark.style.height = (b.height * scale + 6) + 'px';
+  mark.hidden = false;
 }
 
 function renderRecordingProgress() {
@@ -1175,7 +1198,7 @@ function wire() {
     if (t && t.decision && !state.dropped && ($('note').value.trim() || null) !== (t.decision.note || null)) decide(t.decision.verdict);
   });
   document.addEventListener('keydown', onKey);
-  window.addEventListener('resize', () => { if (state.recording) renderTimeline(); });
+  window.addEventListener('resize', () => { if (state.recording) { renderTimeline(); placeTrackMark(); } });
 
   const zone = $('drop-zone');
   zone.addEventListener('dragover', (e) => { e.preventDefault(); zone.classList.add('over'); });
