@@ -148,7 +148,7 @@ public sealed partial class BatchReview
     /// <see cref="MaxTimelinePoints"/> they are merged into equal runs of frames, each kept as its highest score (a
     /// short peak must stay visible on the strip).
     /// </summary>
-    private static (List<double> Times, List<float?> Scores, bool Merged) Timeline(string framesPath)
+    public static (List<double> Times, List<float?> Scores, bool Merged) Timeline(string framesPath)
     {
         var times = new List<double>();
         var scores = new List<float?>();
