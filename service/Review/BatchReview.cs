@@ -4,6 +4,7 @@ using Strayspot.Service.Batches;
 using Strayspot.Service.Evaluation;
 using Strayspot.Service.Hosting;
 using Strayspot.Service.Inference;
+using Strayspot.Service.Recordings;
 using Strayspot.Service.Rendering;
 using Strayspot.Service.Reports;
 
@@ -146,9 +147,11 @@ public sealed partial class BatchReview(BatchService batches, ModelCatalog catal
         if (BatchRecordings.IsRecordingReport(frame.ReportPath!))
         {
             // A recording has no frame images of its own: the page draws its timeline from the recording route.
-            var recording = ReadRecordingReport(RecordingFolder(batch, frame), seq);
-            return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, recording.Threshold, null,
-                recording.Frame.Width, recording.Frame.Height, regions, frameDecision,
+            RecordingReport? recording = null;
+            try { recording = ReadRecordingReport(RecordingFolder(batch, frame), seq); }
+            catch (ReviewException) { } // its decisions can still be listed; the recording route says what is missing
+            return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, recording?.Threshold, null,
+                recording?.Frame.Width ?? 0, recording?.Frame.Height ?? 0, regions, frameDecision,
                 new Dictionary<string, string>(StringComparer.Ordinal) { ["source"] = $"/v1/batches/{id}/frames/{seq}/files/source" },
                 Recording: $"/v1/batches/{id}/frames/{seq}/recording");
         }

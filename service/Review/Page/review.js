@@ -505,19 +505,25 @@ function classColor(name) {
   return c ? c.color : null;
 }
 
+// A table cell naming a class beneath, with the descriptor's colour when it has one.
+function classCell(name) {
+  const cell = el('td', {});
+  const color = classColor(name);
+  if (color) {
+    const sw = el('span', { class: 'swatch' });
+    sw.style.background = color;
+    cell.append(sw);
+  }
+  cell.append(name);
+  return cell;
+}
+
 function renderRegionTable() {
   const body = $('region-table').tBodies[0];
   body.replaceChildren();
   if (!state.frame) return;
   for (const r of state.frame.order) {
-    const cls = el('td', {});
-    const color = classColor(r.classBeneath);
-    if (color) {
-      const sw = el('span', { class: 'swatch' });
-      sw.style.background = color;
-      cls.append(sw);
-    }
-    cls.append(r.classBeneath);
+    const cls = classCell(r.classBeneath);
     const tr = el('tr', { 'data-region': String(r.id) }, [
       el('td', { text: String(r.id) }),
       el('td', { class: 'num', text: fmtScore(r.maxScore) }),
@@ -831,14 +837,7 @@ function renderTrackTable() {
   body.replaceChildren();
   for (const t of state.recording.tracks) {
     const d = effectiveTrackDecision(t);
-    const cls = el('td', {});
-    const color = classColor(t.classBeneath);
-    if (color) {
-      const sw = el('span', { class: 'swatch' });
-      sw.style.background = color;
-      cls.append(sw);
-    }
-    cls.append(t.classBeneath);
+    const cls = classCell(t.classBeneath);
     const tr = el('tr', { 'data-track': String(t.id) }, [
       el('td', { text: String(t.id) }),
       el('td', { class: 'num', text: fmtTime(t.firstTime) + '–' + fmtTime(t.lastTime) }),
