@@ -2,6 +2,7 @@ using System.Net;
 using System.Net.Http.Json;
 using System.Text.Json;
 using Strayspot.Tests.Support;
+using Xunit.Abstractions;
 using static Strayspot.Tests.Service.Batches.BatchTestKit;
 
 namespace Strayspot.Tests.Service.Review;
@@ -11,7 +12,7 @@ namespace Strayspot.Tests.Service.Review;
 /// encoded by ffmpeg in the test. One service serves the class (started on first use, so a missing ffmpeg skips
 /// every test before any start); each test works on its own tracks or only reads.
 /// </summary>
-public sealed class TrackDecisionApiTests(TrackDecisionApiTests.SharedKit shared) : IClassFixture<TrackDecisionApiTests.SharedKit>
+public sealed class TrackDecisionApiTests(TrackDecisionApiTests.SharedKit shared, ITestOutputHelper output) : IClassFixture<TrackDecisionApiTests.SharedKit>
 {
     public sealed class SharedKit : IAsyncDisposable
     {
@@ -118,6 +119,19 @@ public sealed class TrackDecisionApiTests(TrackDecisionApiTests.SharedKit shared
             (mark.GetProperty("verdict").GetString(), mark.GetProperty("note").GetString(), mark.GetProperty("decidedBy").GetString(), mark.GetProperty("track").GetInt32()));
         foreach (int other in tracks.Skip(1)) Assert.False(RegionOf(line, other).TryGetProperty("decision", out _), $"track {other}");
         Assert.False(line.TryGetProperty("decision", out _));
+        // Where the manifest also lists the recording's sampled frames (kind recording-frame), each of their regions
+        // that joined the track carries the decision too, and no other region does.
+        var frameLines = (await ManifestAsync(kit.Http, TrackReviewKit.Batch)).Where(l =>
+            l.TryGetProperty("kind", out var k) && k.GetString() == "recording-frame" && l.GetProperty("recording").GetString() == TrackReviewKit.Video).ToList();
+        int sightings = 0;
+        foreach (var r in frameLines.SelectMany(l => l.GetProperty("regions").EnumerateArray()))
+        {
+            bool onTrack = r.TryGetProperty("track", out var t) && t.ValueKind == JsonValueKind.Number && t.GetInt32() == track;
+            bool marked = r.TryGetProperty("decision", out var m) && m.TryGetProperty("track", out var mt) && mt.GetInt32() == track;
+            Assert.Equal(onTrack, marked);
+            if (onTrack) { sightings++; Assert.Equal("label-it", m.GetProperty("verdict").GetString()); }
+        }
+        output.WriteLine($"{frameLines.Count} recording-frame line(s), {sightings} region(s) of track {track} marked there");
         // The manifest file in the batch folder says the same once rewritten, and the labeling queue's filter finds it.
         var labeled = await kit.Http.GetStringAsync($"/v1/batches/{TrackReviewKit.Batch}/manifest?verdict=label-it");
         Assert.Contains(TrackReviewKit.Video, labeled);
