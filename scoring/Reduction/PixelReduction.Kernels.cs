@@ -8,10 +8,79 @@ namespace Strayspot.Scoring.Reduction;
 
 public sealed unsafe partial class PixelReduction
 {
-    /// <summary>Equal sizes: read the logits planes directly, one vector of pixels at a time with the classes inner.</summary>
+    /// <summary>
+    /// Equal sizes without softmax outputs: two vectors of pixels at a time, classes inner with max and argmax in
+    /// registers (strictly greater replaces, so the lowest index wins ties; NaN never replaces, as in
+    /// <see cref="ReduceBlock"/>). The finiteness check rides along: v − v is 0 for every finite v and NaN for NaN
+    /// and ±∞, so a NaN sum flags the frame without a second read of the logits.
+    /// </summary>
     // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunIdentityRows(Job job, Worker worker, int y0, int y1)
+    {
+        if (_needSoftmax)
+        {
+            RunIdentityRowsSoftmax(job, worker, y0, y1);
+            return;
+        }
+        var o = new RowOut(worker);
+        int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
+        nint plane = (nint)job.InHeight * job.InWidth;
+        float* max = o.Max;
+        int* cls = o.Class;
+        var seen = Vector<float>.Zero;
+        for (int y = y0; y < y1; y++)
+        {
+            float* row = job.Source + (nint)y * width;
+            int x = 0;
+            for (; x + 2 * lanes <= width; x += 2 * lanes)
+            {
+                float* s = row + x;
+                var m0 = Vector.Load(s);
+                var m1 = Vector.Load(s + lanes);
+                seen += (m0 - m0) + (m1 - m1);
+                var b0 = Vector<int>.Zero;
+                var b1 = Vector<int>.Zero;
+                var index = Vector<int>.Zero;
+                for (int ch = 1; ch < c; ch++)
+                {
+                    s += plane;
+                    index += Vector<int>.One;
+                    var v0 = Vector.Load(s);
+                    var v1 = Vector.Load(s + lanes);
+                    seen += (v0 - v0) + (v1 - v1);
+                    var g0 = Vector.GreaterThan(v0, m0);
+                    var g1 = Vector.GreaterThan(v1, m1);
+                    m0 = Vector.ConditionalSelect(g0, v0, m0);
+                    m1 = Vector.ConditionalSelect(g1, v1, m1);
+                    b0 = Vector.ConditionalSelect(g0, index, b0);
+                    b1 = Vector.ConditionalSelect(g1, index, b1);
+                }
+                m0.Store(max + x);
+                m1.Store(max + x + lanes);
+                b0.Store(cls + x);
+                b1.Store(cls + x + lanes);
+            }
+            // The rest of the row: single blocks, the last one overlapping its neighbour instead of reading past the row.
+            for (; x < width; x += lanes)
+            {
+                int xs = Math.Min(x, width - lanes);
+                ReduceBlock(row + xs, null, 1f, 0f, plane, c, o, xs, blend: false);
+                for (int ch = 0; ch < c; ch++)
+                {
+                    var v = Vector.Load(row + ch * plane + xs);
+                    seen += v - v;
+                }
+            }
+            FlushRow(job, o, y, 0, width);
+        }
+        if (!Vector.EqualsAll(seen, Vector<float>.Zero)) Volatile.Write(ref job.NonFinite, 1);
+    }
+
+    /// <summary>Equal sizes with softmax outputs: one vector of pixels at a time with the classes inner.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private void RunIdentityRowsSoftmax(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
         int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
