@@ -14,6 +14,8 @@ public sealed record ParallelSettings
     public int ScoringThreads { get; init; } = -1;
     /// <summary>Run each new session once with a dummy input before it serves frames.</summary>
     public bool WarmUp { get; init; } = true;
+    /// <summary>ONNX Runtime's memory pattern for every session (<see cref="ModelRuntimeOptions.MemoryPattern"/>).</summary>
+    public bool MemoryPattern { get; init; }
 
     public static ParallelSettings Default { get; } = new();
 
@@ -29,5 +31,5 @@ public sealed record ParallelSettings
         };
     }
 
-    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp };
+    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern };
 }

@@ -105,6 +105,7 @@ public sealed class SegmentationModel : IDisposable
             InterOpNumThreads = 1,
             GraphOptimizationLevel = options.OptimizationLevel,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            EnableMemoryPattern = options.MemoryPattern,
         };
         so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
         InferenceSession session;
