@@ -41,6 +41,11 @@ public sealed class ServiceOptions
     /// 1024×512 it held a few hundred MB per session for no measurable speed (README, Benchmarks).
     /// </summary>
     public bool OnnxMemoryPattern { get; set; }
+    /// <summary>
+    /// Inferences one model session runs at once (0: as many as frames in flight). Below Service:MaxConcurrentFrames,
+    /// the other frames decode, preprocess and score while the network runs.
+    /// </summary>
+    public int NetworkRunsAtOnce { get; set; }
     /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
     public double DriftHalfLifeFrames { get; set; } = 500;
     /// <summary>Overall drift, in calibrated standard deviations, that raises the drift warning (our default; tune per fleet).</summary>
@@ -78,6 +83,7 @@ public sealed class ServiceOptionsValidator(ListenAddresses listen) : IValidateO
         Check(o.MaxConcurrentFrames is >= 1 and <= 1024, $"Service:MaxConcurrentFrames must be 1..1024; got {o.MaxConcurrentFrames}.");
         Check(o.MaxQueuedFrames is >= 0 and <= 100_000, $"Service:MaxQueuedFrames must be 0..100000; got {o.MaxQueuedFrames}.");
         Check(o.RequestTimeout > TimeSpan.Zero, $"Service:RequestTimeout must be positive; got {o.RequestTimeout}.");
+        Check(o.NetworkRunsAtOnce is >= 0 and <= 1024, $"Service:NetworkRunsAtOnce must be 0..1024; got {o.NetworkRunsAtOnce}.");
         Check(o.IntraOpThreads is >= 0 and <= 1024, $"Service:IntraOpThreads must be 0..1024; got {o.IntraOpThreads}.");
 
         for (int i = 0; i < o.ApiKeys.Count; i++)

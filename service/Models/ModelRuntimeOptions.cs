@@ -17,4 +17,9 @@ public sealed record ModelRuntimeOptions
     /// demo model at 1024×512 it held 330–410 MB per session at about the same speed (README, Benchmarks).
     /// </summary>
     public bool MemoryPattern { get; init; }
+    /// <summary>
+    /// Inferences this session runs at once (0: no limit). With more frames in flight than this, the others decode,
+    /// preprocess and score while the network runs, and the arena grows for this many runs only.
+    /// </summary>
+    public int RunsAtOnce { get; init; }
 }

@@ -18,6 +18,13 @@ public static class Program
     /// <summary><c>--memory-pattern</c>: Service:OnnxMemoryPattern on for the load suite (off by default).</summary>
     private static bool MemoryPattern(string[] args) => args.Contains("--memory-pattern");
 
+    /// <summary><c>--network-runs N</c>: Service:NetworkRunsAtOnce for the load suite.</summary>
+    private static int? NetworkRuns(string[] args)
+    {
+        int i = Array.IndexOf(args, "--network-runs");
+        return i >= 0 && i + 1 < args.Length && int.TryParse(args[i + 1], out int n) && n >= 0 ? n : null;
+    }
+
     public static int Main(string[] args)
     {
         string suite = args.Length > 0 && !args[0].StartsWith("--") ? args[0] : "scoring";
@@ -29,8 +36,8 @@ public static class Program
         {
             case "scoring": ScoringBench.Run(runs); return 0;
             case "chain": PostHocChainBench.Run(runs); return 0;
-            case "load": LoadBench.Run(runs, FramesAtOnce(args), MemoryPattern(args)); return 0;
-            case "issue-tables": IssueTables.Run(runs, FramesAtOnce(args), MemoryPattern(args)); return 0;
+            case "load": LoadBench.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args)); return 0;
+            case "issue-tables": IssueTables.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args)); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
             case "service": ServiceBench.Run(runs); return 0;
             case "evaluation": EvaluationBench.Run(runs); return 0;
