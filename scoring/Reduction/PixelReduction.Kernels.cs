@@ -26,41 +26,13 @@ public sealed unsafe partial class PixelReduction
         var o = new RowOut(worker);
         int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
         nint plane = (nint)job.InHeight * job.InWidth;
-        float* max = o.Max;
-        int* cls = o.Class;
         var seen = Vector<float>.Zero;
         for (int y = y0; y < y1; y++)
         {
             float* row = job.Source + (nint)y * width;
             int x = 0;
             for (; x + 2 * lanes <= width; x += 2 * lanes)
-            {
-                float* s = row + x;
-                var m0 = Vector.Load(s);
-                var m1 = Vector.Load(s + lanes);
-                seen += (m0 - m0) + (m1 - m1);
-                var b0 = Vector<int>.Zero;
-                var b1 = Vector<int>.Zero;
-                var index = Vector<int>.Zero;
-                for (int ch = 1; ch < c; ch++)
-                {
-                    s += plane;
-                    index += Vector<int>.One;
-                    var v0 = Vector.Load(s);
-                    var v1 = Vector.Load(s + lanes);
-                    seen += (v0 - v0) + (v1 - v1);
-                    var g0 = Vector.GreaterThan(v0, m0);
-                    var g1 = Vector.GreaterThan(v1, m1);
-                    m0 = Vector.ConditionalSelect(g0, v0, m0);
-                    m1 = Vector.ConditionalSelect(g1, v1, m1);
-                    b0 = Vector.ConditionalSelect(g0, index, b0);
-                    b1 = Vector.ConditionalSelect(g1, index, b1);
-                }
-                m0.Store(max + x);
-                m1.Store(max + x + lanes);
-                b0.Store(cls + x);
-                b1.Store(cls + x + lanes);
-            }
+                ReducePair(row + x, null, 1f, 0f, lanes, plane, c, o, x, blend: false, check: true, ref seen);
             // The rest of the row: single blocks, the last one overlapping its neighbour instead of reading past the row.
             for (; x < width; x += lanes)
             {
@@ -118,6 +90,7 @@ public sealed unsafe partial class PixelReduction
         int c = job.Channels, lanes = Vector<float>.Count;
         int blocks = (job.Width + lanes - 1) / lanes;
         nint blockStride = (nint)c * lanes;
+        var unused = Vector<float>.Zero;
         for (int tile = 0; tile < blocks; tile += job.TileBlocks)
         {
             int tileBlocks = Math.Min(job.TileBlocks, blocks - tile);
@@ -133,7 +106,7 @@ public sealed unsafe partial class PixelReduction
                     int b = 0;
                     if (!_needSoftmax)
                         for (; b + 1 < tileBlocks; b += 2)
-                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, c, o, (tile + b) * lanes, blend: false);
+                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, lanes, c, o, (tile + b) * lanes, blend: false, check: false, ref unused);
                     for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, null, 1f, 0f, lanes, c, o, (tile + b) * lanes, blend: false);
                 }
@@ -143,7 +116,7 @@ public sealed unsafe partial class PixelReduction
                     int b = 0;
                     if (!_needSoftmax)
                         for (; b + 1 < tileBlocks; b += 2)
-                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, c, o, (tile + b) * lanes, blend: true);
+                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, lanes, c, o, (tile + b) * lanes, blend: true, check: false, ref unused);
                     for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, pb + b * blockStride, wa, wb, lanes, c, o, (tile + b) * lanes, blend: true);
                 }
@@ -282,11 +255,14 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>
-    /// Two neighbouring blocks of the cached layout at once (class and max logit only): shares the loop and the class
-    /// counter between two independent dependency chains, which keeps more loads in flight.
+    /// Two blocks <paramref name="pairOffset"/> apart at once (class and max logit only): shares the loop and the class
+    /// counter between two independent dependency chains, which keeps more loads in flight. With
+    /// <paramref name="check"/> (unblended only) every value read is also added to <paramref name="seen"/> as v − v,
+    /// which stays 0 for finite values and turns NaN on a NaN or infinite one.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
-    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, int classes, in RowOut o, int x, bool blend)
+    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, nint classStride, int classes, in RowOut o, int x,
+        bool blend, bool check, ref Vector<float> seen)
     {
         int lanes = Vector<float>.Count;
         var one = Vector<float>.One;
@@ -298,12 +274,14 @@ public sealed unsafe partial class PixelReduction
         {
             max0 = Vector.Load(a);
             max1 = Vector.Load(a + pairOffset);
+            if (check) seen += (max0 - max0) + (max1 - max1);
             float* pa = a;
             for (int c = 1; c < classes; c++)
             {
-                pa += lanes;
+                pa += classStride;
                 var v0 = Vector.Load(pa);
                 var v1 = Vector.Load(pa + pairOffset);
+                if (check) seen += (v0 - v0) + (v1 - v1);
                 index += one;
                 var g0 = Vector.GreaterThan(v0, max0);
                 var g1 = Vector.GreaterThan(v1, max1);
@@ -322,8 +300,8 @@ public sealed unsafe partial class PixelReduction
             float* pa = a, pb = b;
             for (int c = 1; c < classes; c++)
             {
-                pa += lanes;
-                pb += lanes;
+                pa += classStride;
+                pb += classStride;
                 var v0 = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
                 var v1 = Vector.FusedMultiplyAdd(Vector.Load(pa + pairOffset), va, Vector.Load(pb + pairOffset) * vb);
                 index += one;
