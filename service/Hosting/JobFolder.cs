@@ -57,12 +57,14 @@ public sealed class JobFolder<TJob>(IJobStore store, string kind, string root, T
     /// </summary>
     public async Task RunAsync(Action<TJob, JobClaim<TJob>> run, ILogger log, CancellationToken stop)
     {
-        Import((file, reason) => log.LogWarning("Skipping unreadable {Kind} job {File}: {Reason}", Kind, file, reason));
+        bool imported = false;
         while (!stop.IsCancellationRequested)
         {
             TJob? job = null;
             try
             {
+                // Before the first await: the jobs are in the store before the service takes requests.
+                if (!imported) imported = Import((file, reason) => log.LogWarning("Skipping unreadable {Kind} job {File}: {Reason}", Kind, file, reason)) >= 0;
                 if (store.ClaimNext(Kind, Runnable, ClaimOwner.ThisProcess, lease) is { } claimed) job = Read(claimed);
             }
             catch (StoreUnavailableException e)

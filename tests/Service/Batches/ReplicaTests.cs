@@ -132,10 +132,11 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     }
 
     [PostgresFact]
-    public async Task A_decision_written_through_one_replica_is_read_through_another_and_logged_once()
+    public async Task Decisions_and_jobs_written_through_one_replica_are_read_through_another_and_logged_once()
     {
         using var fleet = new Fleet(postgres.Cluster);
         WriteFrames(Path.Combine(fleet.Data, "gate"), 3, debris: 3, width: Small, height: Small / 2);
+        Strayspot.Tests.Service.Evaluation.EvaluationFixtures.WriteFlatDataset(Path.Combine(fleet.Data, "held-out"), 2);
         var replicas = await fleet.StartAsync(2);
         using var a = replicas[0].Client();
         using var b = replicas[1].Client();
@@ -154,6 +155,37 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         // The latest write in the log is the current decision, whichever replica took it.
         Assert.Equal(log[^1].GetProperty("revision").GetInt64(), current.GetProperty("revision").GetInt64());
         Assert.Equal(log[^1].GetProperty("note").GetString(), current.GetProperty("note").GetString());
+
+        // Calibration and evaluation jobs started through A are listed, followed and activated through B.
+        var calibration = await a.PostAsJsonAsync($"/v1/models/{Model}/calibrations", new { folder = "gate" });
+        Assert.Equal(HttpStatusCode.Accepted, calibration.StatusCode);
+        string calibrationId = (await calibration.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        var evaluation = await a.PostAsJsonAsync($"/v1/models/{Model}/evaluations", new { dataset = "held-out" });
+        Assert.Equal(HttpStatusCode.Accepted, evaluation.StatusCode);
+        string evaluationId = (await evaluation.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        Assert.Contains(calibrationId, (await GetAsync(b, "/v1/calibrations")).EnumerateArray().Select(j => j.GetProperty("id").GetString()));
+        Assert.Contains(evaluationId, (await GetAsync(b, "/v1/evaluations")).EnumerateArray().Select(j => j.GetProperty("id").GetString()));
+        var calibrated = await WaitForJobAsync(b, $"/v1/calibrations/{calibrationId}");
+        Assert.Equal("done", calibrated.GetProperty("state").GetString());
+        Assert.Equal(3, calibrated.GetProperty("framesDone").GetInt32());
+        Assert.Equal("done", (await WaitForJobAsync(b, $"/v1/evaluations/{evaluationId}")).GetProperty("state").GetString());
+        Assert.True((await b.GetAsync($"/v1/evaluations/{evaluationId}/files/metrics.json")).IsSuccessStatusCode);
+        var activated = await b.PostAsync($"/v1/calibrations/{calibrationId}/activate", null);
+        Assert.True(activated.IsSuccessStatusCode, await activated.Content.ReadAsStringAsync());
+        Assert.Equal("activated", (await GetAsync(a, $"/v1/calibrations/{calibrationId}")).GetProperty("state").GetString());
+        // One record per job, in the one store.
+        Assert.Equal([("calibration", "activated"), ("evaluation", "done")], fleet.Jobs());
+    }
+
+    private static async Task<JsonElement> WaitForJobAsync(HttpClient client, string path)
+    {
+        var until = DateTime.UtcNow.AddSeconds(60);
+        while (true)
+        {
+            var job = await GetAsync(client, path);
+            if (job.GetProperty("state").GetString() is "done" or "failed" || DateTime.UtcNow > until) return job;
+            await Task.Delay(100);
+        }
     }
 
     [PostgresFact]
@@ -240,6 +272,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
 
         public string ScorerOf(string batch, int seq) =>
             Query("SELECT scored_by FROM frames WHERE batch_id = @b AND seq = @s", r => r.GetString(0), ("b", batch), ("s", seq)).Single();
+
+        /// <summary>Every stored job: kind and state, by kind.</summary>
+        public List<(string, string)> Jobs() => Query("SELECT kind, state FROM jobs ORDER BY kind, id", r => (r.GetString(0), r.GetString(1)));
 
         /// <summary>The frames process <paramref name="pid"/> holds a claim on now.</summary>
         public List<int> Held(string batch, int pid) => Query(
