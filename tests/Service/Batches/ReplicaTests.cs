@@ -12,20 +12,22 @@ namespace Strayspot.Tests.Service.Batches;
 /// Several service processes on one real PostgreSQL and one shared data folder, as a cluster runs them: frames are
 /// split by leased claims, a replica killed with SIGKILL loses its frames to the others once its lease runs out,
 /// the database restarting under them loses nothing, and decisions written through one are read through another.
-/// Leases are short here (1.5 s) so takeovers take seconds.
+/// Leases are short here (1.5 s) so takeovers take seconds. The serving replicas are started once for the class and
+/// shared by its tests (each on its own batch): starting a process and loading its model is most of the cost; a
+/// replica a test kills is replaced.
 /// </summary>
 [Collection(PostgresCollection.Name)]
-public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper output)
+public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFleet shared, ITestOutputHelper output) : IClassFixture<ReplicaTests.SharedFleet>
 {
     private const int Small = 96; // frame width; height is half: the split is under test, not the scoring
 
     [PostgresFact]
     public async Task Three_replicas_split_one_batch_and_score_every_frame_exactly_once()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         var names = WriteFrames(Path.Combine(fleet.Data, "yard"), 60, debris: 6, width: Small, height: Small / 2);
         var clock = System.Diagnostics.Stopwatch.StartNew();
-        var replicas = await fleet.StartAsync(3);
+        var replicas = await fleet.LiveAsync(3);
         output.WriteLine($"three replicas ready in {clock.ElapsedMilliseconds} ms");
         using var a = replicas[0].Client();
         using var c = replicas[2].Client();
@@ -46,16 +48,15 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task A_killed_replicas_frames_are_taken_over_after_its_lease_and_none_is_lost_or_doubled()
     {
-        using var fleet = new Fleet(postgres.Cluster);
-        var replicas = await fleet.StartAsync(3);
+        var fleet = shared.Of(postgres.Cluster);
         for (int round = 1; round <= 3; round++)
         {
             string folder = $"round{round}", id = $"kill-{round}";
-            var names = WriteFrames(Path.Combine(fleet.Data, folder), 24, seed: round, width: Small, height: Small / 2);
-            var live = replicas.Where(r => !r.HasExited).ToList();
+            var names = WriteFrames(Path.Combine(fleet.Data, folder), 16, seed: round, width: Small, height: Small / 2);
+            var live = await fleet.LiveAsync(3);
             using var client = live[0].Client();
             await PostFolderAsync(client, folder, batchId: id);
-            await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 6, TimeSpan.FromSeconds(60));
+            await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 3, TimeSpan.FromSeconds(60));
 
             // The victim: a replica holding a claim right now (the others keep scoring). It is frozen before its claims
             // are read, so it cannot finish the frame between the read and the kill.
@@ -77,7 +78,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             victim.Kill();
             Assert.NotEmpty(held);
             output.WriteLine($"round {round}: killed replica {victim.Id} holding frame(s) {string.Join(", ", held)}");
-            replicas.Add(fleet.Start()); // as an orchestrator would; the other two finish meanwhile
+            fleet.Start(); // as an orchestrator would; the other two finish meanwhile
 
             await WaitForStateAsync(client, id, "done", TimeSpan.FromSeconds(60));
             await AssertEveryFrameOnceAsync(client, id, names, fleet);
@@ -95,9 +96,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task A_database_restart_mid_batch_makes_replicas_not_ready_and_loses_nothing()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         var names = WriteFrames(Path.Combine(fleet.Data, "night"), 30, width: Small, height: Small / 2);
-        var replicas = await fleet.StartAsync(2);
+        var replicas = await fleet.LiveAsync(3);
         using var a = replicas[0].Client();
         await PostFolderAsync(a, "night", batchId: "night-1");
         await WaitAsync(a, "night-1", b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 5, TimeSpan.FromSeconds(60));
@@ -134,10 +135,10 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task Decisions_and_jobs_written_through_one_replica_are_read_through_another_and_logged_once()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         WriteFrames(Path.Combine(fleet.Data, "gate"), 3, debris: 3, width: Small, height: Small / 2);
         Strayspot.Tests.Service.Evaluation.EvaluationFixtures.WriteFlatDataset(Path.Combine(fleet.Data, "held-out"), 2);
-        var replicas = await fleet.StartAsync(2);
+        var replicas = await fleet.LiveAsync(2);
         using var a = replicas[0].Client();
         using var b = replicas[1].Client();
         await PostFolderAsync(a, "gate", batchId: "gate-1");
@@ -157,10 +158,11 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         Assert.Equal(log[^1].GetProperty("note").GetString(), current.GetProperty("note").GetString());
 
         // Calibration and evaluation jobs started through A are listed, followed and activated through B.
-        var calibration = await a.PostAsJsonAsync($"/v1/models/{Model}/calibrations", new { folder = "gate" });
+        // On a second copy of the model: activating changes the model's calibration, which the other tests' batches must not see.
+        var calibration = await a.PostAsJsonAsync($"/v1/models/{Fleet.JobsModel}/calibrations", new { folder = "gate" });
         Assert.Equal(HttpStatusCode.Accepted, calibration.StatusCode);
         string calibrationId = (await calibration.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
-        var evaluation = await a.PostAsJsonAsync($"/v1/models/{Model}/evaluations", new { dataset = "held-out" });
+        var evaluation = await a.PostAsJsonAsync($"/v1/models/{Fleet.JobsModel}/evaluations", new { dataset = "held-out" });
         Assert.Equal(HttpStatusCode.Accepted, evaluation.StatusCode);
         string evaluationId = (await evaluation.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
         Assert.Contains(calibrationId, (await GetAsync(b, "/v1/calibrations")).EnumerateArray().Select(j => j.GetProperty("id").GetString()));
@@ -174,7 +176,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         Assert.True(activated.IsSuccessStatusCode, await activated.Content.ReadAsStringAsync());
         Assert.Equal("activated", (await GetAsync(a, $"/v1/calibrations/{calibrationId}")).GetProperty("state").GetString());
         // One record per job, in the one store.
-        Assert.Equal([("calibration", "activated"), ("evaluation", "done")], fleet.Jobs());
+        Assert.Equal([("calibration", calibrationId, "activated"), ("evaluation", evaluationId, "done")], fleet.Jobs());
     }
 
     private static async Task<JsonElement> WaitForJobAsync(HttpClient client, string path)
@@ -191,7 +193,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task A_worker_takes_only_batch_work_and_exits_when_none_is_left()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        using var fleet = new Fleet(postgres.Cluster); // its own store: the shared serving replicas would take its batch
         var names = WriteFrames(Path.Combine(fleet.Data, "late"), 8, width: Small, height: Small / 2);
 
         using (var idle = fleet.Start(verb: "work"))
@@ -226,17 +228,30 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         Assert.Equal(names.Count, Directory.EnumerateDirectories(frames).Count(d => !Path.GetFileName(d).StartsWith('.')));
     }
 
+    /// <summary>The class's serving replicas on one database, started on first use and stopped after the class.</summary>
+    public sealed class SharedFleet : IDisposable
+    {
+        private Fleet? _fleet;
+
+        public Fleet Of(PostgresCluster cluster) => _fleet ??= new Fleet(cluster);
+
+        public void Dispose() => _fleet?.Dispose();
+    }
+
     /// <summary>Replicas on one database and one data folder (the demo model, copied once).</summary>
-    private sealed class Fleet : IDisposable
+    public sealed class Fleet : IDisposable
     {
         private readonly string _root = Path.Combine(Path.GetTempPath(), "strayspot-fleet-" + Guid.NewGuid().ToString("N"));
         private readonly List<ServiceProcess> _started = [];
         private readonly string _connection;
 
+        public const string JobsModel = "demo-jobs";
+
         public Fleet(PostgresCluster cluster)
         {
             Directory.CreateDirectory(Models);
             CopyDemoModel(Models);
+            CopyDemoModel(Models, JobsModel);
             _connection = cluster.CreateDatabase();
         }
 
@@ -258,11 +273,17 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             return p;
         }
 
-        public async Task<List<ServiceProcess>> StartAsync(int n)
+        /// <summary>
+        /// <paramref name="n"/> serving replicas that are alive and ready, oldest first: those started so far (replacements
+        /// of killed ones included), and new ones started side by side when there are fewer.
+        /// </summary>
+        public async Task<List<ServiceProcess>> LiveAsync(int n)
         {
-            var list = Enumerable.Range(0, n).Select(_ => Start()).ToList();
-            foreach (var p in list) (await p.ReadyClientAsync()).Dispose();
-            return list;
+            var live = _started.Where(p => p.Verb == "serve" && !p.HasExited).ToList();
+            for (int i = live.Count; i < n; i++) live.Add(Start());
+            live = live.Take(n).ToList();
+            await Task.WhenAll(live.Select(async p => (await p.ReadyClientAsync()).Dispose()));
+            return live;
         }
 
         /// <summary>Frames of the batch scored by each claim owner (host/process/random).</summary>
@@ -274,7 +295,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             Query("SELECT scored_by FROM frames WHERE batch_id = @b AND seq = @s", r => r.GetString(0), ("b", batch), ("s", seq)).Single();
 
         /// <summary>Every stored job: kind and state, by kind.</summary>
-        public List<(string, string)> Jobs() => Query("SELECT kind, state FROM jobs ORDER BY kind, id", r => (r.GetString(0), r.GetString(1)));
+        public List<(string, string, string)> Jobs() => Query("SELECT kind, id, state FROM jobs ORDER BY kind, id", r => (r.GetString(0), r.GetString(1), r.GetString(2)));
 
         /// <summary>The frames process <paramref name="pid"/> holds a claim on now.</summary>
         public List<int> Held(string batch, int pid) => Query(
