@@ -175,6 +175,11 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
         var activated = await b.PostAsync($"/v1/calibrations/{calibrationId}/activate", null);
         Assert.True(activated.IsSuccessStatusCode, await activated.Content.ReadAsStringAsync());
         Assert.Equal("activated", (await GetAsync(a, $"/v1/calibrations/{calibrationId}")).GetProperty("state").GetString());
+        // The activated calibration reaches the replica that did not activate it (it sees the shared models folder change).
+        long? measuredOver = null;
+        for (var until = DateTime.UtcNow.AddSeconds(30); measuredOver != 3 && DateTime.UtcNow < until; await Task.Delay(100))
+            measuredOver = (await GetAsync(a, $"/v1/models/{Fleet.JobsModel}")).GetProperty("calibration").GetProperty("frameCount").GetInt64();
+        Assert.Equal(3, measuredOver);
         // One record per job, in the one store.
         Assert.Equal([("calibration", calibrationId, "activated"), ("evaluation", evaluationId, "done")], fleet.Jobs());
     }
