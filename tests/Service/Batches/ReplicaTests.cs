@@ -158,7 +158,14 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
         Assert.Equal(log[^1].GetProperty("note").GetString(), current.GetProperty("note").GetString());
 
         // Calibration and evaluation jobs started through A are listed, followed and activated through B.
-        // On a second copy of the model: activating changes the model's calibration, which the other tests' batches must not see.
+        // On a second copy of the model, installed now (every replica picks it up from the shared folder): activating
+        // changes the model's calibration, which the other tests' batches must not see.
+        string staged = Path.Combine(fleet.Data, "..", "staged-model");
+        CopyDemoModel(staged, Fleet.JobsModel);
+        Directory.Move(Path.Combine(staged, Fleet.JobsModel), Path.Combine(fleet.Models, Fleet.JobsModel)); // appears whole
+        foreach (var replica in new[] { a, b })
+            for (var until = DateTime.UtcNow.AddSeconds(30); !await UsableAsync(replica, Fleet.JobsModel) && DateTime.UtcNow < until;)
+                await Task.Delay(100);
         var calibration = await a.PostAsJsonAsync($"/v1/models/{Fleet.JobsModel}/calibrations", new { folder = "gate" });
         Assert.Equal(HttpStatusCode.Accepted, calibration.StatusCode);
         string calibrationId = (await calibration.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
@@ -184,6 +191,12 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
         Assert.Equal([("calibration", calibrationId, "activated"), ("evaluation", evaluationId, "done")], fleet.Jobs());
     }
 
+    private static async Task<bool> UsableAsync(HttpClient client, string model)
+    {
+        var r = await client.GetAsync($"/v1/models/{model}");
+        return r.IsSuccessStatusCode && (await r.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("usable").GetBoolean();
+    }
+
     private static async Task<JsonElement> WaitForJobAsync(HttpClient client, string path)
     {
         var until = DateTime.UtcNow.AddSeconds(60);
@@ -200,19 +213,25 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
     {
         using var fleet = new Fleet(postgres.Cluster); // its own store: the shared serving replicas would take its batch
         var names = WriteFrames(Path.Combine(fleet.Data, "late"), 8, width: Small, height: Small / 2);
-
-        using (var idle = fleet.Start(verb: "work"))
-        {
-            using var client = await idle.ReadyClientAsync();
-            Assert.Equal(HttpStatusCode.NotFound, (await client.GetAsync("/v1/models")).StatusCode); // no scoring API on a worker
-            await idle.StopAsync();
-        }
-
         // Queued straight into the store, as the service does on POST /v1/batches (sources relative to the data folder).
         using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
             store.Batches.Submit("late-1", Model, "folder:late", null, names.Select(n => new Strayspot.Service.Batches.NewFrame(n, "late/" + n)).ToList());
+
+        // Side by side, on a store with no work: a worker without --until-idle serves health but no scoring API, and stays up until stopped.
+        var clock = System.Diagnostics.Stopwatch.StartNew();
+        using var empty = new Fleet(postgres.Cluster);
+        using var idle = empty.Start(verb: "work");
         var worker = fleet.Start(verb: "work", args: ["--until-idle"]);
+        using (var client = await idle.ReadyClientAsync())
+        {
+            Assert.Equal(HttpStatusCode.NotFound, (await client.GetAsync("/v1/models")).StatusCode); // no scoring API on a worker
+            output.WriteLine($"idle worker ready in {clock.ElapsedMilliseconds} ms");
+            await idle.StopAsync();
+            output.WriteLine($"idle worker stopped at {clock.ElapsedMilliseconds} ms");
+        }
+
         await worker.WaitForExitAsync(TimeSpan.FromSeconds(90));
+        output.WriteLine($"worker done at {clock.ElapsedMilliseconds} ms");
         Assert.True(worker.ExitCode == 0, worker.Log);
 
         using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
@@ -256,7 +275,6 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
         {
             Directory.CreateDirectory(Models);
             CopyDemoModel(Models);
-            CopyDemoModel(Models, JobsModel);
             _connection = cluster.CreateDatabase();
         }
 
