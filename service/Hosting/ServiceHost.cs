@@ -133,6 +133,7 @@ public static class ServiceHost
         services.AddSingleton(sp => new Inference.ModelRegistry(sp.GetRequiredService<Inference.ParallelSettings>()));
         services.AddSingleton<ModelSessions>();
         services.AddHostedService<ModelSessionLoader>();
+        services.AddHostedService<ModelFolderWatch>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();
