@@ -121,7 +121,7 @@ public static class ReviewBench
             back.CommandText = "DELETE FROM schema_version WHERE version > 1; DROP INDEX frames_open; ALTER TABLE frames DROP COLUMN lease_owner; " +
                                "ALTER TABLE frames DROP COLUMN lease_until; ALTER TABLE frames DROP COLUMN scored_by; " +
                                "ALTER TABLE batches DROP COLUMN callback_owner; ALTER TABLE batches DROP COLUMN callback_until; " +
-                               "ALTER TABLE decision_log DROP COLUMN track; DROP TABLE track_decisions;";
+                               "DROP TABLE jobs; ALTER TABLE decision_log DROP COLUMN track; DROP TABLE track_decisions;";
             back.ExecuteNonQuery();
         }
         using var tx = c.BeginTransaction();
