@@ -74,7 +74,12 @@ public static class ScoreLogitsVerb
         var names = statistics?.Classes.Select(c => c.Name).ToList();
         var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, ColorScales.ClassColors(scored.ClassCount), frame: null, outputFolder);
         var report = FrameReport.From(scored, options, names, Path.GetFileNameWithoutExtension(logitsPath),
-            logits: new LogitsReport(view.Channels, view.Height, view.Width)) with { Artifacts = artifacts };
+            logits: new LogitsReport(view.Channels, view.Height, view.Width)) with
+        {
+            Artifacts = artifacts,
+            // No model folder here: the calibration's binding and frame size are unknown, the method's score range is not.
+            Warnings = ScoringWarnings.For(width, height, options, view.Channels, null, null),
+        };
         AtomicFile.WriteAllBytes(Path.Combine(outputFolder, "report.json"), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
         return report;
     }

@@ -95,12 +95,15 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
                     $"{calibration!.File} describes {statistics.Count} classes but {DescriptorFile} lists {descriptor.Classes.Count}.");
             string? sha = HashModel(folder);
-            if (sha is not null && calibration?.File == CalibrationFile)
+            Strayspot.Service.Calibration.CalibrationArtifact? artifact = null;
+            if (calibration?.File == CalibrationFile)
             {
+                artifact = Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile));
                 // Statistics measured through other weights would standardize with the wrong means: refuse them.
-                Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile)).EnsureMatches(descriptor, sha, folder);
+                if (sha is not null) artifact.EnsureMatches(descriptor, sha, folder);
             }
-            var version = Inference.ModelVersion.Of(name, folder, descriptor, sha, statistics, calibration?.File, profile);
+            // The calibration rides along so frame reports can warn about frames far from its size.
+            var version = Inference.ModelVersion.Of(name, folder, descriptor, sha, statistics, calibration?.File, profile, artifact);
             return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha, Version = version };
         }
         catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)

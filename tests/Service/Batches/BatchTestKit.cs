@@ -114,6 +114,14 @@ public static class BatchTestKit
         return body.Split('\n', StringSplitOptions.RemoveEmptyEntries).Select(l => JsonDocument.Parse(l).RootElement).ToList();
     }
 
+    /// <summary>Waits until the one-frame batch is done and returns its manifest line.</summary>
+    public static async Task<JsonElement> WaitManifestLineAsync(HttpClient client, string id)
+    {
+        var batch = await WaitAsync(client, id, b => b.GetProperty("state").GetString() is "done" or "failed");
+        Assert.True(batch.GetProperty("state").GetString() == "done", batch.ToString());
+        return Assert.Single(await ManifestAsync(client, id));
+    }
+
     public static async Task<Dictionary<string, JsonElement>> FramesAsync(HttpClient client, string id)
     {
         var json = await GetAsync(client, $"/v1/batches/{id}/frames");

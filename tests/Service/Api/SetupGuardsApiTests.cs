@@ -1,0 +1,116 @@
+using System.Net;
+using System.Net.Http.Headers;
+using System.Net.Http.Json;
+using System.Text.Json;
+using Strayspot.Scoring.Logits;
+using Strayspot.Service.Reports;
+using Strayspot.Tests.Service.Setup;
+using Strayspot.Tests.Support;
+
+namespace Strayspot.Tests.Service.Api;
+
+/// <summary>
+/// One service on a real Kestrel with models set up right and wrong: <c>tiny</c> is calibrated on 24×16 frames;
+/// <c>raw</c> has no calibration (its profile's method is sml).
+/// </summary>
+public sealed class SetupGuardsService : IAsyncLifetime
+{
+    public const int CalibratedWidth = 24, CalibratedHeight = 16, Classes = 3;
+
+    public KestrelService Service { get; private set; } = null!;
+
+    public async Task InitializeAsync()
+    {
+        using var calibrated = new SetupFolder(new TestSegmentationGraph { Classes = Classes }, width: CalibratedWidth, height: CalibratedHeight);
+        calibrated.Calibrate();
+        Service = await KestrelService.StartAsync(m =>
+        {
+            CopyFolder(calibrated.Model, Path.Combine(m, "tiny"));
+            new TestSegmentationGraph { Classes = Classes }.WriteFolder(Path.Combine(m, "raw"));
+        });
+    }
+
+    public async Task DisposeAsync() => await Service.DisposeAsync();
+
+    public static void CopyFolder(string from, string to)
+    {
+        Directory.CreateDirectory(to);
+        foreach (string f in Directory.GetFiles(from)) File.Copy(f, Path.Combine(to, Path.GetFileName(f)));
+    }
+}
+
+/// <summary>The set-up guards of the command line hold over HTTP too: frame reports carry the same warnings.</summary>
+public class SetupGuardsApiTests(SetupGuardsService fixture) : IClassFixture<SetupGuardsService>
+{
+    private HttpClient Client => fixture.Service.Client;
+
+    public static MultipartFormDataContent Form(string part, byte[] file, params (string Key, string Value)[] fields)
+    {
+        var form = new MultipartFormDataContent();
+        var content = new ByteArrayContent(file);
+        content.Headers.ContentType = new MediaTypeHeaderValue("application/octet-stream");
+        form.Add(content, part, part + ".bin");
+        foreach (var (k, v) in fields) form.Add(new StringContent(v), k);
+        return form;
+    }
+
+    public static byte[] Png(int width, int height)
+    {
+        using var image = TestImages.Noise(width, height, seed: 9);
+        return TestImages.Png(image);
+    }
+
+    public static byte[] Npy(int classes, int height, int width)
+    {
+        var data = new float[classes * height * width];
+        for (int i = 0; i < data.Length; i++) data[i] = (i * 7919 % 13) * 0.5f;
+        using var ms = new MemoryStream();
+        global::Strayspot.Scoring.Logits.Npy.WriteFloat32(ms, data, [classes, height, width]);
+        return ms.ToArray();
+    }
+
+    private static async Task<JsonElement> ReportAsync(HttpResponseMessage r)
+    {
+        string body = await r.Content.ReadAsStringAsync();
+        Assert.True(r.StatusCode == HttpStatusCode.OK, $"{(int)r.StatusCode}: {body}");
+        return JsonDocument.Parse(body).RootElement.GetProperty("report");
+    }
+
+    private static List<string> Codes(JsonElement report) =>
+        report.GetProperty("warnings").EnumerateArray().Select(w => w.GetProperty("code").GetString()!).ToList();
+
+    [Fact]
+    public async Task An_image_frame_at_the_calibrated_size_has_no_warning_and_one_three_times_wider_is_warned()
+    {
+        var same = await ReportAsync(await Client.PostAsync("/v1/models/tiny/frames", Form("frame", Png(30, 20), ("artifacts", "none"))));
+        Assert.Empty(Codes(same));
+        var wide = await ReportAsync(await Client.PostAsync("/v1/models/tiny/frames", Form("frame", Png(72, 48), ("artifacts", "none"))));
+        Assert.Equal([ScoringWarnings.FrameSizeDiffers], Codes(wide));
+        Assert.Contains("24×16", wide.GetProperty("warnings")[0].GetProperty("message").GetString());
+    }
+
+    [Fact]
+    public async Task Logits_for_a_frame_far_from_the_calibrated_size_are_warned_and_an_off_scale_threshold_too()
+    {
+        var wide = await ReportAsync(await Client.PostAsync("/v1/models/tiny/logits",
+            Form("logits", Npy(3, 16, 24), ("frameWidth", "72"), ("frameHeight", "48"), ("artifacts", "none"))));
+        Assert.Equal([ScoringWarnings.FrameSizeDiffers], Codes(wide));
+        var msp = await ReportAsync(await Client.PostAsync("/v1/models/tiny/logits",
+            Form("logits", Npy(3, 16, 24), ("method", "msp"), ("threshold", "2"), ("artifacts", "none"))));
+        Assert.Equal([ScoringWarnings.ThresholdOutOfRange], Codes(msp));
+    }
+
+    [Fact]
+    public async Task A_batch_frame_report_carries_the_warnings()
+    {
+        string folder = Path.Combine(fixture.Service.DataRoot, "wide");
+        Directory.CreateDirectory(folder);
+        File.WriteAllBytes(Path.Combine(folder, "a.png"), Png(72, 48));
+        var r = await Client.PostAsJsonAsync("/v1/batches", new { model = "tiny", folder = "wide", batchId = "wide-1" });
+        Assert.True(r.StatusCode == HttpStatusCode.Created, await r.Content.ReadAsStringAsync());
+        var line = await Batches.BatchTestKit.WaitManifestLineAsync(Client, "wide-1");
+        string report = Path.Combine(fixture.Service.DataRoot, "batches", "wide-1", line.GetProperty("artifacts").GetProperty("report").GetString()!);
+        var json = JsonDocument.Parse(File.ReadAllText(report)).RootElement;
+        Assert.Equal([ScoringWarnings.FrameSizeDiffers], Codes(json));
+    }
+}
