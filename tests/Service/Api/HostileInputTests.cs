@@ -193,12 +193,15 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         ["logits: control character id"] = new("clientFrameId with ESC", () => Post(Logits, Form(("logits", GoodNpy), ("clientFrameId", "cam\u001b[2J"))), 400, "validation-failed"),
         ["logits: overlay without image"] = new("artifacts overlay", () => Post(Logits, Form(("logits", GoodNpy), ("artifacts", "overlay"))), 400, "validation-failed"),
         ["logits: bad response mode"] = new("response xml", () => Post(Logits, Form(("logits", GoodNpy), ("response", "xml"))), 400, "validation-failed"),
+        ["logits: height and width swapped"] = new("8×8 logits onto a 64×16 frame", () => Post(Logits, Form(("logits", GoodNpy), ("frameWidth", "64"), ("frameHeight", "16"))), 400, "logits-aspect"),
+        ["logits: bad stretch value"] = new("stretch 'maybe'", () => Post(Logits, Form(("logits", GoodNpy), ("stretch", "maybe"))), 400, "validation-failed"),
         ["logits: body over the limit"] = new("1.1 MiB part, 1 MiB limit", () => Post(Logits, Form(("logits", new byte[1_150_000]))), 413, "payload-too-large"),
 
         // Image upload.
         ["frames: truncated multipart body"] = new("2/3 of a valid body", () => Post(Frames, Truncated(("frame", Png))), 400, "form-invalid"),
         ["frames: two frame parts"] = new("file part 'frame' twice", () => Post(Frames, Form(("frame", Png), ("frame", Png))), 400, "validation-failed"),
         ["frames: frame size field"] = new("frameWidth on an image", () => Post(Frames, Form(("frame", Png), ("frameWidth", "10"), ("frameHeight", "10"))), 400, "validation-failed"),
+        ["frames: stretch field"] = new("stretch on an image", () => Post(Frames, Form(("frame", Png), ("stretch", "on"))), 400, "validation-failed"),
         ["frames: text as image"] = new("'hello' as frame", () => Post(Frames, Form(("frame", Encoding.ASCII.GetBytes("hello")), ("method", "maxlogit"))), 415, "frame-format"),
         ["frames: empty image"] = new("0-byte frame", () => Post(Frames, Form(("frame", Array.Empty<byte>()), ("method", "maxlogit"))), 415, "frame-format"),
         ["frames: header claims 10^10 pixels"] = new("PNG IHDR 100000×100000", () => Post(Frames, Form(("frame", HugePng()), ("method", "maxlogit"))), 413, "frame-too-large"),

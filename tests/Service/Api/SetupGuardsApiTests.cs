@@ -113,4 +113,19 @@ public class SetupGuardsApiTests(SetupGuardsService fixture) : IClassFixture<Set
         var json = JsonDocument.Parse(File.ReadAllText(report)).RootElement;
         Assert.Equal([ScoringWarnings.FrameSizeDiffers], Codes(json));
     }
+
+    [Fact]
+    public async Task Logits_with_height_and_width_swapped_are_refused_unless_stretch_is_on()
+    {
+        // 16 high × 24 wide logits onto a frame 32 wide × 48 high: the shapes of score-logits' check.
+        var refused = await Client.PostAsync("/v1/models/tiny/logits",
+            Form("logits", Npy(3, 16, 24), ("frameWidth", "32"), ("frameHeight", "48"), ("artifacts", "none")));
+        var problem = await TestService.ProblemAsync(refused, 400, ScoringErrorCodes.LogitsAspect);
+        Assert.Contains("swapped", problem.GetProperty("detail").GetString());
+        Assert.Contains("stretch=on", problem.GetProperty("detail").GetString());
+        await ReportAsync(await Client.PostAsync("/v1/models/tiny/logits",
+            Form("logits", Npy(3, 16, 24), ("frameWidth", "32"), ("frameHeight", "48"), ("stretch", "on"), ("artifacts", "none"))));
+        await ReportAsync(await Client.PostAsync("/v1/models/tiny/logits",
+            Form("logits", Npy(3, 16, 24), ("frameWidth", "48"), ("frameHeight", "32"), ("artifacts", "none"))));
+    }
 }
