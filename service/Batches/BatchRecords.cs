@@ -41,9 +41,13 @@ public sealed record BatchRecord(
     int CallbackAttempts,
     string? ModelSha256,
     string? ProfileVersion,
-    string? Error)
+    string? Error,
+    string? StoredArtifacts = null)
 {
     public int PendingCount => FrameCount - DoneCount - FailedCount;
+
+    /// <summary>The artifacts each frame gets (every one for a batch from before they were chosen).</summary>
+    public IReadOnlyList<string> Artifacts => Rendering.ArtifactChoice.Read(StoredArtifacts);
 }
 
 /// <summary>One frame of a batch. <see cref="Seq"/> orders frames and names their output folder.</summary>

@@ -45,8 +45,6 @@ public static class Manifest
     public const string ContentType = "application/x-ndjson";
     public const int MaxOutlinePoints = 64;
 
-    /// <summary>The files a manifest line links, named as in reports and review routes (<see cref="ArtifactWriter"/>'s table).</summary>
-    private static readonly string[] LinkedArtifacts = ["classes", "mask", "heat", "overlay", ArtifactWriter.Report];
 
     private static readonly JsonSerializerOptions LineJson = new()
     {
@@ -132,7 +130,11 @@ public static class Manifest
             if (BatchRecordings.IsRecordingReport(f.ReportPath!))
                 foreach (var (key, file) in BatchRecordings.ArtifactFiles) artifacts[key] = folder + "/" + file;
             else
-                foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+            {
+                // Only what the batch's frames were given (named as in reports and review routes), and the report.
+                foreach (string name in batch.Artifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+                artifacts[ArtifactWriter.Report] = folder + "/" + ArtifactWriter.ReportFile;
+            }
             lines.Add(new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
                 batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision)));
         }

@@ -141,7 +141,9 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             if (byRegion.TryGetValue(regions[i].Id, out var d)) regions[i] = regions[i] with { Decision = DecisionMark.From(d) };
         var report = ReadReport(batch, frame);
         var (width, height) = report is null ? MaskSize(batch, frame) : (report.Frame.Width, report.Frame.Height);
-        var files = FrameFiles.ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
+        // Only the artifacts the batch's frames were given (the batch's artifacts field).
+        var files = FrameFiles.Where(f => f is "source" or ArtifactWriter.Report || batch.Artifacts.Contains(f))
+            .ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
         return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, report?.Threshold, report?.ScoreRange,
             width, height, regions, frameDecision, files, report?.HeatScale);
     }

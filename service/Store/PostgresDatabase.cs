@@ -196,5 +196,6 @@ public sealed class PostgresDatabase : IDisposable
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
         new(4, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN callback_owner text, ADD COLUMN callback_until timestamptz")),
+        new(5, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN artifacts text")),
     ];
 }

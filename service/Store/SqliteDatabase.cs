@@ -187,6 +187,7 @@ public sealed class SqliteDatabase : IDisposable
             ALTER TABLE batches ADD COLUMN callback_owner TEXT;
             ALTER TABLE batches ADD COLUMN callback_until TEXT;
             """)),
+        new(5, tx => Exec(tx, "ALTER TABLE batches ADD COLUMN artifacts TEXT")),
     ];
 
     public void IndexRegions(SqliteTransaction tx, string batchId, int seq, string? regionsJson)

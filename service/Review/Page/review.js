@@ -299,7 +299,9 @@ async function openFrame(i, firstUndecided) {
   }
   if (token !== state.loadToken) return;
   releaseUrls();
-  const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), objectUrl(frame.files.heat), objectUrl(frame.files.mask)]);
+  // A batch may have been made without the heat map or the mask (its artifacts field): those layers stay empty.
+  const optional = (path) => (path ? objectUrl(path) : Promise.resolve(null));
+  const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), optional(frame.files.heat), optional(frame.files.mask)]);
   if (token !== state.loadToken) return;
   showFrame(frame, source, heat, mask);
   if (firstUndecided) {
@@ -330,9 +332,12 @@ function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
     $(id).setAttribute('height', h);
   }
   $('layer-source').setAttribute('href', sourceUrl);
-  $('layer-heat').setAttribute('href', heatUrl);
+  if (heatUrl) $('layer-heat').setAttribute('href', heatUrl);
+  const toggle = $('heat-toggle');
+  toggle.disabled = !heatUrl;
+  toggle.parentElement.title = heatUrl ? '' : 'This batch was made without the heat map (its artifacts field).';
   $('layer-outline').removeAttribute('href');
-  drawOutline(maskUrl, w, h, frame);
+  if (maskUrl) drawOutline(maskUrl, w, h, frame);
   applyLayers();
   const title = (state.dropped ? 'Dropped frame ' : (state.index + 1) + ' of ' + state.frames.length + ': ') + frame.frameId +
     ' · frame score ' + fmtScore(frame.frameScore) + ' · threshold ' + fmtScore(frame.threshold) + ' · ' + frame.regions.length +
@@ -399,7 +404,7 @@ function drawOutline(maskUrl, w, h, frame) {
 }
 
 function applyLayers() {
-  const heatOn = $('heat-toggle').checked;
+  const heatOn = $('heat-toggle').checked && !$('heat-toggle').disabled;
   const heat = $('layer-heat');
   heat.style.display = heatOn ? '' : 'none';
   heat.setAttribute('opacity', String($('heat-opacity').value / 100));

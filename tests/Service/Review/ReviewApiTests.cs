@@ -72,7 +72,7 @@ public class ReviewApiTests
     public async Task A_frame_lists_its_regions_and_serves_its_source_and_artifacts_at_frame_size()
     {
         await using var s = await StartAsync();
-        await DoneBatchAsync(s, "apron", "fr", 2, debris: 1);
+        await DoneBatchAsync(s, "apron", "fr", 2, debris: 1, artifacts: "all");
         var overview = await GetAsync(s.Client, "/v1/batches/fr/review");
         int seq = overview.GetProperty("frames")[0].GetProperty("seq").GetInt32();
         var frame = await GetAsync(s.Client, $"/v1/batches/fr/frames/{seq}");

@@ -65,7 +65,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         var http = new HttpClient { BaseAddress = new Uri(address), Timeout = TimeSpan.FromSeconds(60) };
         if (apiKey is not null) http.DefaultRequestHeaders.Add("X-Api-Key", apiKey);
         var live = new LiveService { App = app, Root = root, Http = http, BaseUrl = address.TrimEnd('/'), FramePaths = frames };
-        var submit = await http.PostAsJsonAsync("/v1/batches", new { model = "demo", folder = "apron", batchId = Batch });
+        var submit = await http.PostAsJsonAsync("/v1/batches", new { model = "demo", folder = "apron", batchId = Batch, artifacts = "mask,overlay,heat" });
         Assert.True(submit.IsSuccessStatusCode, await submit.Content.ReadAsStringAsync());
         if (waitForDone) await Batches.BatchTestKit.WaitForStateAsync(http, Batch, "done", TimeSpan.FromSeconds(90));
         return live;
