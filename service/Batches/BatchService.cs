@@ -99,6 +99,7 @@ public sealed partial class BatchService : IDisposable
         if (frames.Count == 0)
             throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {BatchRecordings.Accepted} frames or recordings.");
         frames.Sort((a, b) => string.CompareOrdinal(a.FrameId, b.FrameId));
+        EnsureModelCanScore(model);
         return Submit(id, model, "folder:" + folderRel, callbackUrl, frames, chosen);
     }
 
@@ -118,6 +119,7 @@ public sealed partial class BatchService : IDisposable
                 throw new BatchException(ErrorCodes.ValidationFailed,
                     $"The archive holds {extracted.Count} frames; at most {_options.MaxFramesPerBatch} are accepted (Service:Batches:MaxFramesPerBatch).");
             extracted.Sort(StringComparer.Ordinal);
+            EnsureModelCanScore(model);
             lock (_submit)
             {
                 string input = Path.Combine(BatchFolder(id), InputFolder);
@@ -206,6 +208,16 @@ public sealed partial class BatchService : IDisposable
         return rel.StartsWith("..", StringComparison.Ordinal) || Path.IsPathRooted(rel) ? full : rel.Replace('\\', '/');
     }
 
+    /// <summary>
+    /// Refuses, before anything is stored, a batch whose frames would all fail: the model's profile names a method it
+    /// cannot run (sml without class statistics, a method that needs logits on a probabilities model).
+    /// </summary>
+    private void EnsureModelCanScore(string model)
+    {
+        if (!_catalog.TryGet(model, out var entry) || entry.Version is not { } version) return; // refused by CheckRequest
+        Models.ModelReadiness.EnsureCanScore(version.Descriptor, version.Statistics, version.Defaults, version.Folder);
+    }
+
     /// <summary>The artifacts asked for (null when the request names none), or validation-failed naming the closest real name.</summary>
     private static IReadOnlyList<string>? CheckArtifacts(string? text) =>
         text is null ? null
@@ -218,7 +230,9 @@ public sealed partial class BatchService : IDisposable
         if (!_catalog.TryGet(model, out var entry))
             throw new BatchException(ErrorCodes.ModelNotFound, $"No model named '{model}' is installed; GET /v1/models lists the installed ones.");
         if (!entry.IsUsable)
-            throw new BatchException(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            // A stale calibration is the user's to fix (recalibrate), not the service's: its own code, 422.
+            throw new BatchException(entry.ErrorCode == Models.ModelErrorCodes.CalibrationModelMismatch ? entry.ErrorCode : ErrorCodes.ModelUnavailable,
+                $"Model '{model}' cannot be used: {entry.Error}");
         if (batchId is not null && !IsBatchId(batchId))
             throw new BatchException(ErrorCodes.ValidationFailed,
                 $"Batch id '{batchId}' is not accepted: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit.");

@@ -246,6 +246,17 @@ public sealed class BatchWorker(
         }
         try
         {
+            // Checked when the batch was made; the model may have changed since (or another replica stored the batch):
+            // fail the batch once, not each of its frames.
+            ModelReadiness.EnsureCanScore(entry.Descriptor!, entry.Statistics, entry.Version!.Defaults, entry.Folder);
+        }
+        catch (ModelException e)
+        {
+            batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"{e.Code}: {ClientPaths.Relative(e.Message, batches.DataRoot, service.Value.ModelsRoot)}");
+            return null;
+        }
+        try
+        {
             return await Task.Run(() => sessions.Borrow(entry), stopping);
         }
         catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException or InvalidDataException)

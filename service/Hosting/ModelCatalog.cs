@@ -31,6 +31,9 @@ public sealed record CatalogEntry(
     /// <summary>SHA-256 of model.onnx when the folder has one (logits-only folders do not).</summary>
     public string? Sha256 { get; init; }
 
+    /// <summary>The stable code of <see cref="Error"/>, when the failure had one (e.g. calibration-model-mismatch).</summary>
+    public string? ErrorCode { get; init; }
+
     /// <summary>What the frame runner borrows: weights, descriptor, statistics and profile as one version; null when unusable.</summary>
     public Inference.ModelVersion? Version { get; init; }
 
@@ -108,7 +111,7 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
         }
         catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)
         {
-            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, e.Message);
+            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, e.Message) { ErrorCode = (e as Strayspot.Scoring.CodedException)?.Code };
         }
     }
 

@@ -21,7 +21,9 @@ public sealed class KestrelService : IAsyncDisposable
     public string DataRoot => Path.Combine(Root, "data");
 
     /// <param name="models">Writes model folders into the models root before the service starts.</param>
-    public static async Task<KestrelService> StartAsync(Action<string> models, IDictionary<string, string?>? config = null)
+    /// <param name="unusable">Models set up to be refused: /readyz names them, so readiness means "nothing else is missing".</param>
+    public static async Task<KestrelService> StartAsync(Action<string> models, IDictionary<string, string?>? config = null,
+        IReadOnlyList<string>? unusable = null)
     {
         string root = Path.Combine(Path.GetTempPath(), "strayspot-kestrel-" + Guid.NewGuid().ToString("N"));
         Directory.CreateDirectory(Path.Combine(root, "models"));
@@ -41,12 +43,20 @@ public sealed class KestrelService : IAsyncDisposable
         await ServiceHost.StartCheckedAsync(app);
         var service = new KestrelService(app, root);
         var until = DateTime.UtcNow.AddSeconds(30);
-        while ((await service.Client.GetAsync("/readyz")).StatusCode != HttpStatusCode.OK)
+        while (!await ReadyAsync(service.Client, unusable ?? []))
         {
             Assert.True(DateTime.UtcNow < until, "the service did not get ready within 30 s");
             await Task.Delay(50);
         }
         return service;
+    }
+
+    private static async Task<bool> ReadyAsync(HttpClient client, IReadOnlyList<string> unusable)
+    {
+        var r = await client.GetAsync("/readyz");
+        if (r.StatusCode == HttpStatusCode.OK) return true;
+        var problems = System.Text.Json.JsonDocument.Parse(await r.Content.ReadAsStringAsync()).RootElement.GetProperty("problems");
+        return problems.EnumerateArray().All(p => unusable.Any(m => p.GetString()!.StartsWith($"Model '{m}' is unusable", StringComparison.Ordinal)));
     }
 
     public async ValueTask DisposeAsync()

@@ -2,7 +2,10 @@ using System.Net;
 using System.Net.Http.Headers;
 using System.Net.Http.Json;
 using System.Text.Json;
+using Microsoft.Extensions.DependencyInjection;
 using Strayspot.Scoring.Logits;
+using Strayspot.Service.Batches;
+using Strayspot.Service.Models;
 using Strayspot.Service.Reports;
 using Strayspot.Tests.Service.Setup;
 using Strayspot.Tests.Support;
@@ -11,7 +14,8 @@ namespace Strayspot.Tests.Service.Api;
 
 /// <summary>
 /// One service on a real Kestrel with models set up right and wrong: <c>tiny</c> is calibrated on 24×16 frames;
-/// <c>raw</c> has no calibration (its profile's method is sml).
+/// <c>raw</c> has no calibration (its profile's method is sml); <c>soft</c> outputs probabilities and its profile
+/// says maxlogit; <c>stale</c> was calibrated before its descriptor's mean changed.
 /// </summary>
 public sealed class SetupGuardsService : IAsyncLifetime
 {
@@ -27,7 +31,13 @@ public sealed class SetupGuardsService : IAsyncLifetime
         {
             CopyFolder(calibrated.Model, Path.Combine(m, "tiny"));
             new TestSegmentationGraph { Classes = Classes }.WriteFolder(Path.Combine(m, "raw"));
-        });
+            string soft = new TestSegmentationGraph { Classes = Classes, Softmax = true }.WriteFolder(Path.Combine(m, "soft"));
+            File.WriteAllText(Path.Combine(soft, "profile.json"), """{"method":"maxlogit","threshold":0}""");
+            string stale = Path.Combine(m, "stale");
+            CopyFolder(calibrated.Model, stale);
+            var d = ModelDescriptor.Load(Path.Combine(stale, ModelDescriptor.FileName));
+            (d with { Input = d.Input with { Mean = [0.4f, 0.4f, 0.4f] } }).Save(Path.Combine(stale, ModelDescriptor.FileName));
+        }, unusable: ["stale"]);
     }
 
     public async Task DisposeAsync() => await Service.DisposeAsync();
@@ -127,5 +137,38 @@ public class SetupGuardsApiTests(SetupGuardsService fixture) : IClassFixture<Set
             Form("logits", Npy(3, 16, 24), ("frameWidth", "32"), ("frameHeight", "48"), ("stretch", "on"), ("artifacts", "none"))));
         await ReportAsync(await Client.PostAsync("/v1/models/tiny/logits",
             Form("logits", Npy(3, 16, 24), ("frameWidth", "48"), ("frameHeight", "32"), ("artifacts", "none"))));
+    }
+
+    [Theory]
+    [InlineData("raw", 422, ModelErrorCodes.StatisticsMissing)]
+    [InlineData("soft", 422, ModelErrorCodes.MethodNeedsLogits)]
+    [InlineData("stale", 422, ModelErrorCodes.CalibrationModelMismatch)]
+    public async Task A_batch_on_a_model_that_cannot_score_is_refused_when_made_and_nothing_is_stored(string model, int status, string code)
+    {
+        string folder = Path.Combine(fixture.Service.DataRoot, "ok-" + model);
+        Directory.CreateDirectory(folder);
+        File.WriteAllBytes(Path.Combine(folder, "a.png"), Png(24, 16));
+        string id = "refused-" + model;
+        await TestService.ProblemAsync(await Client.PostAsJsonAsync("/v1/batches", new { model, folder = "ok-" + model, batchId = id }), status, code);
+        var upload = new MultipartFormDataContent { { new StringContent(model), "model" }, { new StringContent(id), "batchId" } };
+        var archive = new ByteArrayContent(HostileInputTests.Zip(("a.png", Png(24, 16))));
+        archive.Headers.ContentType = new MediaTypeHeaderValue("application/zip");
+        upload.Add(archive, "file", "frames.zip");
+        await TestService.ProblemAsync(await Client.PostAsync("/v1/batches", upload), status, code);
+        await TestService.ProblemAsync(await Client.GetAsync("/v1/batches/" + id), 404, "batch-not-found");
+        Assert.False(Directory.Exists(Path.Combine(fixture.Service.DataRoot, "batches", id)));
+    }
+
+    [Fact]
+    public async Task A_stored_batch_whose_model_cannot_score_fails_once_with_the_code_and_its_frames_stay_unscored()
+    {
+        // As when the model changed after the batch was made, or another replica stored it: straight into the store.
+        var batches = fixture.Service.App.Services.GetRequiredService<BatchService>();
+        batches.Store.Submit("stored-raw", "raw", "folder:x", null, [new NewFrame("a.png", "x/a.png"), new NewFrame("b.png", "x/b.png")]);
+        batches.Wake();
+        var failed = await Batches.BatchTestKit.WaitForStateAsync(Client, "stored-raw", "failed");
+        Assert.StartsWith(ModelErrorCodes.StatisticsMissing + ":", failed.GetProperty("error").GetString());
+        Assert.Equal(0, failed.GetProperty("frames").GetProperty("failed").GetInt32());
+        Assert.DoesNotContain(fixture.Service.Root, failed.GetProperty("error").GetString());
     }
 }
