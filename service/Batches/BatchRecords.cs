@@ -75,4 +75,4 @@ public sealed record FrameResult(float FrameScore, int RegionCount, string Repor
 public sealed record FrameSummary(int Seq, string FrameId, string State, float? FrameScore, int? RegionCount);
 
 /// <summary>One region of a scored frame, as far as counting needs it.</summary>
-public sealed record RegionBrief(int Seq, int Region, string ClassBeneath, float MaxScore);
+public sealed record RegionBrief(int Seq, int Region, string ClassBeneathName, float MaxScore);

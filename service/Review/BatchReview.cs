@@ -122,7 +122,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var evaluation = evaluations.List().FirstOrDefault(j => j.Model == batch.Model && j.State == "done");
         var link = evaluation is null ? null
             : new EvaluationLink(evaluation.Id, evaluation.FinishedUtc, $"/v1/evaluations/{evaluation.Id}/files/{EvaluationOutputs.MarkdownFile}");
-        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions), link, items, SafetyNotice.Text);
+        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions, entry?.Descriptor?.Classes.Select(c => c.Name).ToList()), link, items, SafetyNotice.Text);
     }
 
     public ReviewFrame Frame(string id, int seq)

@@ -108,7 +108,7 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
         var classes = new string[regions.Count];
         var scores = new double[regions.Count];
         for (int i = 0; i < regions.Count; i++)
-            (numbers[i], classes[i], scores[i]) = (regions[i].Id, regions[i].ClassBeneath, RegionIndex.FiniteScore(regions[i].MaxScore));
+            (numbers[i], classes[i], scores[i]) = (regions[i].Id, regions[i].IndexedClass, RegionIndex.FiniteScore(regions[i].MaxScore));
         return db.Run(c => Convert.ToInt64(PostgresDatabase.Scalar(c, null, """
             WITH f AS (UPDATE frames SET state = @doneF, frame_score = @score, region_count = @rc, report_path = @rp, regions_json = @rj,
                            error = NULL, scored_at = @now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL

@@ -202,7 +202,7 @@ public sealed class SqliteDatabase : IDisposable
         foreach (var region in regions)
         {
             pr.Value = region.Id;
-            pc.Value = region.ClassBeneath;
+            pc.Value = region.IndexedClass;
             ps.Value = RegionIndex.FiniteScore(region.MaxScore);
             cmd.ExecuteNonQuery();
         }

@@ -211,8 +211,8 @@ function renderSummary(o) {
   const body = $('class-table').tBodies[0];
   body.replaceChildren();
   for (const k of c.byClassBeneath) {
-    body.append(el('tr', { 'data-class': k.classBeneath }, [
-      el('td', { text: k.classBeneath }),
+    body.append(el('tr', { 'data-class': k.classBeneathName }, [
+      el('td', { text: k.classBeneathName }),
       el('td', { class: 'num', text: k.reviewed + ' / ' + k.regions }),
       el('td', { class: 'num', text: String(k.verdicts.falseAlarm) }),
       el('td', { class: 'num rate', text: fmtRate(k.falseAlarmRate) }),
@@ -496,13 +496,14 @@ function renderRegionTable() {
   if (!state.frame) return;
   for (const r of state.frame.order) {
     const cls = el('td', {});
-    const color = classColor(r.classBeneath);
+    const name = r.classBeneathName || String(r.classBeneath);
+    const color = classColor(name);
     if (color) {
       const sw = el('span', { class: 'swatch' });
       sw.style.background = color;
       cls.append(sw);
     }
-    cls.append(r.classBeneath);
+    cls.append(name);
     const tr = el('tr', { 'data-region': String(r.id) }, [
       el('td', { text: String(r.id) }),
       el('td', { class: 'num', text: fmtScore(r.maxScore) }),
@@ -731,7 +732,7 @@ async function scoreDropped(file) {
       decision: null,
       regions: report.regions.map((r) => ({
         id: r.id, box: r.box, area: r.area, maxScore: r.maxScore, meanScore: r.meanScore,
-        classBeneath: r.classBeneathName || String(r.classBeneath), onSurface: r.onSurface, decision: null,
+        classBeneath: r.classBeneath, classBeneathName: r.classBeneathName, onSurface: r.onSurface, decision: null,
       })),
     }, sourceUrl, heat, mask);
     setStatus('Scored ' + file.name + ' with ' + model + '.');

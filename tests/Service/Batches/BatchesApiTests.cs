@@ -97,7 +97,11 @@ public class BatchesApiTests
                     Assert.InRange(p[0].GetInt32(), x0, x1 - 1);
                     Assert.InRange(p[1].GetInt32(), y0, y1 - 1);
                 }
-                Assert.False(string.IsNullOrEmpty(region.GetProperty("classBeneath").GetString()));
+                // One vocabulary with the frame report: classBeneath is the class index, classBeneathName its name.
+                var same = report.GetProperty("regions").EnumerateArray().Single(r => r.GetProperty("id").GetInt32() == region.GetProperty("id").GetInt32());
+                Assert.Equal(same.GetProperty("classBeneath").GetInt32(), region.GetProperty("classBeneath").GetInt32());
+                Assert.Equal(same.GetProperty("classBeneathName").GetString(), region.GetProperty("classBeneathName").GetString());
+                Assert.False(string.IsNullOrEmpty(region.GetProperty("classBeneathName").GetString()));
                 Assert.True(region.GetProperty("maxScore").GetSingle() >= region.GetProperty("meanScore").GetSingle());
             }
         }

@@ -212,7 +212,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         await Expect(page.Locator(".verdicts button[data-verdict='label-it']")).ToHaveClassAsync(new System.Text.RegularExpressions.Regex(@"\bchosen\b"));
         // The summary: the region on the class beneath region 2 counts one false alarm.
         var frame = JsonDocument.Parse(await s.Http.GetStringAsync($"/v1/batches/{Batch}/frames/{seq}")).RootElement;
-        string beneath2 = frame.GetProperty("regions")[1].GetProperty("classBeneath").GetString()!;
+        string beneath2 = frame.GetProperty("regions")[1].GetProperty("classBeneathName").GetString()!;
         await Expect(page.Locator($"#class-table tr[data-class='{beneath2}']")).ToBeVisibleAsync();
         await session.ScreenshotAsync("after reload");
 
