@@ -92,7 +92,7 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = files[i].Decode(decoder);
-            string file = files[i].Path ?? files[i].Id;
+            string file = files[i].Shown;
             var report = model.Runner.Score(model.Lease, frame, options, (scored, timings) =>
             {
                 inspect?.Invoke(file, scored);

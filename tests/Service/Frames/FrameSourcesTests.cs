@@ -102,4 +102,19 @@ public class FrameSourcesTests
         Assert.Contains("\"preprocess\"", report);
         Assert.Contains("\"inference\"", report);
     }
+
+    [Fact]
+    public void Frames_scored_from_an_archive_are_named_by_the_archive_and_entry_not_the_temporary_copy()
+    {
+        using var dir = new TempFolder();
+        string folder = Folder(dir);
+        string zip = Path.Combine(dir.Path, "frames.zip");
+        ZipFile.CreateFromDirectory(folder, zip);
+        string model = new TestSegmentationGraph { Classes = 3, Stride = 2 }.WriteFolder(Path.Combine(dir.Path, "model"));
+        using var local = LocalModel.Open(model, new ParallelSettings { IntraOpThreads = 1, WarmUp = false });
+        var ranking = ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames([zip]),
+            local.Version.Defaults with { Method = Strayspot.Scoring.Pipeline.ScoreMethod.MaxLogit }, Path.Combine(dir.Path, "out"));
+        Assert.Equal([zip + "!a.png", zip + "!b.png", zip + "!cam2/a.png"], ranking.Select(r => r.Frame).Order(StringComparer.Ordinal));
+        Assert.DoesNotContain("strayspot-unpacked-", File.ReadAllText(Path.Combine(dir.Path, "out", "ranking.json")));
+    }
 }
