@@ -25,8 +25,8 @@ public static class ImageFramesApi
 
     public static void MapImageFramesApi(this RouteGroupBuilder v1)
     {
-        v1.MapPost("/models/{model}/frames", Score)
-            .WithTags("Frames")
+        v1.MapGroup("/models/{model}/frames").WithTags("Frames")
+            .MapPost("", Score)
             .WithName("ScoreFrame")
             .WithSummary("Runs the model on one camera frame and scores it.")
             .WithDescription(

@@ -83,8 +83,8 @@ public static class LogitsApi
     public static void MapLogitsApi(this RouteGroupBuilder v1)
     {
         SchemaExamples.Register<ScoredFrame>(() => System.Text.Json.Nodes.JsonNode.Parse(Example)!);
-        v1.MapPost("/models/{model}/logits", Score)
-            .WithTags("Frames")
+        v1.MapGroup("/models/{model}/logits").WithTags("Frames")
+            .MapPost("", Score)
             .WithName("ScoreLogits")
             .WithSummary("Scores one frame's logits with the model's class statistics and scoring profile.")
             .WithDescription(
