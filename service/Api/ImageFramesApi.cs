@@ -52,7 +52,7 @@ public static class ImageFramesApi
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
-            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            return ApiProblems.Unusable(entry);
         if (!ModelSessions.HasOnnx(entry))
             return ApiProblems.Create(ErrorCodes.ModelUnavailable,
                 $"Model '{model}' has no {SegmentationModel.ModelFileName}; send logits to /v1/models/{model}/logits instead.");

@@ -113,7 +113,7 @@ public static class LogitsApi
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
-            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            return ApiProblems.Unusable(entry);
         var (form, problem) = await UploadForm.ReadAsync(request, ScoringForm.LogitsPart, "float32 NPY logits", ScoringForm.FieldsFor(ScoringForm.LogitsPart), ct);
         if (form is null) return problem!;
 

@@ -230,9 +230,7 @@ public sealed partial class BatchService : IDisposable
         if (!_catalog.TryGet(model, out var entry))
             throw new BatchException(ErrorCodes.ModelNotFound, $"No model named '{model}' is installed; GET /v1/models lists the installed ones.");
         if (!entry.IsUsable)
-            // A stale calibration is the user's to fix (recalibrate), not the service's: its own code, 422.
-            throw new BatchException(entry.ErrorCode == Models.ModelErrorCodes.CalibrationModelMismatch ? entry.ErrorCode : ErrorCodes.ModelUnavailable,
-                $"Model '{model}' cannot be used: {entry.Error}");
+            throw new BatchException(ApiProblems.UnusableCode(entry), $"Model '{model}' cannot be used: {entry.Error}");
         if (batchId is not null && !IsBatchId(batchId))
             throw new BatchException(ErrorCodes.ValidationFailed,
                 $"Batch id '{batchId}' is not accepted: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit.");

@@ -171,4 +171,14 @@ public class SetupGuardsApiTests(SetupGuardsService fixture) : IClassFixture<Set
         Assert.Equal(0, failed.GetProperty("frames").GetProperty("failed").GetInt32());
         Assert.DoesNotContain(fixture.Service.Root, failed.GetProperty("error").GetString());
     }
+
+    [Fact]
+    public async Task Frames_and_logits_for_a_model_with_a_stale_calibration_get_its_code_not_a_503()
+    {
+        var frame = await Client.PostAsync("/v1/models/stale/frames", Form("frame", Png(24, 16)));
+        var problem = await TestService.ProblemAsync(frame, 422, ModelErrorCodes.CalibrationModelMismatch);
+        Assert.Contains("input.mean", problem.GetProperty("detail").GetString());
+        await TestService.ProblemAsync(await Client.PostAsync("/v1/models/stale/logits", Form("logits", Npy(3, 16, 24))), 422,
+            ModelErrorCodes.CalibrationModelMismatch);
+    }
 }
