@@ -29,7 +29,7 @@ public class ScoringFields
     /// <summary>ISO 8601.</summary>
     public DateTimeOffset? CaptureTime { get; set; }
     public string? RigId { get; set; }
-    /// <summary>Comma list of classes, mask, heat, overlay (frames only), score (NPY), or none; default classes,mask,heat.</summary>
+    /// <summary>Comma list of classes, mask, heat, overlay (frames only), score (NPY), score16, or all or none; default classes,mask,heat.</summary>
     public string? Artifacts { get; set; }
 }
 

@@ -96,13 +96,17 @@ public static class ScoringForm
         var artifacts = DefaultArtifacts.ToList();
         if (Single("artifacts") is string list)
         {
-            artifacts = list.Equals("none", StringComparison.Ordinal)
-                ? []
-                : list.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries).Distinct().ToList();
             var allowed = availableArtifacts ?? ArtifactStore.Files.Keys.ToHashSet();
+            artifacts = list switch
+            {
+                "none" => [],
+                // As score --artifacts and batches take it: every artifact this endpoint can make.
+                "all" => Rendering.ArtifactWriter.All.Where(allowed.Contains).ToList(),
+                _ => list.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries).Distinct().ToList(),
+            };
             var unknown = artifacts.Where(a => !allowed.Contains(a)).ToList();
             if (unknown.Count > 0)
-                Fail("artifacts", $"Artifact(s) {string.Join(", ", unknown)} cannot be made here; choose from {string.Join(", ", allowed.Order())}, or 'none'.");
+                Fail("artifacts", $"Artifact(s) {string.Join(", ", unknown)} cannot be made here; choose from {string.Join(", ", allowed.Order())}, or 'all' or 'none'.");
         }
 
         bool stretch = Switch(Single("stretch"), "stretch", Fail) ?? false;
