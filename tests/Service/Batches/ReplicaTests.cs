@@ -54,7 +54,8 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             var names = WriteFrames(Path.Combine(fleet.Data, folder), 24, seed: round, width: Small, height: Small / 2);
             var live = replicas.Where(r => !r.HasExited).ToList();
             using var client = live[0].Client();
-            await PostFolderAsync(client, folder, batchId: id);
+            // Every artifact, as batches wrote before the lean default: frames long enough to catch a replica holding one.
+            await PostFolderAsync(client, folder, batchId: id, artifacts: "all");
             await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 6, TimeSpan.FromSeconds(60));
 
             // The victim: a replica holding a claim right now (the others keep scoring). It is frozen before its claims
