@@ -196,6 +196,19 @@ public sealed class PostgresDatabase : IDisposable
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
         new(4, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN callback_owner text, ADD COLUMN callback_until timestamptz")),
-        new(5, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN artifacts text")),
+        new(5, tx => Exec(c, tx, """
+            CREATE TABLE jobs (
+                kind text NOT NULL,
+                id text NOT NULL,
+                state text NOT NULL,
+                created timestamptz NOT NULL,
+                updated timestamptz NOT NULL,
+                body text NOT NULL,
+                lease_owner text,
+                lease_until timestamptz,
+                PRIMARY KEY (kind, id));
+            CREATE INDEX jobs_created ON jobs(kind, created);
+            """)),
+        new(6, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN artifacts text")),
     ];
 }

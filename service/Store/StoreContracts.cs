@@ -87,6 +87,37 @@ public interface IDecisionStore
     IReadOnlyList<DecisionEntry> Log(string batchId, long after = 0, int limit = 1000);
 }
 
+/// <summary>
+/// Calibration and evaluation job records (kind, id, state and the job's own JSON), seen by every replica. A queued
+/// or running job is run by one replica at a time: the one holding its claim, a lease renewed while the job runs, so
+/// a job whose replica died is taken over once the lease runs out. A writer whose claim was lost is refused.
+/// </summary>
+public interface IJobStore
+{
+    /// <summary>Adds the job (held by <paramref name="owner"/> for <paramref name="lease"/> when given); false when one with its id exists (left alone).</summary>
+    bool Add(JobRecord job, string? owner = null, TimeSpan lease = default);
+
+    JobRecord? Get(string kind, string id);
+
+    /// <summary>The jobs of a kind, newest first.</summary>
+    IReadOnlyList<JobRecord> List(string kind, int limit = 1000);
+
+    /// <summary>
+    /// Stores the job's new state and record: refused (false) while another owner's live claim holds it. With
+    /// <paramref name="release"/> the writer's claim ends (finished, failed, or handed back at shutdown).
+    /// </summary>
+    bool Save(JobRecord job, string owner, bool release = false);
+
+    /// <summary>The oldest job of the kind in one of <paramref name="runnable"/> states that nobody holds (or whose holder's lease ran out), now held by <paramref name="owner"/>.</summary>
+    JobRecord? ClaimNext(string kind, IReadOnlyList<string> runnable, string owner, TimeSpan lease);
+
+    /// <summary>Pushes the claim's expiry on; false when <paramref name="owner"/> no longer holds the job.</summary>
+    bool Renew(string kind, string id, string owner, TimeSpan lease);
+}
+
+/// <summary>One stored job: <see cref="Body"/> is the job's own JSON, as the API shows it.</summary>
+public sealed record JobRecord(string Kind, string Id, string State, DateTimeOffset Created, string Body);
+
 /// <summary>Who holds claims: host, process and a random part (process ids repeat across containers).</summary>
 public static class ClaimOwner
 {
@@ -103,8 +134,8 @@ public sealed record FrameClaim(FrameRecord Frame, string Owner)
 /// <summary>The store could not be reached (server down, network cut); callers back off and try again.</summary>
 public sealed class StoreUnavailableException(string message, Exception? inner = null) : Exception(message, inner);
 
-/// <summary>One store: batches and decisions over one connection (SQLite) or one pool (PostgreSQL).</summary>
-public sealed class BatchDatabase(string engine, string describe, IBatchStore batches, IDecisionStore decisions, IDisposable owner) : IDisposable
+/// <summary>One store: batches, decisions and jobs over one connection (SQLite) or one pool (PostgreSQL).</summary>
+public sealed class BatchDatabase(string engine, string describe, IBatchStore batches, IDecisionStore decisions, IJobStore jobs, IDisposable owner) : IDisposable
 {
     public const string Sqlite = "sqlite";
     public const string Postgres = "postgres";
@@ -115,6 +146,7 @@ public sealed class BatchDatabase(string engine, string describe, IBatchStore ba
     public string Describe { get; } = describe;
     public IBatchStore Batches { get; } = batches;
     public IDecisionStore Decisions { get; } = decisions;
+    public IJobStore Jobs { get; } = jobs;
 
     private Func<string?> _problem = () => null;
 
@@ -128,14 +160,14 @@ public sealed class BatchDatabase(string engine, string describe, IBatchStore ba
     public static BatchDatabase OpenSqlite(string path, TimeProvider? time = null)
     {
         var db = new SqliteDatabase(path, time ?? TimeProvider.System);
-        return new BatchDatabase(Sqlite, db.File, new SqliteBatchStore(db), new SqliteDecisionStore(db), db);
+        return new BatchDatabase(Sqlite, db.File, new SqliteBatchStore(db), new SqliteDecisionStore(db), new SqliteJobStore(db), db);
     }
 
     /// <summary>The PostgreSQL database named by <paramref name="connectionString"/>, migrated as needed.</summary>
     public static BatchDatabase OpenPostgres(string connectionString, TimeProvider? time = null)
     {
         var db = new PostgresDatabase(connectionString, time ?? TimeProvider.System);
-        return new BatchDatabase(Postgres, db.Describe, new PostgresBatchStore(db), new PostgresDecisionStore(db), db) { _problem = () => db.Problem };
+        return new BatchDatabase(Postgres, db.Describe, new PostgresBatchStore(db), new PostgresDecisionStore(db), new PostgresJobStore(db), db) { _problem = () => db.Problem };
     }
 
     public void Dispose() => owner.Dispose();

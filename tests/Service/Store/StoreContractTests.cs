@@ -190,6 +190,65 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
         Assert.Single(d.Current("b"));
     }
 
+    private static JobRecord Job(string id, int minute, string state = "queued") =>
+        new("calibration", id, state, new DateTimeOffset(2026, 12, 2, 10, minute, 0, TimeSpan.Zero), $"{{\"id\":\"{id}\",\"state\":\"{state}\"}}");
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void Jobs_are_added_once_listed_newest_first_and_kept_apart_by_kind(string engine)
+    {
+        var j = Open(engine).Jobs;
+        Assert.True(j.Add(Job("old", 1)));
+        Assert.True(j.Add(Job("new", 2)));
+        Assert.False(j.Add(Job("old", 3, "done"))); // an existing job is left as it is
+        Assert.True(j.Add(Job("old", 1) with { Kind = "evaluation" }));
+        Assert.Equal(["new", "old"], j.List("calibration").Select(x => x.Id));
+        var old = j.Get("calibration", "old")!;
+        Assert.Equal(("queued", Job("old", 1).Created, Job("old", 1).Body), (old.State, old.Created, old.Body));
+        Assert.Single(j.List("evaluation"));
+        Assert.Null(j.Get("evaluation", "new"));
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void A_job_is_run_by_one_claimer_at_a_time_and_taken_over_after_its_lease(string engine)
+    {
+        var j = Open(engine).Jobs;
+        string[] runnable = ["queued", "running"];
+        j.Add(Job("a", 1));
+        j.Add(Job("b", 2));
+        j.Add(Job("c", 3, "done"));
+        var dead = j.ClaimNext("calibration", runnable, "dead", TimeSpan.FromMilliseconds(200))!;
+        Assert.Equal("a", dead.Id); // oldest first
+        Assert.True(j.Save(dead with { State = "running" }, "dead"));
+        var live = j.ClaimNext("calibration", runnable, "live", Lease)!;
+        Assert.Equal("b", live.Id); // a is held
+        Assert.Null(j.ClaimNext("calibration", runnable, "third", Lease)); // c is finished
+        Assert.False(j.Save(live with { State = "failed" }, "dead")); // not the holder
+        Thread.Sleep(600);
+        var taken = j.ClaimNext("calibration", runnable, "live", Lease)!;
+        Assert.Equal(("a", "running"), (taken.Id, taken.State));
+        Assert.False(j.Renew("calibration", "a", "dead", Lease));
+        Assert.False(j.Save(taken with { State = "done" }, "dead")); // the late writer is refused
+        Assert.True(j.Renew("calibration", "a", "live", Lease));
+        Assert.True(j.Save(taken with { State = "done" }, "live", release: true));
+        Assert.Equal("done", j.Get("calibration", "a")!.State);
+        Assert.True(j.Save(j.Get("calibration", "a")! with { State = "activated" }, "anyone")); // released: any replica may write
+        Assert.True(j.Save(live with { State = "running" }, "live", release: true)); // handed back unfinished: free to take at once
+        Assert.Equal("b", j.ClaimNext("calibration", runnable, "third", Lease)!.Id);
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void Concurrent_claimers_take_each_job_once(string engine)
+    {
+        var j = Open(engine).Jobs;
+        for (int i = 0; i < 20; i++) j.Add(Job($"j{i:D2}", i));
+        var taken = new System.Collections.Concurrent.ConcurrentBag<string>();
+        Parallel.For(0, 4, w =>
+        {
+            while (j.ClaimNext("calibration", ["queued"], $"w{w}", Lease) is { } job) taken.Add(job.Id);
+        });
+        Assert.Equal(Enumerable.Range(0, 20).Select(i => $"j{i:D2}"), taken.Order(StringComparer.Ordinal));
+    }
+
     [Theory, InlineData("sqlite"), PostgresData]
     public void Both_engines_reach_the_same_schema_version_and_reopening_changes_nothing(string engine)
     {
