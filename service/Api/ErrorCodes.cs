@@ -92,6 +92,7 @@ public static class ErrorCodes
         new(ScoringErrorCodes.LogitsShape, 400, "The logits have an unusable shape"),
         new(ScoringErrorCodes.LogitsNonFinite, 400, "The logits contain NaN or infinite values"),
         new(ScoringErrorCodes.FrameSize, 400, "The frame size is invalid"),
+        new(ScoringErrorCodes.LogitsAspect, 400, "The logits' shape disagrees with the frame's"),
         new(ScoringErrorCodes.Options, 400, "The scoring options are invalid"),
         new(ScoringErrorCodes.StatisticsMismatch, 422, "The class statistics do not fit the logits"),
         new(ScoringErrorCodes.StatisticsFormat, 422, "The class statistics are invalid"),

@@ -25,8 +25,8 @@ public static class ImageFramesApi
 
     public static void MapImageFramesApi(this RouteGroupBuilder v1)
     {
-        v1.MapPost("/models/{model}/frames", Score)
-            .WithTags("Frames")
+        v1.MapGroup("/models/{model}/frames").WithTags("Frames")
+            .MapPost("", Score)
             .WithName("ScoreFrame")
             .WithSummary("Runs the model on one camera frame and scores it.")
             .WithDescription(
@@ -52,7 +52,7 @@ public static class ImageFramesApi
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
-            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            return ApiProblems.Unusable(entry);
         if (!ModelSessions.HasOnnx(entry))
             return ApiProblems.Create(ErrorCodes.ModelUnavailable,
                 $"Model '{model}' has no {SegmentationModel.ModelFileName}; send logits to /v1/models/{model}/logits instead.");

@@ -55,16 +55,7 @@ public sealed class SegmentationModel : IDisposable
     public string FolderName => Path.GetFileName(Path.GetDirectoryName(Path.GetFullPath(ModelPath))) ?? Descriptor.Name;
 
     /// <summary>Refuses a scoring method the model's output cannot support, naming the ones it can.</summary>
-    public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method)
-    {
-        if (OutputsProbabilities && !Strayspot.Scoring.Pipeline.ScoreMethodInputs.WorksOnProbabilities(method))
-            throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
-                $"Model '{FolderName}' outputs probabilities (output.kind), so the {MethodName(method)} method cannot be used: it needs the raw logits " +
-                "that the final softmax discards. Use --method msp or --method entropy, or export the model without its final Softmax and set output.kind to 'logits'.");
-    }
-
-    private static string MethodName(Strayspot.Scoring.Pipeline.ScoreMethod m) =>
-        System.Text.Json.JsonSerializer.Serialize(m).Trim('"');
+    public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method) => ModelReadiness.EnsureMethodFits(Descriptor, FolderName, method);
     public TimeSpan LoadTime { get; private set; }
 
     /// <summary>Refuses a path that is not a model folder; given the model file itself, names the folder to pass.</summary>

@@ -43,6 +43,7 @@ public static class RecordingRun
         var names = model.Version.ClassNames;
         double decodeMs = 0, scoreMs = 0;
         int scored = 0;
+        IReadOnlyList<ReportWarning>? warnings = null;
         string framesPath = Path.Combine(folder, FramesFile);
         using (var lines = new StreamWriter(framesPath + ".part"))
         {
@@ -53,8 +54,9 @@ public static class RecordingRun
                 using (rf)
                 {
                     long s0 = Stopwatch.GetTimestamp();
-                    var line = runner.Score(model, rf.Frame, options, (s, _) =>
+                    var line = runner.Score(model, rf.Frame, options, (s, t) =>
                     {
+                        warnings ??= t.Warnings;
                         var regions = s.Regions.Regions;
                         var assigned = linker.Add(rf.Sample, rf.Index, rf.TimeSeconds, s.Width, s.Height, regions);
                         var reports = new List<RegionReport>(regions.Count);
@@ -99,7 +101,7 @@ public static class RecordingRun
             Threshold = options.Threshold, Linking = tracking.Linking, MinimumFramesSeen = tracking.MinimumFramesSeen,
             TracksFound = tracks.Count, TracksKept = kept.Count, Tracks = trackReports,
             Segments = Segments(trackReports.Where(k => k.Kept).ToList(), tracking.SegmentGapSeconds),
-            Notes = recording.Notes.ToList(),
+            Notes = recording.Notes.ToList(), Warnings = warnings ?? [],
             TimingsMs = new() { ["decode"] = Math.Round(decodeMs, 1), ["score"] = Math.Round(scoreMs, 1) },
         };
         AtomicFile.WriteAllBytes(Path.Combine(folder, TracksFile), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));

@@ -127,7 +127,7 @@ public sealed partial class BatchReview(BatchService batches, ModelCatalog catal
         var evaluation = evaluations.List().FirstOrDefault(j => j.Model == batch.Model && j.State == "done");
         var link = evaluation is null ? null
             : new EvaluationLink(evaluation.Id, evaluation.FinishedUtc, $"/v1/evaluations/{evaluation.Id}/files/{EvaluationOutputs.MarkdownFile}");
-        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions), link, items, SafetyNotice.Text);
+        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions, entry?.Descriptor?.Classes.Select(c => c.Name).ToList()), link, items, SafetyNotice.Text);
     }
 
     public ReviewFrame Frame(string id, int seq)
@@ -157,7 +157,9 @@ public sealed partial class BatchReview(BatchService batches, ModelCatalog catal
         }
         var report = ReadReport(batch, frame);
         var (width, height) = report is null ? MaskSize(batch, frame) : (report.Frame.Width, report.Frame.Height);
-        var files = FrameFiles.ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
+        // Only the artifacts the batch's frames were given (the batch's artifacts field).
+        var files = FrameFiles.Where(f => f is "source" or ArtifactWriter.Report || batch.Artifacts.Contains(f))
+            .ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
         return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, report?.Threshold, report?.ScoreRange,
             width, height, regions, frameDecision, files, report?.HeatScale);
     }

@@ -14,7 +14,8 @@ public sealed record ReviewTrack(
     [property: JsonPropertyName("framesSeen")] int FramesSeen,
     [property: JsonPropertyName("maxScore")] float MaxScore,
     [property: JsonPropertyName("meanScore")] float MeanScore,
-    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("classBeneath")] int ClassBeneath,
+    [property: JsonPropertyName("classBeneathName")] string ClassBeneathName,
     [property: JsonPropertyName("bestFrameId")] string BestFrameId,
     [property: JsonPropertyName("bestTime")] double BestTime,
     [property: JsonPropertyName("bestBox")] BoxReport BestBox,
@@ -68,7 +69,7 @@ public sealed partial class BatchReview
         {
             if (!t.Kept) continue;
             tracks.Add(new ReviewTrack(t.Id, t.FirstTime, t.LastTime, t.FramesSeen, t.MaxScore, t.MeanScore,
-                t.ClassBeneathName ?? t.ClassBeneath.ToString(System.Globalization.CultureInfo.InvariantCulture), t.BestFrameId, t.BestTime, t.BestBox,
+                t.ClassBeneath, t.ClassBeneathName ?? t.ClassBeneath.ToString(System.Globalization.CultureInfo.InvariantCulture), t.BestFrameId, t.BestTime, t.BestBox,
                 $"/v1/batches/{id}/frames/{seq}/tracks/{t.Id}/best", byTrack.GetValueOrDefault(t.Id), byRegion.GetValueOrDefault(t.Id)));
         }
         double start = times.Count > 0 ? times[0] : 0, end = times.Count > 0 ? times[^1] : 0;

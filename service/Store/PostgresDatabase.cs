@@ -223,5 +223,6 @@ public sealed class PostgresDatabase : IDisposable
                 PRIMARY KEY (batch_id, seq, track),
                 FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
             """)),
+        new(7, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN artifacts text")),
     ];
 }

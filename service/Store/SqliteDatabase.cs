@@ -215,6 +215,7 @@ public sealed class SqliteDatabase : IDisposable
                 PRIMARY KEY (batch_id, seq, track),
                 FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
             """)),
+        new(7, tx => Exec(tx, "ALTER TABLE batches ADD COLUMN artifacts TEXT")),
     ];
 
     public void IndexRegions(SqliteTransaction tx, string batchId, int seq, string? regionsJson)
@@ -229,7 +230,7 @@ public sealed class SqliteDatabase : IDisposable
         foreach (var region in regions)
         {
             pr.Value = region.Id;
-            pc.Value = region.ClassBeneath;
+            pc.Value = region.IndexedClass;
             ps.Value = RegionIndex.FiniteScore(region.MaxScore);
             cmd.ExecuteNonQuery();
         }

@@ -15,9 +15,11 @@ public interface IBatchStore
 
     /// <summary>
     /// Creates the batch, or adds to an existing one with the same id: frames whose id is already there are left
-    /// alone (never scored twice). A finished (done) batch that gains frames is queued again.
+    /// alone (never scored twice). A finished (done) batch that gains frames is queued again. <paramref name="artifacts"/>
+    /// (stored as given, see <see cref="Rendering.ArtifactChoice.Format"/>) is set when the batch is created.
     /// </summary>
-    (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl, IReadOnlyList<NewFrame> frames);
+    (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl, IReadOnlyList<NewFrame> frames,
+        string? artifacts = null);
 
     BatchRecord? Get(string id);
     IReadOnlyList<BatchRecord> List(int limit = 100, string? state = null);

@@ -99,7 +99,7 @@ public static class ReviewBench
             var all = store.Frames("big");
             var briefs = new List<RegionBrief>();
             foreach (var f in all)
-                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.ClassBeneath, r.MaxScore));
+                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.IndexedClass, r.MaxScore));
             b = ReviewTally.Count(all.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, decisions.Current("big"));
         });
         if (a!.Regions != b!.Regions) throw new InvalidOperationException("the two ways of counting disagree");
@@ -153,7 +153,7 @@ public static class ReviewBench
                 for (int p = 0; p < 64; p++) outline[p] = [rng.Next(1920), rng.Next(1080)];
                 float max = 2.5f + (float)rng.NextDouble() * 2;
                 regions.Add(new ManifestRegion(r, new BoxReport(rng.Next(1800), rng.Next(1000), 40, 30), 900, max - 0.5f, max,
-                    Classes[rng.Next(Classes.Length)], true, outline));
+                    0, Classes[rng.Next(Classes.Length)], true, outline));
             }
             seq.Value = i;
             f.Value = $"cam/{i:D6}.png";

@@ -213,8 +213,8 @@ function renderSummary(o) {
   const body = $('class-table').tBodies[0];
   body.replaceChildren();
   for (const k of c.byClassBeneath) {
-    body.append(el('tr', { 'data-class': k.classBeneath }, [
-      el('td', { text: k.classBeneath }),
+    body.append(el('tr', { 'data-class': k.classBeneathName }, [
+      el('td', { text: k.classBeneathName }),
       el('td', { class: 'num', text: k.reviewed + ' / ' + k.regions }),
       el('td', { class: 'num', text: String(k.verdicts.falseAlarm) }),
       el('td', { class: 'num rate', text: fmtRate(k.falseAlarmRate) }),
@@ -317,7 +317,9 @@ async function openFrame(i, firstUndecided) {
       if (t) selectTrack(t.id);
     }
   } else {
-    const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), objectUrl(frame.files.heat), objectUrl(frame.files.mask)]);
+    // A batch may have been made without the heat map or the mask (its artifacts field): those layers stay empty.
+    const optional = (path) => (path ? objectUrl(path) : Promise.resolve(null));
+    const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), optional(frame.files.heat), optional(frame.files.mask)]);
     if (token !== state.loadToken) return;
     showFrame(frame, source, heat, mask);
     if (firstUndecided) {
@@ -350,9 +352,12 @@ function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
     $(id).setAttribute('height', h);
   }
   $('layer-source').setAttribute('href', sourceUrl);
-  $('layer-heat').setAttribute('href', heatUrl);
+  if (heatUrl) $('layer-heat').setAttribute('href', heatUrl);
+  const toggle = $('heat-toggle');
+  toggle.disabled = !heatUrl;
+  toggle.parentElement.title = heatUrl ? '' : 'This batch was made without the heat map (its artifacts field).';
   $('layer-outline').removeAttribute('href');
-  drawOutline(maskUrl, w, h, frame);
+  if (maskUrl) drawOutline(maskUrl, w, h, frame);
   applyLayers();
   const title = (state.dropped ? 'Dropped frame ' : (state.index + 1) + ' of ' + state.frames.length + ': ') + frame.frameId +
     ' · frame score ' + fmtScore(frame.frameScore) + ' · threshold ' + fmtScore(frame.threshold) + ' · ' + frame.regions.length +
@@ -419,7 +424,7 @@ function drawOutline(maskUrl, w, h, frame) {
 }
 
 function applyLayers() {
-  const heatOn = $('heat-toggle').checked;
+  const heatOn = $('heat-toggle').checked && !$('heat-toggle').disabled;
   const heat = $('layer-heat');
   heat.style.display = heatOn ? '' : 'none';
   heat.setAttribute('opacity', String($('heat-opacity').value / 100));
@@ -523,7 +528,7 @@ function renderRegionTable() {
   body.replaceChildren();
   if (!state.frame) return;
   for (const r of state.frame.order) {
-    const cls = classCell(r.classBeneath);
+    const cls = classCell(r.classBeneathName || String(r.classBeneath));
     const tr = el('tr', { 'data-region': String(r.id) }, [
       el('td', { text: String(r.id) }),
       el('td', { class: 'num', text: fmtScore(r.maxScore) }),
@@ -837,7 +842,7 @@ function renderTrackTable() {
   body.replaceChildren();
   for (const t of state.recording.tracks) {
     const d = effectiveTrackDecision(t);
-    const cls = classCell(t.classBeneath);
+    const cls = classCell(t.classBeneathName || String(t.classBeneath));
     const tr = el('tr', { 'data-track': String(t.id) }, [
       el('td', { text: String(t.id) }),
       el('td', { class: 'num', text: fmtTime(t.firstTime) + '–' + fmtTime(t.lastTime) }),
@@ -873,7 +878,7 @@ async function renderTrackDetail() {
     ['Frames seen', String(t.framesSeen)],
     ['Highest score', fmtScore(t.maxScore) + ' at ' + fmtTime(t.bestTime)],
     ['Mean score', fmtScore(t.meanScore)],
-    ['Class beneath', t.classBeneath],
+    ['Class beneath', t.classBeneathName],
     ['Decision', now ? VERDICT_TEXT[now.verdict] + (now === own ? ' (on the track)' : ' (on its region, written later)') : 'none'],
   ];
   if (own && region && now === own) rows.push(['Region decision', VERDICT_TEXT[region.verdict] + ' (earlier; the track decision wins)']);
@@ -1071,7 +1076,7 @@ async function scoreDropped(file) {
       decision: null,
       regions: report.regions.map((r) => ({
         id: r.id, box: r.box, area: r.area, maxScore: r.maxScore, meanScore: r.meanScore,
-        classBeneath: r.classBeneathName || String(r.classBeneath), onSurface: r.onSurface, decision: null,
+        classBeneath: r.classBeneath, classBeneathName: r.classBeneathName, onSurface: r.onSurface, decision: null,
       })),
     }, sourceUrl, heat, mask);
     setStatus('Scored ' + file.name + ' with ' + model + '.');

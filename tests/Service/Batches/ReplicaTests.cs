@@ -55,7 +55,8 @@ public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFl
             var names = WriteFrames(Path.Combine(fleet.Data, folder), 16, seed: round, width: Small, height: Small / 2);
             var live = await fleet.LiveAsync(3);
             using var client = live[0].Client();
-            await PostFolderAsync(client, folder, batchId: id);
+            // Every artifact, as batches wrote before the lean default: frames long enough to catch a replica holding one.
+            await PostFolderAsync(client, folder, batchId: id, artifacts: "all");
             await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 3, TimeSpan.FromSeconds(60));
 
             // The victim: a replica holding a claim right now (the others keep scoring). It is frozen before its claims

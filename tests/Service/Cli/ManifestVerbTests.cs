@@ -40,7 +40,7 @@ public sealed class ManifestVerbTests : IDisposable
         for (int seq = 1; seq <= 3; seq++)
         {
             var start = store.ClaimNextFrame("night", "seed", TimeSpan.FromMinutes(1))!;
-            var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], "pavement", true, [[4, 4], [11, 4], [11, 9]]);
+            var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], 0, "pavement", true, [[4, 4], [11, 4], [11, 9]]);
             store.CompleteFrame(start, new FrameResult(scores[seq - 1], 1, $"frames/{start.Seq:D5}/report.json", Manifest.RegionsJson([region])));
         }
         database.Decisions.Decide("night", 2, 1, Verdicts.LabelIt, "chock left behind", "tester");

@@ -84,7 +84,7 @@ public sealed class TrackDecisionApiTests(TrackDecisionApiTests.SharedKit shared
             foreach (string f in new[] { "firstTime", "lastTime", "bestTime" }) Assert.Equal(k.GetProperty(f).GetDouble(), t.GetProperty(f).GetDouble());
             foreach (string f in new[] { "framesSeen" }) Assert.Equal(k.GetProperty(f).GetInt32(), t.GetProperty(f).GetInt32());
             foreach (string f in new[] { "maxScore", "meanScore" }) Assert.Equal(k.GetProperty(f).GetSingle(), t.GetProperty(f).GetSingle());
-            Assert.Equal(k.GetProperty("classBeneathName").GetString(), t.GetProperty("classBeneath").GetString());
+            Assert.Equal(k.GetProperty("classBeneathName").GetString(), t.GetProperty("classBeneathName").GetString());
         }
         var first = rec.GetProperty("tracks")[0];
         var png = await kit.Http.GetAsync(first.GetProperty("best").GetString());

@@ -75,7 +75,7 @@ public sealed class TrackTimelineTests(BrowserFixture browser, ITestOutputHelper
         await Expect(facts).ToContainTextAsync("Frames seen" + tracks[0].GetProperty("framesSeen").GetInt32());
         await Expect(facts).ToContainTextAsync("Highest score" + tracks[0].GetProperty("maxScore").GetSingle().ToString("F2", CultureInfo.InvariantCulture));
         await Expect(facts).ToContainTextAsync("Mean score" + tracks[0].GetProperty("meanScore").GetSingle().ToString("F2", CultureInfo.InvariantCulture));
-        await Expect(facts).ToContainTextAsync("Class beneath" + tracks[0].GetProperty("classBeneath").GetString());
+        await Expect(facts).ToContainTextAsync("Class beneath" + tracks[0].GetProperty("classBeneathName").GetString());
         await Expect(facts).ToContainTextAsync("First seen" + tracks[0].GetProperty("firstTime").GetDouble().ToString("F2", CultureInfo.InvariantCulture) + " s");
         await Expect(page.Locator("#track-table tr.selected")).ToHaveAttributeAsync("data-track", first.ToString(CultureInfo.InvariantCulture));
 

@@ -29,7 +29,7 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
     private static NewFrame[] Frames(int n) => Enumerable.Range(1, n).Select(i => new NewFrame($"f{i:D3}.png", $"x/f{i:D3}.png")).ToArray();
 
     private static ManifestRegion Region(int id, string beneath, float max) =>
-        new(id, new BoxReport(0, 0, 2, 2), 4, max - 1, max, beneath, false, [[0, 0], [1, 0], [1, 1]]);
+        new(id, new BoxReport(0, 0, 2, 2), 4, max - 1, max, 0, beneath, false, [[0, 0], [1, 0], [1, 1]]);
 
     private static FrameResult Result(FrameClaim c, float score = 1f, params ManifestRegion[] regions) =>
         new(score, regions.Length, $"frames/{c.Seq:D5}/report.json", Manifest.RegionsJson(regions));
@@ -161,7 +161,7 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
             Assert.True(s.CompleteFrame(c, Result(c, 3f, r)));
         }
         Assert.Equal([(1, 1, "apron", 4f), (1, 2, "grass", float.PositiveInfinity), (3, 1, "apron", 2.5f)],
-            s.RegionBriefs("b").Select(b => (b.Seq, b.Region, b.ClassBeneath, b.MaxScore)));
+            s.RegionBriefs("b").Select(b => (b.Seq, b.Region, b.ClassBeneathName, b.MaxScore)));
         Assert.Equal([(1, 2), (2, 0), (3, 1)], s.FrameSummaries("b").Select(f => (f.Seq, f.RegionCount ?? -1)));
     }
 
