@@ -12,6 +12,8 @@ public static class ScoringErrorCodes
     public const string LogitsShape = "logits-shape";
     public const string LogitsNonFinite = "logits-non-finite";
     public const string FrameSize = "frame-size";
+    /// <summary>Logits whose aspect ratio disagrees with the frame's (height and width swapped?).</summary>
+    public const string LogitsAspect = "logits-aspect";
     public const string NpyFormat = "npy-format";
     public const string StatisticsMismatch = "statistics-mismatch";
     public const string StatisticsFormat = "statistics-format";

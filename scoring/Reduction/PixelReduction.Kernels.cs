@@ -8,10 +8,51 @@ namespace Strayspot.Scoring.Reduction;
 
 public sealed unsafe partial class PixelReduction
 {
-    /// <summary>Equal sizes: read the logits planes directly, one vector of pixels at a time with the classes inner.</summary>
+    /// <summary>
+    /// Equal sizes without softmax outputs: two vectors of pixels at a time, classes inner with max and argmax in
+    /// registers (strictly greater replaces, so the lowest index wins ties; NaN never replaces, as in
+    /// <see cref="ReduceBlock"/>). The finiteness check rides along: v − v is 0 for every finite v and NaN for NaN
+    /// and ±∞, so a NaN sum flags the frame without a second read of the logits.
+    /// </summary>
     // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void RunIdentityRows(Job job, Worker worker, int y0, int y1)
+    {
+        if (_needSoftmax)
+        {
+            RunIdentityRowsSoftmax(job, worker, y0, y1);
+            return;
+        }
+        var o = new RowOut(worker);
+        int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
+        nint plane = (nint)job.InHeight * job.InWidth;
+        var seen = Vector<float>.Zero;
+        for (int y = y0; y < y1; y++)
+        {
+            float* row = job.Source + (nint)y * width;
+            int x = 0;
+            for (; x + 2 * lanes <= width; x += 2 * lanes)
+                ReducePair(row + x, null, 1f, 0f, lanes, plane, c, o, x, blend: false, check: true, ref seen);
+            // The rest of the row: single blocks, the last one overlapping its neighbour instead of reading past the row.
+            for (; x < width; x += lanes)
+            {
+                int xs = Math.Min(x, width - lanes);
+                ReduceBlock(row + xs, null, 1f, 0f, plane, c, o, xs, blend: false);
+                for (int ch = 0; ch < c; ch++)
+                {
+                    var v = Vector.Load(row + ch * plane + xs);
+                    seen += v - v;
+                }
+            }
+            FlushRow(job, o, y, 0, width);
+        }
+        if (!Vector.EqualsAll(seen, Vector<float>.Zero)) Volatile.Write(ref job.NonFinite, 1);
+    }
+
+    /// <summary>Equal sizes with softmax outputs: one vector of pixels at a time with the classes inner.</summary>
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private void RunIdentityRowsSoftmax(Job job, Worker worker, int y0, int y1)
     {
         var o = new RowOut(worker);
         int c = job.Channels, width = job.Width, lanes = Vector<float>.Count;
@@ -49,6 +90,7 @@ public sealed unsafe partial class PixelReduction
         int c = job.Channels, lanes = Vector<float>.Count;
         int blocks = (job.Width + lanes - 1) / lanes;
         nint blockStride = (nint)c * lanes;
+        var unused = Vector<float>.Zero;
         for (int tile = 0; tile < blocks; tile += job.TileBlocks)
         {
             int tileBlocks = Math.Min(job.TileBlocks, blocks - tile);
@@ -64,7 +106,7 @@ public sealed unsafe partial class PixelReduction
                     int b = 0;
                     if (!_needSoftmax)
                         for (; b + 1 < tileBlocks; b += 2)
-                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, c, o, (tile + b) * lanes, blend: false);
+                            ReducePair(pa + b * blockStride, null, 1f, 0f, blockStride, lanes, c, o, (tile + b) * lanes, blend: false, check: false, ref unused);
                     for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, null, 1f, 0f, lanes, c, o, (tile + b) * lanes, blend: false);
                 }
@@ -74,7 +116,7 @@ public sealed unsafe partial class PixelReduction
                     int b = 0;
                     if (!_needSoftmax)
                         for (; b + 1 < tileBlocks; b += 2)
-                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, c, o, (tile + b) * lanes, blend: true);
+                            ReducePair(pa + b * blockStride, pb + b * blockStride, wa, wb, blockStride, lanes, c, o, (tile + b) * lanes, blend: true, check: false, ref unused);
                     for (; b < tileBlocks; b++)
                         ReduceBlock(pa + b * blockStride, pb + b * blockStride, wa, wb, lanes, c, o, (tile + b) * lanes, blend: true);
                 }
@@ -213,11 +255,14 @@ public sealed unsafe partial class PixelReduction
     }
 
     /// <summary>
-    /// Two neighbouring blocks of the cached layout at once (class and max logit only): shares the loop and the class
-    /// counter between two independent dependency chains, which keeps more loads in flight.
+    /// Two blocks <paramref name="pairOffset"/> apart at once (class and max logit only): shares the loop and the class
+    /// counter between two independent dependency chains, which keeps more loads in flight. With
+    /// <paramref name="check"/> (unblended only) every value read is also added to <paramref name="seen"/> as v − v,
+    /// which stays 0 for finite values and turns NaN on a NaN or infinite one.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
-    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, int classes, in RowOut o, int x, bool blend)
+    private static void ReducePair(float* a, float* b, float wa, float wb, nint pairOffset, nint classStride, int classes, in RowOut o, int x,
+        bool blend, bool check, ref Vector<float> seen)
     {
         int lanes = Vector<float>.Count;
         var one = Vector<float>.One;
@@ -229,12 +274,14 @@ public sealed unsafe partial class PixelReduction
         {
             max0 = Vector.Load(a);
             max1 = Vector.Load(a + pairOffset);
+            if (check) seen += (max0 - max0) + (max1 - max1);
             float* pa = a;
             for (int c = 1; c < classes; c++)
             {
-                pa += lanes;
+                pa += classStride;
                 var v0 = Vector.Load(pa);
                 var v1 = Vector.Load(pa + pairOffset);
+                if (check) seen += (v0 - v0) + (v1 - v1);
                 index += one;
                 var g0 = Vector.GreaterThan(v0, max0);
                 var g1 = Vector.GreaterThan(v1, max1);
@@ -253,8 +300,8 @@ public sealed unsafe partial class PixelReduction
             float* pa = a, pb = b;
             for (int c = 1; c < classes; c++)
             {
-                pa += lanes;
-                pb += lanes;
+                pa += classStride;
+                pb += classStride;
                 var v0 = Vector.FusedMultiplyAdd(Vector.Load(pa), va, Vector.Load(pb) * vb);
                 var v1 = Vector.FusedMultiplyAdd(Vector.Load(pa + pairOffset), va, Vector.Load(pb + pairOffset) * vb);
                 index += one;

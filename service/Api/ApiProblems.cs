@@ -21,6 +21,13 @@ public static class ApiProblems
 
     public static ProblemHttpResult ModelNotFound(string model) =>
         Create(ErrorCodes.ModelNotFound, $"No model named '{model}' is installed; GET /v1/models lists the installed ones.");
+
+    /// <summary>A model that failed to load: a stale calibration keeps its own code (422, the user recalibrates), anything else is 503.</summary>
+    public static ProblemHttpResult Unusable(Hosting.CatalogEntry entry) =>
+        Create(UnusableCode(entry), $"Model '{entry.Name}' cannot be used: {entry.Error}");
+
+    public static string UnusableCode(Hosting.CatalogEntry entry) =>
+        entry.ErrorCode == Models.ModelErrorCodes.CalibrationModelMismatch ? entry.ErrorCode : ErrorCodes.ModelUnavailable;
 }
 
 /// <summary>Reading an uploaded multipart form, with the same refusals on every endpoint that takes one.</summary>

@@ -8,7 +8,8 @@ public static class ArtifactsApi
 {
     public static void MapArtifactsApi(this RouteGroupBuilder v1)
     {
-        v1.MapGet("/frames/{frameId}/{artifact}", Results<PhysicalFileHttpResult, ProblemHttpResult> (string frameId, string artifact, ArtifactStore store) =>
+        var frames = v1.MapGroup("/frames").WithTags("Frames");
+        frames.MapGet("/{frameId}/{artifact}", Results<PhysicalFileHttpResult, ProblemHttpResult> (string frameId, string artifact, ArtifactStore store) =>
             {
                 if (!ArtifactStore.Files.ContainsKey(artifact))
                     return ApiProblems.Create(ErrorCodes.ArtifactNotFound,
@@ -19,7 +20,6 @@ public static class ArtifactsApi
                         $"Frame '{frameId}' has no '{artifact}' artifact: it was not requested, or it expired after {store.Retention}.");
                 return TypedResults.PhysicalFile(path, ArtifactStore.ContentType(artifact), Path.GetFileName(path));
             })
-            .WithTags("Frames")
             .WithName("GetFrameArtifact")
             .WithSummary("Downloads one artifact of a scored frame (classes, mask, heat, overlay: PNG; score: NPY float32).")
             .ProducesProblem(StatusCodes.Status404NotFound);

@@ -3,6 +3,7 @@ using System.Text.Json.Serialization;
 using Microsoft.AspNetCore.Http.HttpResults;
 using Strayspot.Service.Batches;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Review;
 
 namespace Strayspot.Service.Api;
 
@@ -11,7 +12,8 @@ public sealed record BatchRequest(
     [property: JsonPropertyName("model")] string? Model,
     [property: JsonPropertyName("folder")] string? Folder,
     [property: JsonPropertyName("batchId")] string? BatchId,
-    [property: JsonPropertyName("callbackUrl")] string? CallbackUrl);
+    [property: JsonPropertyName("callbackUrl")] string? CallbackUrl,
+    [property: JsonPropertyName("artifacts")] string? Artifacts = null);
 
 public sealed record BatchSubmitted(
     [property: JsonPropertyName("batch")] BatchView Batch,
@@ -27,7 +29,7 @@ public static class BatchesApi
 {
     private static readonly JsonSerializerOptions RequestJson = new(JsonSerializerDefaults.Web);
     public const string ArchivePart = "file";
-    private static readonly string[] ArchiveFields = ["model", "batchId", "callbackUrl"];
+    private static readonly string[] ArchiveFields = ["model", "batchId", "callbackUrl", "artifacts"];
 
     /// <summary>The batch store, worker and callback sender (settings: section Service:Batches).</summary>
     public static void AddServices(IServiceCollection services, IConfiguration configuration)
@@ -48,8 +50,12 @@ public static class BatchesApi
 
         group.MapPost("", SubmitAsync)
             .WithName("SubmitBatch")
-            .WithSummary("Queues a batch: JSON {model, folder, batchId?, callbackUrl?} for a folder under the data folder, or multipart " +
-                         "(fields model, batchId?, callbackUrl?, file: .zip/.tar). Re-submitting a batch id adds only frames it lacks.")
+            .WithSummary("Queues a batch: JSON {model, folder, batchId?, callbackUrl?, artifacts?} for a folder under the data folder, or multipart " +
+                         "(fields model, batchId?, callbackUrl?, artifacts?, file: .zip/.tar). Re-submitting a batch id adds only frames it lacks.")
+            .WithDescription("artifacts: what each frame gets besides report.json, as score --artifacts takes it: a comma list of " +
+                             string.Join(", ", Rendering.ArtifactWriter.All) + ", or all or none; default " + string.Join(",", Rendering.ArtifactChoice.Lean) +
+                             ". Artifacts not asked for are not written. A model whose scoring profile cannot run (sml without class statistics, " +
+                             "a method that needs logits on a probabilities model, a calibration of other preprocessing) is refused here, before anything is stored.")
             .Accepts<BatchRequest>("application/json", "multipart/form-data")
             .ProducesProblem(400).ProducesProblem(404).ProducesProblem(409).ProducesProblem(413).ProducesProblem(415);
 
@@ -80,7 +86,7 @@ public static class BatchesApi
                 }
                 if (!Review.Verdicts.IsKnown(verdict))
                     return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Review.Verdicts.All)}; got '{verdict}'.");
-                var lines = Manifest.Lines(batches.BatchFolder(id), b, batches.Store.Frames(id), batches.Decisions.Current(id), verdict);
+                var lines = Manifest.Lines(batches.BatchFolder(id), b, batches.Store.Frames(id), batches.Decisions.Effective(id), verdict);
                 using var buffer = new MemoryStream();
                 Manifest.WriteTo(buffer, lines);
                 return TypedResults.Bytes(buffer.ToArray(), Manifest.ContentType);
@@ -113,7 +119,7 @@ public static class BatchesApi
             catch (JsonException e) { return ApiProblems.Create(ErrorCodes.BadRequest, $"The body is not valid JSON: {e.Message}"); }
             if (body is null || string.IsNullOrWhiteSpace(body.Folder))
                 return ApiProblems.Create(ErrorCodes.ValidationFailed, "Give 'model' and 'folder' (relative to the data folder), or upload an archive as multipart.");
-            result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl));
+            result = batches.SubmitFolder(body.Model ?? "", body.Folder, Blank(body.BatchId), Blank(body.CallbackUrl), Blank(body.Artifacts));
         }
         else if (request.HasFormContentType)
         {
@@ -126,7 +132,7 @@ public static class BatchesApi
             {
                 await using (var target = File.Create(upload)) await file.CopyToAsync(target, ct);
                 result = batches.SubmitArchive(form["model"].ToString(), upload, file.FileName, Blank(form["batchId"].ToString()),
-                    Blank(form["callbackUrl"].ToString()));
+                    Blank(form["callbackUrl"].ToString()), Blank(form["artifacts"].ToString()));
             }
             finally
             {

@@ -18,8 +18,9 @@ public static class CalibrationsApi
 {
     public static void MapCalibrationsApi(this RouteGroupBuilder v1)
     {
-        v1.MapPost("/models/{model}/calibrations", Start)
-            .WithTags("Calibrations")
+        var ofModel = v1.MapGroup("/models/{model}/calibrations").WithTags("Calibrations");
+        var calibrations = v1.MapGroup("/calibrations").WithTags("Calibrations");
+        ofModel.MapPost("", Start)
             .WithSummary("Starts measuring the model's per-class max-logit statistics over a folder of ordinary frames.")
             .RequireAuthorization(ApiPolicies.Admin)
             .Produces<CalibrationJob>(StatusCodes.Status202Accepted)
@@ -28,18 +29,16 @@ public static class CalibrationsApi
             .ProducesProblem(StatusCodes.Status404NotFound)
             .ProducesProblem(StatusCodes.Status413PayloadTooLarge)
             .DisableAntiforgery();
-        v1.MapGet("/calibrations", (CalibrationJobs jobs) => TypedResults.Ok(jobs.List())).WithTags("Calibrations");
-        v1.MapGet("/calibrations/{id}", Results<Ok<CalibrationJob>, ProblemHttpResult> (string id, CalibrationJobs jobs) =>
-                jobs.TryGet(id, out var job) ? TypedResults.Ok(job) : JobNotFound(id))
-            .WithTags("Calibrations");
-        v1.MapPost("/calibrations/{id}/activate", Results<Ok<CalibrationJob>, ProblemHttpResult> (string id, CalibrationJobs jobs) =>
+        calibrations.MapGet("", (CalibrationJobs jobs) => TypedResults.Ok(jobs.List()));
+        calibrations.MapGet("/{id}", Results<Ok<CalibrationJob>, ProblemHttpResult> (string id, CalibrationJobs jobs) =>
+                jobs.TryGet(id, out var job) ? TypedResults.Ok(job) : JobNotFound(id));
+        calibrations.MapPost("/{id}/activate", Results<Ok<CalibrationJob>, ProblemHttpResult> (string id, CalibrationJobs jobs) =>
             {
                 if (!jobs.TryGet(id, out var job)) return JobNotFound(id);
                 if (job.State is not ("done" or "activated"))
                     return ApiProblems.Create(ErrorCodes.JobNotFinished, $"Calibration {id} is {job.State}; activate it once it is done.");
                 return TypedResults.Ok(jobs.Activate(job));
             })
-            .WithTags("Calibrations")
             .WithSummary("Makes a finished calibration the model's own (writes calibration.json and reloads).")
             .RequireAuthorization(ApiPolicies.Admin);
     }

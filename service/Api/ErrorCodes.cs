@@ -46,6 +46,8 @@ public static class ErrorCodes
     public const string FrameNotScored = Review.ReviewErrorCodes.FrameNotScored;
     public const string RegionNotFound = Review.ReviewErrorCodes.RegionNotFound;
     public const string NoteTooLong = Review.ReviewErrorCodes.NoteTooLong;
+    public const string TrackNotFound = Review.ReviewErrorCodes.TrackNotFound;
+    public const string NotARecording = Review.ReviewErrorCodes.NotARecording;
     public const string FormInvalid = "form-invalid";
 
     private static readonly ErrorCode[] Rows =
@@ -69,6 +71,8 @@ public static class ErrorCodes
         new(FolderNotFound, 404, "No such folder in the data folder"),
         new(FrameNotFound, 404, "No such frame in the batch"),
         new(RegionNotFound, 404, "No such region in the frame"),
+        new(TrackNotFound, 404, "No such kept track in the recording"),
+        new(NotARecording, 409, "The frame is not a recording, so it has no tracks"),
         new(FrameNotScored, 409, "The frame has not been scored"),
         new(BatchConflict, 409, "The batch exists with other settings or is finished"),
         new(MethodNotAllowed, 405, "Method not allowed on this resource"),
@@ -88,6 +92,7 @@ public static class ErrorCodes
         new(ScoringErrorCodes.LogitsShape, 400, "The logits have an unusable shape"),
         new(ScoringErrorCodes.LogitsNonFinite, 400, "The logits contain NaN or infinite values"),
         new(ScoringErrorCodes.FrameSize, 400, "The frame size is invalid"),
+        new(ScoringErrorCodes.LogitsAspect, 400, "The logits' shape disagrees with the frame's"),
         new(ScoringErrorCodes.Options, 400, "The scoring options are invalid"),
         new(ScoringErrorCodes.StatisticsMismatch, 422, "The class statistics do not fit the logits"),
         new(ScoringErrorCodes.StatisticsFormat, 422, "The class statistics are invalid"),

@@ -17,17 +17,17 @@ public static class EvaluationsApi
 {
     public static void MapEvaluationsApi(this RouteGroupBuilder v1)
     {
-        v1.MapPost("/models/{model}/evaluations", Start)
-            .WithTags("Evaluations")
+        var ofModel = v1.MapGroup("/models/{model}/evaluations").WithTags("Evaluations");
+        var evaluations = v1.MapGroup("/evaluations").WithTags("Evaluations");
+        ofModel.MapPost("", Start)
             .WithSummary("Measures all seven scoring methods on a labeled dataset and recommends a threshold.")
             .Produces<EvaluationJob>(StatusCodes.Status202Accepted)
             .ProducesProblem(StatusCodes.Status400BadRequest)
             .ProducesProblem(StatusCodes.Status404NotFound);
-        v1.MapGet("/evaluations", (EvaluationJobs jobs) => TypedResults.Ok(jobs.List())).WithTags("Evaluations");
-        v1.MapGet("/evaluations/{id}", Results<Ok<EvaluationJob>, ProblemHttpResult> (string id, EvaluationJobs jobs) =>
-                jobs.TryGet(id, out var job) ? TypedResults.Ok(job) : JobNotFound(id))
-            .WithTags("Evaluations");
-        v1.MapGet("/evaluations/{id}/files/{name}", Results<PhysicalFileHttpResult, ProblemHttpResult> (string id, string name, EvaluationJobs jobs) =>
+        evaluations.MapGet("", (EvaluationJobs jobs) => TypedResults.Ok(jobs.List()));
+        evaluations.MapGet("/{id}", Results<Ok<EvaluationJob>, ProblemHttpResult> (string id, EvaluationJobs jobs) =>
+                jobs.TryGet(id, out var job) ? TypedResults.Ok(job) : JobNotFound(id));
+        evaluations.MapGet("/{id}/files/{name}", Results<PhysicalFileHttpResult, ProblemHttpResult> (string id, string name, EvaluationJobs jobs) =>
             {
                 if (!jobs.TryGet(id, out var job)) return JobNotFound(id);
                 if (job.State != "done")
@@ -35,8 +35,7 @@ public static class EvaluationsApi
                 return jobs.FileOf(job, name) is { } path
                     ? TypedResults.PhysicalFile(path, ContentTypes.Of(path))
                     : ApiProblems.Create(ErrorCodes.NotFound, $"Evaluation {id} has no file '{name}'; its files are {string.Join(", ", EvaluationJobs.OutputFiles)}.");
-            })
-            .WithTags("Evaluations");
+            });
     }
 
     private static Results<Accepted<EvaluationJob>, ProblemHttpResult> Start(string model, EvaluationRequest request,

@@ -25,8 +25,8 @@ public static class ImageFramesApi
 
     public static void MapImageFramesApi(this RouteGroupBuilder v1)
     {
-        v1.MapPost("/models/{model}/frames", Score)
-            .WithTags("Frames")
+        v1.MapGroup("/models/{model}/frames").WithTags("Frames")
+            .MapPost("", Score)
             .WithName("ScoreFrame")
             .WithSummary("Runs the model on one camera frame and scores it.")
             .WithDescription(
@@ -52,7 +52,7 @@ public static class ImageFramesApi
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
-            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            return ApiProblems.Unusable(entry);
         if (!ModelSessions.HasOnnx(entry))
             return ApiProblems.Create(ErrorCodes.ModelUnavailable,
                 $"Model '{model}' has no {SegmentationModel.ModelFileName}; send logits to /v1/models/{model}/logits instead.");
@@ -74,22 +74,22 @@ public static class ImageFramesApi
             return ApiProblems.Create(ModelErrorCodes.MethodNeedsLogits,
                 $"Model '{model}' outputs probabilities (output.kind), so only the msp and entropy methods are defined for it.");
 
-        byte[] bytes;
-        using (var buffer = new MemoryStream((int)Math.Min(file.Length, int.MaxValue)))
-        {
-            await file.CopyToAsync(buffer, ct);
-            bytes = buffer.ToArray();
-        }
-        var (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
-        var writer = new FrameFolderWriter(lease.Version);
-
+        // One pooled copy of the upload (the form keeps its own): returned once the frame is decoded or refused.
+        int length = (int)Math.Min(file.Length, int.MaxValue);
+        byte[] bytes = System.Buffers.ArrayPool<byte>.Shared.Rent(Math.Max(1, length));
+        string frameId;
+        string? folder;
         FrameReport report;
         try
         {
+            await using (var upload = file.OpenReadStream())
+                await upload.ReadExactlyAsync(bytes.AsMemory(0, length), ct);
+            (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
+            var writer = new FrameFolderWriter(lease.Version);
             report = await lane.RunAsync(token =>
             {
                 long t0 = System.Diagnostics.Stopwatch.GetTimestamp();
-                using var frame = decoder.Decode(new MemoryStream(bytes, 0, bytes.Length, writable: false, publiclyVisible: true), FramePart);
+                using var frame = decoder.Decode(new MemoryStream(bytes, 0, length, writable: false, publiclyVisible: true), FramePart);
                 metrics.Stage("decode", System.Diagnostics.Stopwatch.GetElapsedTime(t0));
                 return runner.Score(lease, frame, req.Options, (scored, timings) =>
                 {
@@ -105,6 +105,10 @@ public static class ImageFramesApi
         {
             metrics.Refused();
             throw;
+        }
+        finally
+        {
+            System.Buffers.ArrayPool<byte>.Shared.Return(bytes);
         }
 
         report = report with { Artifacts = req.Artifacts.ToDictionary(a => a, a => $"/v1/frames/{frameId}/{a}") };

@@ -29,7 +29,7 @@ public class ScoringFields
     /// <summary>ISO 8601.</summary>
     public DateTimeOffset? CaptureTime { get; set; }
     public string? RigId { get; set; }
-    /// <summary>Comma list of classes, mask, heat, overlay (frames only), score (NPY), or none; default classes,mask,heat.</summary>
+    /// <summary>Comma list of classes, mask, heat, overlay (frames only), score (NPY), score16, or all or none; default classes,mask,heat.</summary>
     public string? Artifacts { get; set; }
 }
 
@@ -41,6 +41,8 @@ public sealed class LogitsUpload : ScoringFields
     /// <summary>Frame width the logits are resized to; default the logits' width. Give with frameHeight.</summary>
     public int? FrameWidth { get; set; }
     public int? FrameHeight { get; set; }
+    /// <summary>on: accept logits whose aspect ratio differs from the frame's (they are stretched onto it); default off, refused with logits-aspect.</summary>
+    public string? Stretch { get; set; }
 }
 
 /// <summary>Scores logits a client computed with its own copy of the model.</summary>
@@ -81,13 +83,15 @@ public static class LogitsApi
     public static void MapLogitsApi(this RouteGroupBuilder v1)
     {
         SchemaExamples.Register<ScoredFrame>(() => System.Text.Json.Nodes.JsonNode.Parse(Example)!);
-        v1.MapPost("/models/{model}/logits", Score)
-            .WithTags("Frames")
+        v1.MapGroup("/models/{model}/logits").WithTags("Frames")
+            .MapPost("", Score)
             .WithName("ScoreLogits")
             .WithSummary("Scores one frame's logits with the model's class statistics and scoring profile.")
             .WithDescription(
                 "Multipart form: file part `logits` (float32 NPY, [C,h,w] or [1,C,h,w]) and optional fields. " +
-                "Fields override the model's scoring profile for this frame only. The answer is the frame report " +
+                "Fields override the model's scoring profile for this frame only. Logits whose aspect ratio disagrees with " +
+                "frameWidth × frameHeight beyond rounding and padding (height and width swapped?) are refused with 400 logits-aspect " +
+                "unless stretch=on. The answer is the frame report " +
                 "with links to the requested artifacts under /v1/frames/{frameId}/. Frames beyond the service's " +
                 "queue get 429 with Retry-After. Scores are triage evidence, not a safety decision.")
             .DisableAntiforgery()
@@ -109,7 +113,7 @@ public static class LogitsApi
         var received = time.GetUtcNow();
         if (!catalog.TryGet(model, out var entry)) return ApiProblems.ModelNotFound(model);
         if (!entry.IsUsable)
-            return ApiProblems.Create(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            return ApiProblems.Unusable(entry);
         var (form, problem) = await UploadForm.ReadAsync(request, ScoringForm.LogitsPart, "float32 NPY logits", ScoringForm.FieldsFor(ScoringForm.LogitsPart), ct);
         if (form is null) return problem!;
 
@@ -143,6 +147,8 @@ public static class LogitsApi
         entry.Statistics?.EnsureClassCount(logits.Channels);
 
         int frameWidth = req.FrameWidth ?? logits.Width, frameHeight = req.FrameHeight ?? logits.Height;
+        if (!req.Stretch)
+            LogitsAspect.EnsureAgrees(logits.Height, logits.Width, frameHeight, frameWidth, "frameWidth and frameHeight give the frame's size", "the field stretch=on");
         if ((long)frameWidth * frameHeight > options.Value.MaxPixels)
             return ApiProblems.Validation(new Dictionary<string, string[]>
             {

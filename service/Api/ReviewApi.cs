@@ -75,11 +75,39 @@ public static class ReviewApi
             .WithSummary("Withdraws the decision on one region (kept in the decision log).")
             .Produces(204).ProducesProblem(404).ProducesProblem(409);
 
+        group.MapGet("/frames/{seq:int}/recording", (string id, int seq, BatchReview review) => Answer(() => TypedResults.Ok(review.Recording(id, seq))))
+            .WithName("GetBatchRecording")
+            .WithSummary("A recording (video) of the batch for its timeline: sampled frames' times and frame scores, the threshold, " +
+                         "its kept tracks with their facts and decisions, and the ranked time segments.")
+            .Produces<ReviewRecording>().ProducesProblem(404).ProducesProblem(409);
+
+        group.MapGet("/frames/{seq:int}/tracks/{track:int}/best", (string id, int seq, int track, BatchReview review) =>
+                Answer(() => TypedResults.PhysicalFile(review.TrackImage(id, seq, track), "image/png")))
+            .WithName("GetBatchTrackBestFrame")
+            .WithSummary("The best frame of a kept track (its highest region score) with the overlay, as PNG.")
+            .ProducesProblem(404).ProducesProblem(409);
+
+        group.MapPut("/frames/{seq:int}/tracks/{track:int}/decision",
+                (string id, int seq, int track, DecisionRequest body, HttpContext http, BatchReview review) => Answer(() =>
+                    TypedResults.Ok(review.DecideTrack(id, seq, track, body.Verdict, body.Note, Reviewer(http, body)))))
+            .WithName("DecideTrack")
+            .WithSummary("Records the decision on a whole kept track of a recording (label-it, false-alarm or unsure, with an optional note). " +
+                         "It is logged once and lands on every region of the track in the manifest; where a region has its own decision, the later write wins.")
+            .Produces<Decision>().ProducesProblem(400).ProducesProblem(404).ProducesProblem(409);
+
+        group.MapDelete("/frames/{seq:int}/tracks/{track:int}/decision", (string id, int seq, int track, HttpContext http, BatchReview review) =>
+                Answer(() => review.WithdrawTrack(id, seq, track, KeyName(http))
+                    ? TypedResults.NoContent()
+                    : ApiProblems.Create(ErrorCodes.NotFound, $"Track {track} of recording {seq} has no decision to withdraw.")))
+            .WithName("WithdrawTrackDecision")
+            .WithSummary("Withdraws the decision on a track (kept in the decision log).")
+            .Produces(204).ProducesProblem(404).ProducesProblem(409);
+
         group.MapGet("/decisions", (string id, string? verdict, BatchReview review) =>
                 Answer(() => TypedResults.Ok(new DecisionList(id, review.Decisions(id, verdict)))))
             .WithName("GetBatchDecisions")
             .WithSummary("The current decisions of a batch (?verdict=label-it for only those to send to labeling). " +
-                         "A decision with region null is on the whole frame.")
+                         "A decision with region null is on the whole frame; a region decided through its track carries that track's number in 'track'.")
             .Produces<DecisionList>().ProducesProblem(400).ProducesProblem(404);
 
         group.MapGet("/decisions/log", (string id, long? after, int? limit, BatchReview review) =>
@@ -90,12 +118,16 @@ public static class ReviewApi
     }
 
     private static IResult Decide(BatchReview review, HttpContext http, string id, int seq, int? region, DecisionRequest body) => Answer(() =>
+        TypedResults.Ok(review.Decide(id, seq, region, body.Verdict, body.Note, Reviewer(http, body))));
+
+    /// <summary>Who decides: the body's reviewer when given (checked), else the key's name.</summary>
+    private static string? Reviewer(HttpContext http, DecisionRequest body)
     {
         string? reviewer = string.IsNullOrWhiteSpace(body.Reviewer) ? null : body.Reviewer.Trim();
         if (reviewer is not null && (reviewer.Length > MaxReviewerLength || reviewer.Any(char.IsControl)))
             throw new ReviewException(ErrorCodes.ValidationFailed, $"'reviewer' must be at most {MaxReviewerLength} printable characters.");
-        return TypedResults.Ok(review.Decide(id, seq, region, body.Verdict, body.Note, reviewer ?? KeyName(http)));
-    });
+        return reviewer ?? KeyName(http);
+    }
 
     private static IResult Withdraw(BatchReview review, HttpContext http, string id, int seq, int? region) => Answer(() =>
         review.Withdraw(id, seq, region, KeyName(http))

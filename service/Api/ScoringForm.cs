@@ -15,7 +15,8 @@ public sealed record LogitsRequest(
     int? FrameHeight,
     FrameMetadata Metadata,
     IReadOnlyList<string> Artifacts,
-    bool Inline = false);
+    bool Inline = false,
+    bool Stretch = false);
 
 /// <summary>
 /// Reads the text fields of a scoring upload, logits or camera image alike. Every field is checked and every problem is reported at once;
@@ -30,12 +31,12 @@ public static class ScoringForm
     public static readonly IReadOnlyList<string> Fields =
     [
         "frameWidth", "frameHeight", "method", "threshold", "minArea", "boundarySuppression", "smoothing",
-        "clientFrameId", "captureTime", "rigId", "artifacts", "response",
+        "clientFrameId", "captureTime", "rigId", "artifacts", "response", "stretch",
     ];
 
     /// <summary>The text fields an upload with file part <paramref name="filePart"/> takes: an image already has its size.</summary>
     public static IReadOnlyList<string> FieldsFor(string filePart) =>
-        filePart == LogitsPart ? Fields : Fields.Where(f => f is not ("frameWidth" or "frameHeight")).ToList();
+        filePart == LogitsPart ? Fields : Fields.Where(f => f is not ("frameWidth" or "frameHeight" or "stretch")).ToList();
 
     /// <summary>The checked request, or the errors by field name.</summary>
     public static (LogitsRequest? Request, Dictionary<string, string[]> Errors) Parse(
@@ -95,14 +96,20 @@ public static class ScoringForm
         var artifacts = DefaultArtifacts.ToList();
         if (Single("artifacts") is string list)
         {
-            artifacts = list.Equals("none", StringComparison.Ordinal)
-                ? []
-                : list.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries).Distinct().ToList();
             var allowed = availableArtifacts ?? ArtifactStore.Files.Keys.ToHashSet();
+            artifacts = list switch
+            {
+                "none" => [],
+                // As score --artifacts and batches take it: every artifact this endpoint can make.
+                "all" => Rendering.ArtifactWriter.All.Where(allowed.Contains).ToList(),
+                _ => list.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries).Distinct().ToList(),
+            };
             var unknown = artifacts.Where(a => !allowed.Contains(a)).ToList();
             if (unknown.Count > 0)
-                Fail("artifacts", $"Artifact(s) {string.Join(", ", unknown)} cannot be made here; choose from {string.Join(", ", allowed.Order())}, or 'none'.");
+                Fail("artifacts", $"Artifact(s) {string.Join(", ", unknown)} cannot be made here; choose from {string.Join(", ", allowed.Order())}, or 'all' or 'none'.");
         }
+
+        bool stretch = Switch(Single("stretch"), "stretch", Fail) ?? false;
 
         bool inline = false;
         if (Single("response") is string response)
@@ -117,7 +124,7 @@ public static class ScoringForm
             catch (Strayspot.Scoring.Logits.ScoringInputException e) { Fail("options", e.Message); }
         }
         if (errors.Count > 0) return (null, errors);
-        return (new LogitsRequest(options, width, height, new FrameMetadata(clientFrameId, captureTime, rigId), artifacts, inline), errors);
+        return (new LogitsRequest(options, width, height, new FrameMetadata(clientFrameId, captureTime, rigId), artifacts, inline, stretch), errors);
     }
 
     public static ScoreMethod? ParseMethod(string s) => ScoringMethods.TryParse(s, cliAliases: false, out var method) ? method : null;

@@ -62,7 +62,7 @@ public static class BatchRecordings
             if (!t.Kept) continue;
             score = Math.Max(score, t.MaxScore);
             tracks.Add(new ManifestRegion(t.Id, t.BestBox, t.FramesSeen, t.MeanScore, t.MaxScore,
-                t.ClassBeneathName ?? t.ClassBeneath.ToString(System.Globalization.CultureInfo.InvariantCulture), false, []));
+                t.ClassBeneath, t.ClassBeneathName, false, []));
         }
         return (float.IsFinite(score) ? score : 0f, tracks);
     }

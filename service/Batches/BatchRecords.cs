@@ -41,9 +41,13 @@ public sealed record BatchRecord(
     int CallbackAttempts,
     string? ModelSha256,
     string? ProfileVersion,
-    string? Error)
+    string? Error,
+    string? StoredArtifacts = null)
 {
     public int PendingCount => FrameCount - DoneCount - FailedCount;
+
+    /// <summary>The artifacts each frame gets (every one for a batch from before they were chosen).</summary>
+    public IReadOnlyList<string> Artifacts => Rendering.ArtifactChoice.Read(StoredArtifacts);
 }
 
 /// <summary>One frame of a batch. <see cref="Seq"/> orders frames and names their output folder.</summary>
@@ -71,4 +75,4 @@ public sealed record FrameResult(float FrameScore, int RegionCount, string Repor
 public sealed record FrameSummary(int Seq, string FrameId, string State, float? FrameScore, int? RegionCount);
 
 /// <summary>One region of a scored frame, as far as counting needs it.</summary>
-public sealed record RegionBrief(int Seq, int Region, string ClassBeneath, float MaxScore);
+public sealed record RegionBrief(int Seq, int Region, string ClassBeneathName, float MaxScore);

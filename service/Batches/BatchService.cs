@@ -5,6 +5,7 @@ using Microsoft.Extensions.Options;
 using Strayspot.Service.Api;
 using Strayspot.Service.Calibration;
 using Strayspot.Service.Hosting;
+using Strayspot.Service.Review;
 using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Batches;
@@ -66,14 +67,17 @@ public sealed partial class BatchService : IDisposable
 
     /// <summary>Rewrites the batch's manifest from the store (frames so far, with their decisions); returns its path.</summary>
     public string WriteManifest(BatchRecord batch) =>
-        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Current(batch.Id));
+        Manifest.Write(BatchFolder(batch.Id), batch, Store.Frames(batch.Id), Decisions.Effective(batch.Id));
 
     /// <summary>An absolute path for a stored source: relative ones are resolved under DataRoot (links checked again).</summary>
     public string ResolveSource(string source) => Path.IsPathRooted(source) ? source : SafePath.Resolve(DataRoot, source);
 
-    public (BatchRecord Batch, bool Created, int Added) SubmitFolder(string model, string folder, string? batchId, string? callbackUrl)
+    /// <param name="artifacts">As <c>score --artifacts</c> takes it (<see cref="Rendering.ArtifactChoice"/>); null: the lean default for a new batch, the batch's own for an existing one.</param>
+    public (BatchRecord Batch, bool Created, int Added) SubmitFolder(string model, string folder, string? batchId, string? callbackUrl,
+        string? artifacts = null)
     {
         string id = CheckRequest(model, batchId, callbackUrl);
+        var chosen = CheckArtifacts(artifacts);
         string full = SafePath.Resolve(DataRoot, folder);
         if (!Directory.Exists(full))
             throw new BatchException(ErrorCodes.FolderNotFound, $"There is no folder '{folder}' in the data folder.");
@@ -96,14 +100,16 @@ public sealed partial class BatchService : IDisposable
         if (frames.Count == 0)
             throw new BatchException(ErrorCodes.BatchEmpty, $"The folder '{folder}' holds no {BatchRecordings.Accepted} frames or recordings.");
         frames.Sort((a, b) => string.CompareOrdinal(a.FrameId, b.FrameId));
-        return Submit(id, model, "folder:" + folderRel, callbackUrl, frames);
+        EnsureModelCanScore(model);
+        return Submit(id, model, "folder:" + folderRel, callbackUrl, frames, chosen);
     }
 
     /// <summary>Unpacks the archive into the batch's input folder; frames already in the batch keep their first file.</summary>
     public (BatchRecord Batch, bool Created, int Added) SubmitArchive(string model, string archivePath, string? fileName, string? batchId,
-        string? callbackUrl)
+        string? callbackUrl, string? artifacts = null)
     {
         string id = CheckRequest(model, batchId, callbackUrl);
+        var chosen = CheckArtifacts(artifacts);
         string staging = Path.Combine(Root, ".uploads", Guid.NewGuid().ToString("N"));
         try
         {
@@ -114,6 +120,7 @@ public sealed partial class BatchService : IDisposable
                 throw new BatchException(ErrorCodes.ValidationFailed,
                     $"The archive holds {extracted.Count} frames; at most {_options.MaxFramesPerBatch} are accepted (Service:Batches:MaxFramesPerBatch).");
             extracted.Sort(StringComparer.Ordinal);
+            EnsureModelCanScore(model);
             lock (_submit)
             {
                 string input = Path.Combine(BatchFolder(id), InputFolder);
@@ -128,7 +135,7 @@ public sealed partial class BatchService : IDisposable
                     }
                     frames.Add(new NewFrame(rel, StoredPath(target)));
                 }
-                return Submit(id, model, "upload:" + (fileName ?? "archive"), callbackUrl, frames);
+                return Submit(id, model, "upload:" + (fileName ?? "archive"), callbackUrl, frames, chosen);
             }
         }
         finally
@@ -181,12 +188,17 @@ public sealed partial class BatchService : IDisposable
 
     public void Dispose() => Database.Dispose();
 
-    private (BatchRecord, bool, int) Submit(string id, string model, string source, string? callbackUrl, List<NewFrame> frames)
+    private (BatchRecord, bool, int) Submit(string id, string model, string source, string? callbackUrl, List<NewFrame> frames,
+        IReadOnlyList<string>? artifacts)
     {
         var existing = Store.Get(id);
         if (existing is not null && existing.Model != model)
             throw new BatchException(ErrorCodes.BatchConflict, $"Batch '{id}' exists for model '{existing.Model}', not '{model}'.");
-        var result = Store.Submit(id, model, source, callbackUrl, frames);
+        if (existing is not null && artifacts is not null && Rendering.ArtifactChoice.Format(existing.Artifacts) != Rendering.ArtifactChoice.Format(artifacts))
+            throw new BatchException(ErrorCodes.BatchConflict,
+                $"Batch '{id}' writes the artifacts '{Rendering.ArtifactChoice.Format(existing.Artifacts)}'; frames added to it get the same (leave 'artifacts' out).");
+        var result = Store.Submit(id, model, source, callbackUrl, frames,
+            Rendering.ArtifactChoice.Format(artifacts ?? Rendering.ArtifactChoice.Lean));
         if (result.Added > 0) Wake();
         return result;
     }
@@ -197,6 +209,21 @@ public sealed partial class BatchService : IDisposable
         return rel.StartsWith("..", StringComparison.Ordinal) || Path.IsPathRooted(rel) ? full : rel.Replace('\\', '/');
     }
 
+    /// <summary>
+    /// Refuses, before anything is stored, a batch whose frames would all fail: the model's profile names a method it
+    /// cannot run (sml without class statistics, a method that needs logits on a probabilities model).
+    /// </summary>
+    private void EnsureModelCanScore(string model)
+    {
+        if (!_catalog.TryGet(model, out var entry) || entry.Version is not { } version) return; // refused by CheckRequest
+        Models.ModelReadiness.EnsureCanScore(version.Descriptor, version.Statistics, version.Defaults, version.Folder);
+    }
+
+    /// <summary>The artifacts asked for (null when the request names none), or validation-failed naming the closest real name.</summary>
+    private static IReadOnlyList<string>? CheckArtifacts(string? text) =>
+        text is null ? null
+        : Rendering.ArtifactChoice.Parse(text, out string? error) ?? throw new BatchException(ErrorCodes.ValidationFailed, "artifacts: " + error);
+
     private string CheckRequest(string model, string? batchId, string? callbackUrl)
     {
         if (string.IsNullOrWhiteSpace(model))
@@ -204,7 +231,7 @@ public sealed partial class BatchService : IDisposable
         if (!_catalog.TryGet(model, out var entry))
             throw new BatchException(ErrorCodes.ModelNotFound, $"No model named '{model}' is installed; GET /v1/models lists the installed ones.");
         if (!entry.IsUsable)
-            throw new BatchException(ErrorCodes.ModelUnavailable, $"Model '{model}' cannot be used: {entry.Error}");
+            throw new BatchException(ApiProblems.UnusableCode(entry), $"Model '{model}' cannot be used: {entry.Error}");
         if (batchId is not null && !IsBatchId(batchId))
             throw new BatchException(ErrorCodes.ValidationFailed,
                 $"Batch id '{batchId}' is not accepted: use 1 to 64 letters, digits, '.', '_' or '-', starting with a letter or digit.");

@@ -27,7 +27,8 @@ public sealed record BatchView(
     [property: JsonPropertyName("profileVersion")] string? ProfileVersion,
     [property: JsonPropertyName("error")] string? Error,
     [property: JsonPropertyName("callback")] CallbackView? Callback,
-    [property: JsonPropertyName("manifest")] string Manifest)
+    [property: JsonPropertyName("manifest")] string Manifest,
+    [property: JsonPropertyName("artifacts")] IReadOnlyList<string> Artifacts)
 {
     public static BatchView From(BatchRecord b) => new(
         b.Id, b.Model, b.State, b.Source, b.Created, b.Updated,
@@ -35,7 +36,7 @@ public sealed record BatchView(
         b.FrameCount == 0 ? 1 : Math.Round((double)(b.DoneCount + b.FailedCount) / b.FrameCount, 4),
         b.ModelSha256, b.ProfileVersion, b.Error,
         b.CallbackUrl is null ? null : new CallbackView(b.CallbackUrl, b.CallbackState, b.CallbackAttempts),
-        $"/v1/batches/{b.Id}/manifest");
+        $"/v1/batches/{b.Id}/manifest", b.Artifacts);
 }
 
 /// <summary>One frame of a batch as the API shows it.</summary>

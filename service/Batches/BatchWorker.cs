@@ -141,7 +141,7 @@ public sealed class BatchWorker(
                 {
                     // Not cancellable on purpose: a frame once started is finished, so shutdown leaves no half frame behind.
                     // A recording is the exception: it can run for long, so it ends with its batch (and is scored afresh on resume).
-                    await Task.Run(() => ScoreFrame(claim, folder, model, output, renewal, cancel.Token), CancellationToken.None);
+                    await Task.Run(() => ScoreFrame(claim, folder, model, output, batch.Artifacts, renewal, cancel.Token), CancellationToken.None);
                 }
                 if (batches.Options.PauseBetweenFrames > TimeSpan.Zero)
                     await Task.Delay(batches.Options.PauseBetweenFrames, cancel.Token);
@@ -163,7 +163,8 @@ public sealed class BatchWorker(
         }
     }
 
-    private void ScoreFrame(FrameClaim claim, string folder, ModelLease model, FrameFolderWriter output, ClaimRenewal renewal, CancellationToken cancel)
+    private void ScoreFrame(FrameClaim claim, string folder, ModelLease model, FrameFolderWriter output, IReadOnlyList<string> artifacts,
+        ClaimRenewal renewal, CancellationToken cancel)
     {
         var frame = claim.Frame;
         string name = frame.Seq.ToString("D5", System.Globalization.CultureInfo.InvariantCulture);
@@ -172,7 +173,7 @@ public sealed class BatchWorker(
         string temp = Path.Combine(frames, $".{name}.{Guid.NewGuid():N}.tmp");
         try
         {
-            var scored = Score(model, output, frame, temp, cancel);
+            var scored = Score(model, output, frame, temp, artifacts, cancel);
             // Held still? Renewed just before the rename, the claim outlasts the rename and the done mark by a whole lease.
             if (renewal.Lost || !batches.Store.RenewClaim(claim, batches.Options.LeaseTime))
             {
@@ -203,7 +204,8 @@ public sealed class BatchWorker(
     }
 
     /// <summary>The one call into frame scoring: decode the frame's file, score it, write its outputs to <paramref name="folder"/>.</summary>
-    private ScoredFrame Score(ModelLease model, FrameFolderWriter output, FrameRecord frame, string folder, CancellationToken cancel)
+    private ScoredFrame Score(ModelLease model, FrameFolderWriter output, FrameRecord frame, string folder, IReadOnlyList<string> artifacts,
+        CancellationToken cancel)
     {
         string source = batches.ResolveSource(frame.SourcePath);
         if (Recordings.VideoRecording.IsVideoFile(frame.SourcePath))
@@ -216,7 +218,7 @@ public sealed class BatchWorker(
         var report = runner.Score(model, decoded, null, (scored, timings) =>
         {
             regions = Manifest.Regions(scored, output.ClassNames);
-            return output.WriteAll(scored, timings, model.Version.Defaults, frame.FrameId, folder, decoded.Image);
+            return output.WriteAll(scored, timings, model.Version.Defaults, frame.FrameId, folder, decoded.Image, artifacts);
         });
         return new ScoredFrame(report.FrameScore, report.Regions.Count, regions ?? [], Rendering.ArtifactWriter.ReportFile);
     }
@@ -240,6 +242,17 @@ public sealed class BatchWorker(
         {
             string why = entry is null ? "it is not installed" : entry.Error ?? "it is unusable";
             batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"Model '{batch.Model}' cannot be used: {why}.");
+            return null;
+        }
+        try
+        {
+            // Checked when the batch was made; the model may have changed since (or another replica stored the batch):
+            // fail the batch once, not each of its frames.
+            ModelReadiness.EnsureCanScore(entry.Descriptor!, entry.Statistics, entry.Version!.Defaults, entry.Folder);
+        }
+        catch (ModelException e)
+        {
+            batches.Store.Transition(batch.Id, BatchStates.Failed, [BatchStates.Queued, BatchStates.Running], error: $"{e.Code}: {ClientPaths.Relative(e.Message, batches.DataRoot, service.Value.ModelsRoot)}");
             return null;
         }
         try

@@ -3,8 +3,9 @@ using Strayspot.Service.Store;
 namespace Strayspot.Service.Batches;
 
 /// <summary>
-/// Renews a frame claim every third of the lease while the frame is scored, so a slow frame is not taken over;
-/// notes when the claim was lost. A store that cannot be reached is tried again at the next tick.
+/// Renews a claim (a frame's, or a calibration or evaluation job's) every third of the lease while its work runs, so
+/// slow work is not taken over; notes when the claim was lost. A store that cannot be reached is tried again at the
+/// next tick.
 /// </summary>
 public sealed class ClaimRenewal : IDisposable
 {
@@ -13,6 +14,13 @@ public sealed class ClaimRenewal : IDisposable
     private volatile bool _lost;
 
     public ClaimRenewal(IBatchStore store, FrameClaim claim, TimeSpan lease, ILogger log)
+        : this(() => store.RenewClaim(claim, lease), lease, $"batch {claim.BatchId} frame {claim.Seq}", log)
+    {
+    }
+
+    /// <param name="renew">Pushes the expiry on; false when the claim was lost.</param>
+    /// <param name="what">What is held, for the log.</param>
+    public ClaimRenewal(Func<bool> renew, TimeSpan lease, string what, ILogger log)
     {
         _loop = Task.Run(async () =>
         {
@@ -23,11 +31,11 @@ public sealed class ClaimRenewal : IDisposable
                 {
                     try
                     {
-                        if (!store.RenewClaim(claim, lease)) { _lost = true; return; }
+                        if (!renew()) { _lost = true; return; }
                     }
                     catch (StoreUnavailableException e)
                     {
-                        log.LogWarning("Claim on batch {BatchId} frame {Seq} not renewed: {Reason}", claim.BatchId, claim.Seq, e.Message);
+                        log.LogWarning("Claim on {Held} not renewed: {Reason}", what, e.Message);
                     }
                 }
             }
@@ -35,7 +43,7 @@ public sealed class ClaimRenewal : IDisposable
         });
     }
 
-    /// <summary>The claim expired and someone else holds the frame, or it was finished elsewhere.</summary>
+    /// <summary>The claim expired and someone else holds the work, or it was finished elsewhere.</summary>
     public bool Lost => _lost;
 
     public void Dispose()

@@ -10,6 +10,8 @@ namespace Strayspot.Service.Batches;
 
 /// <summary>
 /// One region in a manifest line; <see cref="Outline"/> is the outer boundary, at most <see cref="Manifest.MaxOutlinePoints"/> points.
+/// <see cref="ClassBeneath"/> is the class index and <see cref="ClassBeneathName"/> its name, as in the frame report
+/// (−1 with the name for regions stored before the index was kept).
 /// On a recording's frame line <see cref="Track"/> is the track the region joined (a decision on that track shows on it).
 /// </summary>
 public sealed record ManifestRegion(
@@ -18,11 +20,17 @@ public sealed record ManifestRegion(
     [property: JsonPropertyName("area")] long Area,
     [property: JsonPropertyName("meanScore")] float MeanScore,
     [property: JsonPropertyName("maxScore")] float MaxScore,
-    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("classBeneath")] int ClassBeneath,
+    [property: JsonPropertyName("classBeneathName")] string? ClassBeneathName,
     [property: JsonPropertyName("onSurface")] bool OnSurface,
     [property: JsonPropertyName("outline")] int[][] Outline,
     [property: JsonPropertyName("decision")] DecisionMark? Decision = null,
-    [property: JsonPropertyName("track")] int? Track = null);
+    [property: JsonPropertyName("track")] int? Track = null)
+{
+    /// <summary>What the region index keeps and the review tallies by: the class's name (its index when the model names none).</summary>
+    [JsonIgnore]
+    public string IndexedClass => ClassBeneathName ?? ClassBeneath.ToString(System.Globalization.CultureInfo.InvariantCulture);
+}
 
 /// <summary>
 /// One line of the manifest: a frame, its score, regions and output files (relative to the batch folder).
@@ -69,8 +77,6 @@ public static class Manifest
     public const string ContentType = "application/x-ndjson";
     public const int MaxOutlinePoints = 64;
 
-    /// <summary>The files a manifest line links, named as in reports and review routes (<see cref="ArtifactWriter"/>'s table).</summary>
-    private static readonly string[] LinkedArtifacts = ["classes", "mask", "heat", "overlay", ArtifactWriter.Report];
 
     internal static readonly JsonSerializerOptions LineJson = new()
     {
@@ -89,9 +95,9 @@ public static class Manifest
             var outline = Simplify(RegionOutline.Outline(set, r.Id), MaxOutlinePoints);
             var points = new int[outline.Count][];
             for (int i = 0; i < outline.Count; i++) points[i] = [outline[i].X, outline[i].Y];
-            string beneath = r.MajorityClass < classNames.Count ? classNames[r.MajorityClass] : r.MajorityClass.ToString(System.Globalization.CultureInfo.InvariantCulture);
+            string? beneath = r.MajorityClass < classNames.Count ? classNames[r.MajorityClass] : null;
             list.Add(new ManifestRegion(r.Id, new BoxReport(r.Left, r.Top, r.Width, r.Height), r.Area, r.MeanScore, r.MaxScore,
-                beneath, r.OnSurface, points));
+                r.MajorityClass, beneath, r.OnSurface, points));
         }
         return list;
     }
@@ -123,7 +129,22 @@ public static class Manifest
     public static string RegionsJson(IReadOnlyList<ManifestRegion> regions) => JsonSerializer.Serialize(regions, LineJson);
 
     public static List<ManifestRegion> ReadRegions(string? regionsJson) =>
-        regionsJson is null ? [] : JsonSerializer.Deserialize<List<ManifestRegion>>(regionsJson, LineJson) ?? [];
+        regionsJson is null ? [] : JsonSerializer.Deserialize<List<ManifestRegion>>(StoredBeforeClassIndex(regionsJson), LineJson) ?? [];
+
+    /// <summary>Regions stored by older versions carry the class's name in <c>classBeneath</c>: it moves to <c>classBeneathName</c>, the index is −1.</summary>
+    private static string StoredBeforeClassIndex(string regionsJson)
+    {
+        if (!regionsJson.Contains("\"classBeneath\":\"", StringComparison.Ordinal)) return regionsJson;
+        var regions = System.Text.Json.Nodes.JsonNode.Parse(regionsJson)!.AsArray();
+        foreach (var node in regions)
+        {
+            if (node is not System.Text.Json.Nodes.JsonObject region || region["classBeneath"] is not System.Text.Json.Nodes.JsonValue v
+                || !v.TryGetValue<string>(out string? name)) continue;
+            region["classBeneath"] = -1;
+            region["classBeneathName"] = name;
+        }
+        return regions.ToJsonString();
+    }
 
     /// <summary>
     /// The lines of a batch in manifest order: done frames by score (highest first, then seq), failed frames after.
@@ -159,7 +180,9 @@ public static class Manifest
             if (!keep) continue;
             string folder = Path.GetDirectoryName(f.ReportPath!)!.Replace('\\', '/');
             var artifacts = new Dictionary<string, string>(StringComparer.Ordinal);
-            foreach (string name in LinkedArtifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+            // Only what the batch's frames were given (named as in reports and review routes), and the report.
+            foreach (string name in batch.Artifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
+            artifacts[ArtifactWriter.Report] = folder + "/" + ArtifactWriter.ReportFile;
             yield return new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
                 batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision));
         }

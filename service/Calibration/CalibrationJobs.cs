@@ -1,4 +1,4 @@
-using System.Collections.Concurrent;
+using Strayspot.Service.Batches;
 using System.Text.Json;
 using System.Text.Json.Serialization;
 using Microsoft.Extensions.Options;
@@ -9,7 +9,7 @@ using Strayspot.Service.Models;
 namespace Strayspot.Service.Calibration;
 
 /// <summary>One calibration run over a folder of the user's in-distribution frames, as the service keeps it.</summary>
-public sealed record CalibrationJob
+public sealed record CalibrationJob : IStoredJob
 {
     [JsonPropertyName("id")] public string Id { get; init; } = "";
     [JsonPropertyName("model")] public string Model { get; init; } = "";
@@ -29,19 +29,20 @@ public sealed record CalibrationJob
 }
 
 /// <summary>
-/// Calibration jobs: one runs at a time in the background, its state and checkpoint live under the data root, so a
-/// restarted service resumes a job where its last checkpoint left it. Activating a finished job copies its
+/// Calibration jobs: one runs at a time per replica in the background; records live in the store (every replica
+/// sees every job), checkpoints under the data root, so a job resumes where its last checkpoint left it after a
+/// restart, or on another replica once the one running it has died. Activating a finished job copies its
 /// calibration into the model folder and reloads the catalog.
 /// </summary>
 public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions,
-    Inference.FrameRunner runner, FrameDecoder decoder, ILogger<CalibrationJobs> log) : BackgroundService
+    Inference.FrameRunner runner, FrameDecoder decoder, BatchService batches, ILogger<CalibrationJobs> log) : BackgroundService
 {
-    private readonly JobFolder<CalibrationJob> _jobs =
-        new(Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations"), j => j.Id);
-    private readonly SemaphoreSlim _wake = new(0);
-    private readonly ConcurrentQueue<string> _queue = new();
+    public const string Kind = "calibration";
 
-    public IReadOnlyList<CalibrationJob> List() => _jobs.All.OrderByDescending(j => j.CreatedUtc).ToList();
+    private readonly JobFolder<CalibrationJob> _jobs = new(batches.Database.Jobs, Kind,
+        Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "calibrations"), batches.Options.LeaseTime, batches.Options.PollInterval);
+
+    public IReadOnlyList<CalibrationJob> List() => _jobs.All;
 
     public bool TryGet(string id, out CalibrationJob job) => _jobs.TryGet(id, out job);
 
@@ -63,9 +64,7 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
             FramesTotal = list.Count,
             CreatedUtc = DateTimeOffset.UtcNow,
         };
-        Save(job);
-        _queue.Enqueue(job.Id);
-        _wake.Release();
+        _jobs.Add(job);
         return job;
     }
 
@@ -84,23 +83,15 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         catalog.Reload();
         sessions.Sync();
         var activated = job with { State = "activated" };
-        Save(activated);
+        if (!_jobs.Update(activated))
+            throw new InvalidOperationException($"Calibration {job.Id} is being written by another replica; try again.");
         return activated;
     }
 
-    protected override async Task ExecuteAsync(CancellationToken stop)
-    {
-        foreach (var job in _jobs.Load((file, reason) => log.LogWarning("Skipping unreadable calibration job {File}: {Reason}", file, reason)))
-            if (job.State is "queued" or "running") _queue.Enqueue(job.Id);
-        while (!stop.IsCancellationRequested)
-        {
-            while (_queue.TryDequeue(out string? id))
-                if (_jobs.TryGet(id, out var job)) await Task.Run(() => RunJob(job, stop), CancellationToken.None);
-            try { await _wake.WaitAsync(stop); } catch (OperationCanceledException) { break; }
-        }
-    }
+    protected override Task ExecuteAsync(CancellationToken stop) =>
+        batches.Options.WorkerOnly ? Task.CompletedTask : _jobs.RunAsync((job, claim) => RunJob(job, claim, stop), log, stop);
 
-    private void RunJob(CalibrationJob job, CancellationToken stop)
+    private void RunJob(CalibrationJob job, JobClaim<CalibrationJob> claim, CancellationToken stop)
     {
         try
         {
@@ -108,7 +99,7 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
                 throw new ModelException(ModelErrorCodes.CalibrationModelMismatch, $"Model '{job.Model}' changed or was removed before its calibration ran.");
             using var model = sessions.Borrow(entry);
             var frames = Calibrator.ListFrames(SafePath.Resolve(options.Value.DataRoot, job.Folder));
-            Save(job = job with { State = "running", FramesTotal = frames.Count });
+            job = claim.Save(job with { State = "running", FramesTotal = frames.Count });
             var calibrator = new Calibrator(runner, model, decoder, () => new PixelReductionMaxLogitReducer(), new CalibrationOptions
             {
                 CheckpointEvery = 10,
@@ -118,8 +109,8 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
             });
             var running = job;
             var artifact = calibrator.Run(frames, ArtifactPath(job.Id),
-                new Progress(p => Save(running = running with { FramesDone = p.FramesDone })), stop);
-            Save(job = running with
+                new Progress(p => running = claim.Save(running with { FramesDone = p.FramesDone })), stop);
+            job = claim.Finish(running with
             {
                 State = "done",
                 FramesDone = frames.Count,
@@ -130,18 +121,16 @@ public sealed class CalibrationJobs(IOptions<ServiceOptions> options, ModelCatal
         }
         catch (OperationCanceledException)
         {
-            // Shutting down: the checkpoint is kept and the job resumes at the next start.
+            // Shutting down: the checkpoint is kept and the job resumes at the next start, or on another replica.
         }
         catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException)
         {
-            Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
+            claim.Finish(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Calibration {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }
 
     private string ArtifactPath(string id) => Path.Combine(_jobs.FolderOf(id), CalibrationArtifact.FileName);
-
-    private void Save(CalibrationJob job) => _jobs.Save(job);
 
     private sealed class Progress(Action<CalibrationProgress> report) : IProgress<CalibrationProgress>
     {

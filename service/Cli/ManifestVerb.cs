@@ -1,25 +1,30 @@
 using System.CommandLine;
 using Strayspot.Service.Batches;
+using Strayspot.Service.Hosting;
 using Strayspot.Service.Review;
+using Strayspot.Service.Store;
 
 namespace Strayspot.Service.Cli;
 
 /// <summary>
 /// <c>strayspot manifest --batch ID [--data DIR] [--verdict V] [--out FILE]</c>: writes a batch's manifest with its
-/// review decisions straight from the batch database, for an operator on the box (the service may run or not).
+/// review decisions straight from the store, for an operator on the box (the service may run or not). The store is
+/// the one the service is configured with (<c>Service:Store</c>, <c>Service:StoreConnection</c> from appsettings.json
+/// or <c>STRAYSPOT_</c> environment variables): the SQLite file under the data folder, or the shared PostgreSQL.
 /// </summary>
 public static class ManifestVerb
 {
     public const int BadInput = 2;
 
-    public static Command Create()
+    /// <param name="configuration">Where the store settings come from; by default as the service reads them.</param>
+    public static Command Create(IConfiguration? configuration = null)
     {
         var data = new Option<DirectoryInfo>("--data")
         {
             Description = "The service's data folder (Service:DataRoot).",
             DefaultValueFactory = _ => new DirectoryInfo("data"),
         };
-        var database = new Option<FileInfo?>("--database") { Description = "The batch database, when not in its default place (Service:Batches:DatabasePath)." };
+        var database = new Option<FileInfo?>("--database") { Description = "The SQLite batch database, when not in its default place (Service:Batches:DatabasePath)." };
         var batch = new Option<string>("--batch") { Description = "The batch id.", Required = true };
         var verdict = new Option<string?>("--verdict")
         {
@@ -29,7 +34,7 @@ public static class ManifestVerb
         {
             Description = "Where to write; default manifest.jsonl in the batch folder (manifest.<verdict>.jsonl with --verdict).",
         };
-        var command = new Command("manifest", "Write a batch's manifest (frames by score, regions, review decisions) from the batch database.");
+        var command = new Command("manifest", "Write a batch's manifest (frames by score, regions, review decisions) from the store (Service:Store).");
         foreach (var o in new Option[] { data, database, batch, verdict, output }) command.Options.Add(o);
         command.SetAction(parse =>
         {
@@ -45,24 +50,33 @@ public static class ManifestVerb
                 err.WriteLine($"error: --verdict must be one of {string.Join(", ", Verdicts.All)}; got '{only}'.");
                 return BadInput;
             }
-            // Never create a database from a mistyped path: the store would make an empty one.
-            if (!File.Exists(dbPath))
+            var settings = new StoreOptions();
+            (configuration ?? ServiceConfiguration()).GetSection(StoreOptions.Section).Bind(settings);
+            if (settings.Validate().FirstOrDefault() is { } bad)
             {
-                err.WriteLine($"error: there is no batch database at {dbPath}; give the service's --data folder or --database.");
+                err.WriteLine($"error: {bad}");
+                return BadInput;
+            }
+            bool postgres = settings.Store == BatchDatabase.Postgres;
+            // Never create a database from a mistyped path: the store would make an empty one.
+            if (!postgres && !File.Exists(dbPath))
+            {
+                err.WriteLine($"error: there is no batch database at {dbPath}; give the service's --data folder or --database " +
+                              "(or set Service:Store to postgres with Service:StoreConnection, as the service has it).");
                 return BadInput;
             }
             try
             {
-                using var database = Store.BatchDatabase.OpenSqlite(dbPath);
+                using var database = postgres ? BatchDatabase.OpenPostgres(settings.StoreConnection!) : BatchDatabase.OpenSqlite(dbPath);
                 var store = database.Batches;
                 if (!BatchService.IsBatchId(id) || store.Get(id) is not { } record)
                 {
                     var known = store.List(10).Select(b => b.Id).ToList();
-                    err.WriteLine($"error: there is no batch '{id}' in {dbPath}" +
+                    err.WriteLine($"error: there is no batch '{id}' in {database.Describe}" +
                                   (known.Count > 0 ? $"; the newest are {string.Join(", ", known)}." : "; it holds no batches."));
                     return BadInput;
                 }
-                var decisions = database.Decisions.Current(id);
+                var decisions = database.Decisions.Effective(id);
                 string batchFolder = Path.Combine(options.ResolveRoot(dataRoot), id);
                 var lines = Manifest.Lines(batchFolder, record, store.Frames(id), decisions, only);
                 string target = parse.GetValue(output)?.FullName
@@ -73,7 +87,8 @@ public static class ManifestVerb
                 outWriter.WriteLine($"Wrote {written} frame line(s) of batch '{id}' with {decisions.Count} decision(s) to {target}");
                 return 0;
             }
-            catch (Exception e) when (e is IOException or UnauthorizedAccessException or Microsoft.Data.Sqlite.SqliteException)
+            catch (Exception e) when (e is IOException or UnauthorizedAccessException or Microsoft.Data.Sqlite.SqliteException
+                                          or StoreUnavailableException or Npgsql.NpgsqlException or ArgumentException or InvalidOperationException)
             {
                 err.WriteLine($"error: {e.Message}");
                 return BadInput;
@@ -81,4 +96,10 @@ public static class ManifestVerb
         });
         return command;
     }
+
+    /// <summary>The service's own configuration sources for the store settings: appsettings.json beside the executable, then STRAYSPOT_ variables.</summary>
+    private static IConfiguration ServiceConfiguration() => new ConfigurationBuilder()
+        .AddJsonFile(Path.Combine(AppContext.BaseDirectory, "appsettings.json"), optional: true)
+        .AddEnvironmentVariables(ServiceHost.EnvironmentPrefix)
+        .Build();
 }

@@ -41,19 +41,6 @@ public static class ScoreLogitsVerb
         return command;
     }
 
-    /// <summary>
-    /// True when some whole-cell stride explains both sides: each side of the logits may be off by one cell (rounding)
-    /// and up to 10% (padding to a multiple before the model) from frame side ÷ stride.
-    /// </summary>
-    public static bool AspectAgrees(int logitsHeight, int logitsWidth, int frameHeight, int frameWidth)
-    {
-        static (double Low, double High) Range(int frame, int logits) =>
-            (frame / (logits + 1.0) / 1.1, frame / Math.Max(1.0, logits - 1.0) * 1.1);
-        var (xl, xh) = Range(frameWidth, logitsWidth);
-        var (yl, yh) = Range(frameHeight, logitsHeight);
-        return Math.Max(xl, yl) <= Math.Min(xh, yh);
-    }
-
     public static FrameReport Run(string logitsPath, ClassStatistics? statistics, string? frameSize, ScoringOptions options, string outputFolder,
         bool stretch = false)
     {
@@ -62,10 +49,7 @@ public static class ScoreLogitsVerb
         for (int i = 0; i < shape.Length; i++) shape[i] = npy.Shape[i];
         var view = LogitsView.FromShape(npy.Data, shape);
         var (width, height) = frameSize is null ? (view.Width, view.Height) : ScoringOptionsBinding.ParseSize(frameSize);
-        if (!stretch && !AspectAgrees(view.Height, view.Width, height, width))
-            throw new ScoringInputException(ScoringErrorCodes.FrameSize,
-                $"The logits are {view.Width} wide × {view.Height} high but the frame is {width} wide × {height} high: their shapes disagree beyond rounding " +
-                "(are height and width swapped? --frame-size is WIDTHxHEIGHT). Pass --stretch if stretching them onto the frame is intended.");
+        if (!stretch) LogitsAspect.EnsureAgrees(view.Height, view.Width, height, width, "--frame-size is WIDTHxHEIGHT", "--stretch");
 
         var pipeline = new FramePipeline(options, statistics);
         var scored = pipeline.Score(view, height, width);
@@ -74,7 +58,12 @@ public static class ScoreLogitsVerb
         var names = statistics?.Classes.Select(c => c.Name).ToList();
         var artifacts = ArtifactWriter.Write(scored, ArtifactWriter.All, ColorScales.ClassColors(scored.ClassCount), frame: null, outputFolder);
         var report = FrameReport.From(scored, options, names, Path.GetFileNameWithoutExtension(logitsPath),
-            logits: new LogitsReport(view.Channels, view.Height, view.Width)) with { Artifacts = artifacts };
+            logits: new LogitsReport(view.Channels, view.Height, view.Width)) with
+        {
+            Artifacts = artifacts,
+            // No model folder here: the calibration's binding and frame size are unknown, the method's score range is not.
+            Warnings = ScoringWarnings.For(width, height, options, view.Channels, null, null),
+        };
         AtomicFile.WriteAllBytes(Path.Combine(outputFolder, "report.json"), JsonSerializer.SerializeToUtf8Bytes(report, FrameReport.JsonOptions));
         return report;
     }

@@ -25,7 +25,7 @@ public static class ScoreVerb
         var artifacts = new Option<string?>("--artifacts")
         {
             Description = $"comma-separated files to write per frame ({string.Join(", ", ArtifactWriter.All)}), 'all' or 'none' " +
-                          $"(default: {string.Join(",", LeanArtifacts)}; report.json is always written)",
+                          $"(default: {string.Join(",", ArtifactChoice.Lean)}; report.json is always written)",
         };
         var scoring = new ScoringOptionsBinding();
         var recordings = new RecordingOptionsBinding();
@@ -91,27 +91,10 @@ public static class ScoreVerb
         AtomicFile.WriteAllBytes(Path.Combine(outFolder, RankingFile), JsonSerializer.SerializeToUtf8Bytes(ranked, FrameReport.JsonOptions));
     }
 
-    /// <summary>What <c>score</c> writes per frame unless told otherwise: the mask and the picture a person looks at.
-    /// The full-size maps (class map, heat map, score NPY and 16-bit PNG) are opt-in: at 1920×1080 all of them take about 14 MB a frame.</summary>
-    public static readonly IReadOnlyList<string> LeanArtifacts = ["mask", "overlay"];
-
-    /// <summary>Parses <c>--artifacts</c>: a comma-separated list of artifact names, 'all' or 'none'.</summary>
-    public static IReadOnlyList<string> ParseArtifacts(string? text)
-    {
-        if (text is null) return LeanArtifacts;
-        string t = text.Trim().ToLowerInvariant();
-        if (t == "none") return [];
-        if (t == "all") return ArtifactWriter.All;
-        var names = t.Split(',', StringSplitOptions.RemoveEmptyEntries | StringSplitOptions.TrimEntries);
-        foreach (string n in names)
-            if (!ArtifactWriter.All.Contains(n))
-            {
-                string? near = NearestName.Find(n, ArtifactWriter.All);
-                throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options,
-                    $"--artifacts: '{n}' is no artifact.{(near is not null ? $" Did you mean '{near}'?" : "")} Choose from {string.Join(", ", ArtifactWriter.All)}, or 'all' or 'none'.");
-            }
-        return names.Distinct().ToList();
-    }
+    /// <summary>Parses <c>--artifacts</c> (<see cref="ArtifactChoice"/>).</summary>
+    public static IReadOnlyList<string> ParseArtifacts(string? text) =>
+        ArtifactChoice.Parse(text, out string? error)
+        ?? throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options, "--artifacts: " + error);
 
     /// <summary>
     /// Scores each frame into its own subfolder (named by the frame's file stem) and writes ranking.json.
@@ -132,7 +115,7 @@ public static class ScoreVerb
             if (!stems.Add(stem)) stem = $"{stem}-{i}";
             string folder = Path.Combine(outFolder, stem);
             using var frame = files[i].Decode(decoder);
-            string file = files[i].Path ?? files[i].Id;
+            string file = files[i].Shown;
             var report = model.Runner.Score(model.Lease, frame, options, (scored, timings) =>
             {
                 inspect?.Invoke(file, scored);

@@ -1,4 +1,3 @@
-using System.Collections.Concurrent;
 using System.Text.Json.Serialization;
 using Microsoft.Extensions.Options;
 using Strayspot.Scoring.Logits;
@@ -10,7 +9,7 @@ using Strayspot.Service.Models;
 namespace Strayspot.Service.Evaluation;
 
 /// <summary>One evaluation of a model on a labeled dataset under the data root, as the service keeps it.</summary>
-public sealed record EvaluationJob
+public sealed record EvaluationJob : IStoredJob
 {
     [JsonPropertyName("id")] public string Id { get; init; } = "";
     [JsonPropertyName("model")] public string Model { get; init; } = "";
@@ -31,24 +30,25 @@ public sealed record EvaluationJob
 }
 
 /// <summary>
-/// Evaluations as durable background jobs: one at a time, state under the data root. An evaluation keeps no
-/// checkpoint, so a job that was running when the service stopped starts again from its first frame.
+/// Evaluations as durable background jobs: one at a time per replica, records in the store (every replica sees
+/// every job), outputs under the data root. An evaluation keeps no checkpoint, so a job that was running when its
+/// replica stopped starts again from its first frame (there, or on another replica).
 /// </summary>
 public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalog catalog, ModelSessions sessions, FrameRunner runner,
-    ILogger<EvaluationJobs> log) : BackgroundService
+    Batches.BatchService batches, ILogger<EvaluationJobs> log) : BackgroundService
 {
+    public const string Kind = "evaluation";
+
     public static readonly IReadOnlyList<string> OutputFiles =
     [
         EvaluationOutputs.MarkdownFile, EvaluationOutputs.CsvFile, EvaluationOutputs.JsonFile, EvaluationOutputs.FramesFile,
         EvaluationOutputs.RocFile, EvaluationOutputs.PrecisionRecallFile,
     ];
 
-    private readonly JobFolder<EvaluationJob> _jobs =
-        new(Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "evaluations"), j => j.Id);
-    private readonly SemaphoreSlim _wake = new(0);
-    private readonly ConcurrentQueue<string> _queue = new();
+    private readonly JobFolder<EvaluationJob> _jobs = new(batches.Database.Jobs, Kind,
+        Path.Combine(Path.GetFullPath(options.Value.DataRoot), ".strayspot", "evaluations"), batches.Options.LeaseTime, batches.Options.PollInterval);
 
-    public IReadOnlyList<EvaluationJob> List() => _jobs.All.OrderByDescending(j => j.CreatedUtc).ToList();
+    public IReadOnlyList<EvaluationJob> List() => _jobs.All;
 
     public bool TryGet(string id, out EvaluationJob job) => _jobs.TryGet(id, out job);
 
@@ -73,38 +73,27 @@ public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalo
             FramesTotal = opened.Items.Count,
             CreatedUtc = DateTimeOffset.UtcNow,
         };
-        _jobs.Save(job);
-        _queue.Enqueue(job.Id);
-        _wake.Release();
+        _jobs.Add(job);
         return job;
     }
 
-    protected override async Task ExecuteAsync(CancellationToken stop)
-    {
-        foreach (var job in _jobs.Load((file, reason) => log.LogWarning("Skipping unreadable evaluation job {File}: {Reason}", file, reason)))
-            if (job.State is "queued" or "running") _queue.Enqueue(job.Id);
-        while (!stop.IsCancellationRequested)
-        {
-            while (_queue.TryDequeue(out string? id))
-                if (_jobs.TryGet(id, out var job)) await Task.Run(() => RunJob(job), CancellationToken.None);
-            try { await _wake.WaitAsync(stop); } catch (OperationCanceledException) { break; }
-        }
-    }
+    protected override Task ExecuteAsync(CancellationToken stop) =>
+        batches.Options.WorkerOnly ? Task.CompletedTask : _jobs.RunAsync(RunJob, log, stop);
 
-    private void RunJob(EvaluationJob job)
+    private void RunJob(EvaluationJob job, JobClaim<EvaluationJob> claim)
     {
         try
         {
             if (!catalog.TryGet(job.Model, out var entry) || !entry.IsUsable)
                 throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model '{job.Model}' is not installed or not usable.");
-            _jobs.Save(job = job with { State = "running", FramesDone = 0 });
+            job = claim.Save(job with { State = "running", FramesDone = 0 });
             var running = job;
             var settings = new EvaluationSettings { Exact = job.Exact, TargetTpr = job.TargetTpr, TargetFpr = job.TargetFpr };
             using var model = sessions.Borrow(entry);
             var dataset = EvaluationDataset.Open(SafePath.Resolve(options.Value.DataRoot, job.Dataset), model.Version.ClassCount);
             Evaluator.Run(runner, model, dataset, Path.Combine(_jobs.FolderOf(job.Id), "out"),
-                settings, new Progress(p => _jobs.Save(running = running with { FramesDone = p.Done, FramesTotal = p.Total })));
-            _jobs.Save(running with
+                settings, new Progress(p => running = claim.Save(running with { FramesDone = p.Done, FramesTotal = p.Total })));
+            claim.Finish(running with
             {
                 State = "done",
                 FinishedUtc = DateTimeOffset.UtcNow,
@@ -113,7 +102,7 @@ public sealed class EvaluationJobs(IOptions<ServiceOptions> options, ModelCatalo
         }
         catch (Exception e) when (e is Strayspot.Scoring.CodedException or IOException)
         {
-            _jobs.Save(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
+            claim.Finish(job with { State = "failed", Error = ClientPaths.Relative(e.Message, options.Value.DataRoot), FinishedUtc = DateTimeOffset.UtcNow });
             log.LogWarning("Evaluation {JobId} of {Model} failed: {Reason}", job.Id, job.Model, e.Message);
         }
     }

@@ -67,10 +67,23 @@ public sealed class FramePreprocessor
         int total = 3 * box.InputHeight * box.InputWidth;
         if (_buffer.Length < total) _buffer = new float[total];
         var data = _buffer.AsMemory(0, total);
+        var image = frame.Image;
+        long[] shape = _nhwc ? [1, box.InputHeight, box.InputWidth, 3] : [1, 3, box.InputHeight, box.InputWidth];
+        if (box.ContentHeight == frame.Height && box.ContentWidth == frame.Width && box.InputHeight == frame.Height
+            && box.InputWidth == frame.Width && !_nhwc)
+        {
+            // The frame is the input's size: no resampling, no padding; every value is written, so nothing to clear.
+            int bands0 = Math.Min(Environment.ProcessorCount * 2, frame.Height);
+            Parallel.For(0, bands0, band =>
+            {
+                int y0 = (int)((long)frame.Height * band / bands0), y1 = (int)((long)frame.Height * (band + 1) / bands0);
+                for (int y = y0; y < y1; y++) WritePlanar(image.DangerousGetPixelRowMemory(y).Span, y, box, data.Span);
+            });
+            return new PreparedInput(data, shape, box);
+        }
         // Padding is zero after normalization.
         data.Span.Clear();
         PrepareColumns(frame.Width, box.ContentWidth);
-        var image = frame.Image;
         double sy = (double)frame.Height / box.ContentHeight;
         int bands = Math.Min(Environment.ProcessorCount * 2, box.ContentHeight);
         Parallel.For(0, bands, band =>
@@ -91,8 +104,28 @@ public sealed class FramePreprocessor
                 Write(row, y, box, data.Span);
             }
         });
-        long[] shape = _nhwc ? [1, box.InputHeight, box.InputWidth, 3] : [1, 3, box.InputHeight, box.InputWidth];
         return new PreparedInput(data, shape, box);
+    }
+
+    /// <summary>One frame row straight into the three planes: the same value × scale + offset as the resampling path with zero weights.</summary>
+    private void WritePlanar(ReadOnlySpan<Rgb24> pixels, int y, ContentBox box, Span<float> dst)
+    {
+        int w = box.ContentWidth, plane = box.InputHeight * box.InputWidth;
+        var r = dst.Slice(y * box.InputWidth, w);
+        var g = dst.Slice(plane + y * box.InputWidth, w);
+        var b = dst.Slice(2 * plane + y * box.InputWidth, w);
+        // Model channel c reads source channel _sourceChannel[c]: R, G, B in rgb order, reversed in bgr order.
+        bool bgr = _sourceChannel[0] == 2;
+        float k0 = _scale[0], k1 = _scale[1], k2 = _scale[2], o0 = _offset[0], o1 = _offset[1], o2 = _offset[2];
+        pixels = pixels[..w];
+        for (int x = 0; x < pixels.Length; x++)
+        {
+            var p = pixels[x];
+            float first = bgr ? p.B : p.R, third = bgr ? p.R : p.B;
+            r[x] = first * k0 + o0;
+            g[x] = (float)p.G * k1 + o1;
+            b[x] = third * k2 + o2;
+        }
     }
 
     private void PrepareColumns(int srcWidth, int dstWidth)

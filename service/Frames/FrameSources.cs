@@ -17,7 +17,14 @@ public static class FrameFormats
 /// One frame of a source, not yet decoded: a stable <see cref="Id"/> (its path relative to the source, with '/'),
 /// its place in the source and, for sources with a clock (recordings), its time from the start.
 /// </summary>
-public sealed record SourceFrame(string Id, int Index, TimeSpan? Timestamp, string? Path, Func<FrameDecoder, DecodedFrame> Decode);
+public sealed record SourceFrame(string Id, int Index, TimeSpan? Timestamp, string? Path, Func<FrameDecoder, DecodedFrame> Decode)
+{
+    /// <summary>An archive's frame: the archive's path and the entry, <c>ARCHIVE!ENTRY</c> (its <see cref="Path"/> is a temporary copy).</summary>
+    public string? InArchive { get; init; }
+
+    /// <summary>How reports name the frame to the user: inside its archive, else its file, else its id.</summary>
+    public string Shown => InArchive ?? Path ?? Id;
+}
 
 /// <summary>Where frames come from: a file, a folder, an archive, an upload; later a recording. Frames stream in order.</summary>
 public interface IFrameSource
@@ -73,12 +80,15 @@ public sealed class FolderFrameSource(string folder, bool recursive = true) : IF
 /// <summary>A .zip or .tar(.gz) of frames, unpacked (with the batch archive's checks) into a folder the caller owns.</summary>
 public sealed class ArchiveFrameSource(string archivePath, string unpackInto, Batches.ArchiveLimits limits) : IFrameSource
 {
+    /// <summary>Between an archive's path and an entry's name (archive paths end in .zip or .tar, so it cannot be misread).</summary>
+    public const char EntrySeparator = '!';
+
     public string Name { get; } = System.IO.Path.GetFullPath(archivePath);
 
     public IEnumerable<SourceFrame> Frames()
     {
         Batches.BatchArchive.Extract(Name, System.IO.Path.GetFileName(Name), unpackInto, limits);
-        return new FolderFrameSource(unpackInto).Frames();
+        return new FolderFrameSource(unpackInto).Frames().Select(f => f with { InArchive = Name + EntrySeparator + f.Id });
     }
 }
 

@@ -31,6 +31,9 @@ public sealed record CatalogEntry(
     /// <summary>SHA-256 of model.onnx when the folder has one (logits-only folders do not).</summary>
     public string? Sha256 { get; init; }
 
+    /// <summary>The stable code of <see cref="Error"/>, when the failure had one (e.g. calibration-model-mismatch).</summary>
+    public string? ErrorCode { get; init; }
+
     /// <summary>What the frame runner borrows: weights, descriptor, statistics and profile as one version; null when unusable.</summary>
     public Inference.ModelVersion? Version { get; init; }
 
@@ -95,17 +98,20 @@ public sealed class ModelCatalog(IOptions<ServiceOptions> options, ILogger<Model
                 throw new ScoringInputException(ScoringErrorCodes.StatisticsMismatch,
                     $"{calibration!.File} describes {statistics.Count} classes but {DescriptorFile} lists {descriptor.Classes.Count}.");
             string? sha = HashModel(folder);
-            if (sha is not null && calibration?.File == CalibrationFile)
+            Strayspot.Service.Calibration.CalibrationArtifact? artifact = null;
+            if (calibration?.File == CalibrationFile)
             {
+                artifact = Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile));
                 // Statistics measured through other weights would standardize with the wrong means: refuse them.
-                Strayspot.Service.Calibration.CalibrationArtifact.Load(Path.Combine(folder, CalibrationFile)).EnsureMatches(descriptor, sha, folder);
+                if (sha is not null) artifact.EnsureMatches(descriptor, sha, folder);
             }
-            var version = Inference.ModelVersion.Of(name, folder, descriptor, sha, statistics, calibration?.File, profile);
+            // The calibration rides along so frame reports can warn about frames far from its size.
+            var version = Inference.ModelVersion.Of(name, folder, descriptor, sha, statistics, calibration?.File, profile, artifact);
             return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, null) { Sha256 = sha, Version = version };
         }
         catch (Exception e) when (e is ScoringInputException or ModelException or IOException or UnauthorizedAccessException or JsonException)
         {
-            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, e.Message);
+            return new CatalogEntry(name, folder, descriptor, statistics, calibration, profile, e.Message) { ErrorCode = (e as Strayspot.Scoring.CodedException)?.Code };
         }
     }
 

@@ -126,12 +126,14 @@ public static class ServiceHost
         // IntraOpThreads 0: the container's CPU quota decides, not the host's core count.
         services.AddSingleton(sp =>
         {
-            int threads = sp.GetRequiredService<IOptions<ServiceOptions>>().Value.IntraOpThreads;
-            return Inference.ParallelSettings.FromThreads(threads > 0 ? threads : CpuBudget.Current.IntraOpThreads);
+            var o = sp.GetRequiredService<IOptions<ServiceOptions>>().Value;
+            return Inference.ParallelSettings.FromThreads(o.IntraOpThreads > 0 ? o.IntraOpThreads : CpuBudget.Current.IntraOpThreads)
+                with { MemoryPattern = o.OnnxMemoryPattern, NetworkRunsAtOnce = o.NetworkRunsAtOnce };
         });
         services.AddSingleton(sp => new Inference.ModelRegistry(sp.GetRequiredService<Inference.ParallelSettings>()));
         services.AddSingleton<ModelSessions>();
         services.AddHostedService<ModelSessionLoader>();
+        services.AddHostedService<ModelFolderWatch>();
         services.AddSingleton<Readiness>();
         services.AddSingleton<FrameGate>();
         services.AddSingleton<ScoringLane>();

@@ -22,8 +22,12 @@ public sealed class ServiceOptions
     public long MaxRequestBytes { get; set; } = 64L * 1024 * 1024;
     /// <summary>Largest frame (width × height) accepted, for images and for the frame size given with logits.</summary>
     public long MaxPixels { get; set; } = 4096L * 4096;
-    /// <summary>Frames scored at the same time; the rest wait in a bounded queue.</summary>
-    public int MaxConcurrentFrames { get; set; } = Environment.ProcessorCount;
+    /// <summary>
+    /// Frames scored at the same time; the rest wait in a bounded queue. Unset, the container's CPU quota decides
+    /// (<see cref="CpuBudget.FramesInFlight"/>): a second frame at once on fewer than 4 CPUs only splits the cores
+    /// between two networks and grows ONNX Runtime's arena by another frame's worth of buffers.
+    /// </summary>
+    public int MaxConcurrentFrames { get; set; } = CpuBudget.Current.FramesInFlight;
     /// <summary>Frames allowed to wait for a slot; beyond this a request gets 429 at once.</summary>
     public int MaxQueuedFrames { get; set; } = 16;
     /// <summary>Budget for one frame, queueing included.</summary>
@@ -32,6 +36,16 @@ public sealed class ServiceOptions
     public List<ApiKeyOptions> ApiKeys { get; set; } = new();
     /// <summary>Threads one model inference may use (ONNX Runtime intra-op); 0 = from the container's CPU quota (<see cref="CpuBudget"/>).</summary>
     public int IntraOpThreads { get; set; }
+    /// <summary>
+    /// ONNX Runtime's memory pattern (pre-planned buffers per input shape). Off by default: measured on the demo model at
+    /// 1024×512 it held a few hundred MB per session for no measurable speed (README, Benchmarks).
+    /// </summary>
+    public bool OnnxMemoryPattern { get; set; }
+    /// <summary>
+    /// Inferences one model session runs at once (0: as many as frames in flight). Below Service:MaxConcurrentFrames,
+    /// the other frames decode, preprocess and score while the network runs.
+    /// </summary>
+    public int NetworkRunsAtOnce { get; set; }
     /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
     public double DriftHalfLifeFrames { get; set; } = 500;
     /// <summary>Overall drift, in calibrated standard deviations, that raises the drift warning (our default; tune per fleet).</summary>
@@ -69,6 +83,7 @@ public sealed class ServiceOptionsValidator(ListenAddresses listen) : IValidateO
         Check(o.MaxConcurrentFrames is >= 1 and <= 1024, $"Service:MaxConcurrentFrames must be 1..1024; got {o.MaxConcurrentFrames}.");
         Check(o.MaxQueuedFrames is >= 0 and <= 100_000, $"Service:MaxQueuedFrames must be 0..100000; got {o.MaxQueuedFrames}.");
         Check(o.RequestTimeout > TimeSpan.Zero, $"Service:RequestTimeout must be positive; got {o.RequestTimeout}.");
+        Check(o.NetworkRunsAtOnce is >= 0 and <= 1024, $"Service:NetworkRunsAtOnce must be 0..1024; got {o.NetworkRunsAtOnce}.");
         Check(o.IntraOpThreads is >= 0 and <= 1024, $"Service:IntraOpThreads must be 0..1024; got {o.IntraOpThreads}.");
 
         for (int i = 0; i < o.ApiKeys.Count; i++)

@@ -14,11 +14,9 @@ namespace Strayspot.Service.Inference;
 public sealed class FrameFolderWriter
 {
     private readonly IReadOnlyList<Rgb24> _colors;
-    private readonly ModelVersion _model;
 
     public FrameFolderWriter(ModelVersion model)
     {
-        _model = model;
         _colors = ArtifactWriter.ColorsOf(model.Descriptor);
         ClassNames = model.ClassNames;
         Model = new ModelReport(model.Name, model.WeightsSha256 ?? "", model.Profile.Version);
@@ -30,10 +28,7 @@ public sealed class FrameFolderWriter
     /// <summary>The frame report with every stage time: preprocess and inference (when the network ran) and the scoring core's.</summary>
     public FrameReport Report(FrameScoring scored, FrameTimings timings, ScoringOptions options, string frameId, LogitsReport? logits = null)
     {
-        var report = FrameReport.From(scored, options, ClassNames, frameId, Model, logits) with
-        {
-            Warnings = _model.WarningsFor(scored.Width, scored.Height, options),
-        };
+        var report = FrameReport.From(scored, options, ClassNames, frameId, Model, logits) with { Warnings = timings.Warnings };
         if (timings.Preprocess > TimeSpan.Zero || timings.Inference > TimeSpan.Zero)
         {
             report.TimingsMs["preprocess"] = timings.Preprocess.TotalMilliseconds;

@@ -7,8 +7,14 @@ using Strayspot.Service.Frames;
 
 namespace Strayspot.Service.Inference;
 
-/// <summary>Wall time of one frame's stages around and in the scoring core (zero for a stage that did not run).</summary>
-public sealed record FrameTimings(TimeSpan Preprocess, TimeSpan Inference, TimeSpan Scoring);
+/// <summary>
+/// Wall time of one frame's stages around and in the scoring core (zero for a stage that did not run), and the
+/// warnings the runner found for the frame (<see cref="Reports.ScoringWarnings"/>): every path gets them from here.
+/// </summary>
+public sealed record FrameTimings(TimeSpan Preprocess, TimeSpan Inference, TimeSpan Scoring)
+{
+    public IReadOnlyList<Reports.ReportWarning> Warnings { get; init; } = [];
+}
 
 /// <summary>Sees every frame the runner scores: the service's drift watch and metrics, or nothing on the command line.</summary>
 public interface IFrameObserver
@@ -37,7 +43,7 @@ public sealed class FrameRunner(IFrameObserver? observer = null)
         try
         {
             var scored = Network(model, frame, (logits, _) => pipeline.Score(logits, frame.Height, frame.Width), out var pre, out var inference, cancel);
-            var timings = new FrameTimings(pre, inference, scored.Timings.Total);
+            var timings = new FrameTimings(pre, inference, scored.Timings.Total) { Warnings = slot.Version.WarningsFor(frame.Width, frame.Height, used) };
             observer?.Scored(slot.Version, ScoringMethods.Of(used.Method).Name, scored.MaxLogit, scored.ClassIndex, scored.Regions.Regions.Count, timings);
             cancel.ThrowIfCancellationRequested();
             return consume(scored, timings);
@@ -59,7 +65,7 @@ public sealed class FrameRunner(IFrameObserver? observer = null)
         try
         {
             var scored = pipeline.Score(logits, frameHeight, frameWidth);
-            var timings = new FrameTimings(TimeSpan.Zero, TimeSpan.Zero, scored.Timings.Total);
+            var timings = new FrameTimings(TimeSpan.Zero, TimeSpan.Zero, scored.Timings.Total) { Warnings = slot.Version.WarningsFor(frameWidth, frameHeight, used) };
             observer?.Scored(slot.Version, ScoringMethods.Of(used.Method).Name, scored.MaxLogit, scored.ClassIndex, scored.Regions.Regions.Count, timings);
             cancel.ThrowIfCancellationRequested();
             return consume(scored, timings);

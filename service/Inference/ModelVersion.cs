@@ -76,8 +76,8 @@ public sealed class ModelVersion
 
     /// <summary>A version the catalog has already read and checked.</summary>
     public static ModelVersion Of(string name, string folder, ModelDescriptor descriptor, string? weightsSha256,
-        ClassStatistics? statistics, string? statisticsSource, ScoringProfile profile) =>
-        new(name, folder, descriptor, weightsSha256, statistics, statisticsSource, profile);
+        ClassStatistics? statistics, string? statisticsSource, ScoringProfile profile, CalibrationArtifact? calibration = null) =>
+        new(name, folder, descriptor, weightsSha256, statistics, statisticsSource, profile, calibration);
 
     /// <summary>
     /// Reads a model folder: descriptor, model.onnx's hash, class statistics (a calibration bound to those weights,

@@ -14,6 +14,10 @@ public sealed record ParallelSettings
     public int ScoringThreads { get; init; } = -1;
     /// <summary>Run each new session once with a dummy input before it serves frames.</summary>
     public bool WarmUp { get; init; } = true;
+    /// <summary>ONNX Runtime's memory pattern for every session (<see cref="ModelRuntimeOptions.MemoryPattern"/>).</summary>
+    public bool MemoryPattern { get; init; }
+    /// <summary>Inferences per session at once (<see cref="ModelRuntimeOptions.RunsAtOnce"/>; 0: no limit).</summary>
+    public int NetworkRunsAtOnce { get; init; }
 
     public static ParallelSettings Default { get; } = new();
 
@@ -29,5 +33,5 @@ public sealed record ParallelSettings
         };
     }
 
-    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp };
+    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern, RunsAtOnce = NetworkRunsAtOnce };
 }

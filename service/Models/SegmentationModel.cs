@@ -21,6 +21,8 @@ public sealed class SegmentationModel : IDisposable
     private readonly string[] _outputNames;
     // Never terminated, so sharing it across threads is safe; callers who cancel pass their own.
     private readonly RunOptions _defaultRunOptions = new();
+    /// <summary>Null: no limit on inferences at once (<see cref="ModelRuntimeOptions.RunsAtOnce"/>).</summary>
+    private SemaphoreSlim? _runs;
     // Live sessions per model file in this process: what the checks of "one session per model" count.
     private static readonly System.Collections.Concurrent.ConcurrentDictionary<string, int> LiveByPath = new(StringComparer.Ordinal);
     private int _disposed;
@@ -53,16 +55,7 @@ public sealed class SegmentationModel : IDisposable
     public string FolderName => Path.GetFileName(Path.GetDirectoryName(Path.GetFullPath(ModelPath))) ?? Descriptor.Name;
 
     /// <summary>Refuses a scoring method the model's output cannot support, naming the ones it can.</summary>
-    public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method)
-    {
-        if (OutputsProbabilities && !Strayspot.Scoring.Pipeline.ScoreMethodInputs.WorksOnProbabilities(method))
-            throw new ModelException(ModelErrorCodes.MethodNeedsLogits,
-                $"Model '{FolderName}' outputs probabilities (output.kind), so the {MethodName(method)} method cannot be used: it needs the raw logits " +
-                "that the final softmax discards. Use --method msp or --method entropy, or export the model without its final Softmax and set output.kind to 'logits'.");
-    }
-
-    private static string MethodName(Strayspot.Scoring.Pipeline.ScoreMethod m) =>
-        System.Text.Json.JsonSerializer.Serialize(m).Trim('"');
+    public void EnsureMethodFits(Strayspot.Scoring.Pipeline.ScoreMethod method) => ModelReadiness.EnsureMethodFits(Descriptor, FolderName, method);
     public TimeSpan LoadTime { get; private set; }
 
     /// <summary>Refuses a path that is not a model folder; given the model file itself, names the folder to pass.</summary>
@@ -105,6 +98,7 @@ public sealed class SegmentationModel : IDisposable
             InterOpNumThreads = 1,
             GraphOptimizationLevel = options.OptimizationLevel,
             ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            EnableMemoryPattern = options.MemoryPattern,
         };
         so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
         InferenceSession session;
@@ -118,6 +112,7 @@ public sealed class SegmentationModel : IDisposable
             throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
         }
         var model = new SegmentationModel(session, descriptor, modelPath, sha, facts);
+        if (options.RunsAtOnce > 0) model._runs = new SemaphoreSlim(options.RunsAtOnce, options.RunsAtOnce);
         try
         {
             model.CheckSignature();
@@ -210,6 +205,7 @@ public sealed class SegmentationModel : IDisposable
     {
         using var value = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data, shape);
         IDisposableReadOnlyCollection<OrtValue> outputs;
+        _runs?.Wait();
         try
         {
             outputs = _session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
@@ -218,6 +214,10 @@ public sealed class SegmentationModel : IDisposable
         {
             throw new ModelException(ModelErrorCodes.ModelInvalid,
                 $"The model failed on an input of shape [{string.Join(", ", shape)}]: {e.Message}", e);
+        }
+        finally
+        {
+            _runs?.Release();
         }
         try
         {
@@ -248,5 +248,6 @@ public sealed class SegmentationModel : IDisposable
         LiveByPath.AddOrUpdate(Path.GetFullPath(ModelPath), 0, (_, n) => n - 1);
         _session.Dispose();
         _defaultRunOptions.Dispose();
+        _runs?.Dispose();
     }
 }

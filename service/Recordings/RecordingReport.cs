@@ -86,6 +86,8 @@ public sealed record RecordingReport
     [JsonPropertyName("tracks")] public IReadOnlyList<TrackReport> Tracks { get; init; } = [];
     [JsonPropertyName("segments")] public IReadOnlyList<TimeSegment> Segments { get; init; } = [];
     [JsonPropertyName("notes")] public IReadOnlyList<string> Notes { get; init; } = [];
+    /// <summary>The frame runner's warnings (one frame size and one set of options per recording, so one list for all frames).</summary>
+    [JsonPropertyName("warnings")] public IReadOnlyList<ReportWarning> Warnings { get; init; } = [];
     [JsonPropertyName("timingsMs")] public Dictionary<string, double> TimingsMs { get; init; } = new();
     [JsonPropertyName("notice")] public string Notice { get; init; } = SafetyNotice.Text;
 }

@@ -64,6 +64,7 @@ public static class RecordingRun
         }
         double decodeMs = 0, scoreMs = 0;
         int scored = 0;
+        IReadOnlyList<ReportWarning>? warnings = null;
         string framesPath = Path.Combine(folder, FramesFile);
         using (var lines = new StreamWriter(framesPath + ".part"))
         {
@@ -74,8 +75,9 @@ public static class RecordingRun
                 using (rf)
                 {
                     long s0 = Stopwatch.GetTimestamp();
-                    var line = runner.Score(model, rf.Frame, options, (s, _) =>
+                    var line = runner.Score(model, rf.Frame, options, (s, t) =>
                     {
+                        warnings ??= t.Warnings;
                         var regions = s.Regions.Regions;
                         var assigned = linker.Add(rf.Sample, rf.Index, rf.TimeSeconds, s.Width, s.Height, regions);
                         Spill(linker.TakeClosed());
@@ -119,7 +121,7 @@ public static class RecordingRun
             Threshold = options.Threshold, Linking = tracking.Linking, MinimumFramesSeen = tracking.MinimumFramesSeen,
             TracksFound = spilled.Count, TracksKept = keptTracks.Count, Tracks = keptTracks,
             Segments = Segments(keptTracks, tracking.SegmentGapSeconds),
-            Notes = recording.Notes.ToList(),
+            Notes = recording.Notes.ToList(), Warnings = warnings ?? [],
             TimingsMs = new() { ["decode"] = Math.Round(decodeMs, 1), ["score"] = Math.Round(scoreMs, 1) },
         };
         // Streamed out: every track with its sightings, read back one at a time in id order.

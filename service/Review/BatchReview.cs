@@ -4,6 +4,7 @@ using Strayspot.Service.Batches;
 using Strayspot.Service.Evaluation;
 using Strayspot.Service.Hosting;
 using Strayspot.Service.Inference;
+using Strayspot.Service.Recordings;
 using Strayspot.Service.Rendering;
 using Strayspot.Service.Reports;
 
@@ -19,6 +20,8 @@ public static class ReviewErrorCodes
     public const string FrameNotScored = "frame-not-scored";
     public const string RegionNotFound = "region-not-found";
     public const string NoteTooLong = "note-too-long";
+    public const string TrackNotFound = "track-not-found";
+    public const string NotARecording = "not-a-recording";
 }
 
 public sealed record ReviewClass(
@@ -37,14 +40,15 @@ public sealed record ReviewProvenance(
     [property: JsonPropertyName("threshold")] float? Threshold,
     [property: JsonPropertyName("calibration")] CalibrationSummary? Calibration);
 
-/// <summary>One frame in the review list.</summary>
+/// <summary>One frame in the review list; a recording's regions are its kept tracks.</summary>
 public sealed record ReviewFrameItem(
     [property: JsonPropertyName("seq")] int Seq,
     [property: JsonPropertyName("frameId")] string FrameId,
     [property: JsonPropertyName("frameScore")] float? FrameScore,
     [property: JsonPropertyName("regionCount")] int RegionCount,
     [property: JsonPropertyName("regionsDecided")] int RegionsDecided,
-    [property: JsonPropertyName("verdict")] string? Verdict);
+    [property: JsonPropertyName("verdict")] string? Verdict,
+    [property: JsonPropertyName("recording"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingDefault)] bool Recording = false);
 
 public sealed record EvaluationLink(
     [property: JsonPropertyName("id")] string Id,
@@ -74,10 +78,11 @@ public sealed record ReviewFrame(
     [property: JsonPropertyName("regions")] IReadOnlyList<ManifestRegion> Regions,
     [property: JsonPropertyName("decision")] Decision? Decision,
     [property: JsonPropertyName("files")] IReadOnlyDictionary<string, string> Files,
-    [property: JsonPropertyName("heatScale")] HeatScale? HeatScale = null);
+    [property: JsonPropertyName("heatScale")] HeatScale? HeatScale = null,
+    [property: JsonPropertyName("recording"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] string? Recording = null);
 
 /// <summary>Reviewing a batch: its overview, its frames one by one, and the decisions on them.</summary>
-public sealed class BatchReview(BatchService batches, ModelCatalog catalog, EvaluationJobs evaluations)
+public sealed partial class BatchReview(BatchService batches, ModelCatalog catalog, EvaluationJobs evaluations)
 {
     /// <summary>Long enough for a sentence or two of context; a note is not a document store.</summary>
     public const int MaxNoteLength = 2000;
@@ -94,7 +99,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
     {
         var batch = Batch(id);
         var frames = batches.Store.FrameSummaries(id);
-        var decisions = batches.Decisions.Current(id);
+        var decisions = batches.Decisions.Effective(id);
         var decided = new Dictionary<int, int>();
         var frameVerdicts = new Dictionary<int, string>();
         foreach (var d in decisions)
@@ -106,7 +111,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var ranked = withFrames ? frames.Where(f => f.State == FrameStates.Done) : [];
         foreach (var f in ranked.OrderByDescending(f => f.FrameScore ?? float.NegativeInfinity).ThenBy(f => f.Seq))
             items.Add(new ReviewFrameItem(f.Seq, f.FrameId, f.FrameScore, f.RegionCount ?? 0, decided.GetValueOrDefault(f.Seq),
-                frameVerdicts.GetValueOrDefault(f.Seq)));
+                frameVerdicts.GetValueOrDefault(f.Seq), Recordings.VideoRecording.IsVideoFile(f.FrameId)));
 
         catalog.TryGet(batch.Model, out var entry);
         var classes = new List<ReviewClass>();
@@ -122,7 +127,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var evaluation = evaluations.List().FirstOrDefault(j => j.Model == batch.Model && j.State == "done");
         var link = evaluation is null ? null
             : new EvaluationLink(evaluation.Id, evaluation.FinishedUtc, $"/v1/evaluations/{evaluation.Id}/files/{EvaluationOutputs.MarkdownFile}");
-        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions), link, items, SafetyNotice.Text);
+        return new ReviewOverview(BatchView.From(batch), provenance, classes, ReviewTally.Count(frames, batches.Store.RegionBriefs(id), decisions, entry?.Descriptor?.Classes.Select(c => c.Name).ToList()), link, items, SafetyNotice.Text);
     }
 
     public ReviewFrame Frame(string id, int seq)
@@ -132,16 +137,29 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         var regions = Manifest.ReadRegions(frame.RegionsJson);
         Decision? frameDecision = null;
         var byRegion = new Dictionary<int, Decision>();
-        foreach (var d in batches.Decisions.Current(id, seq))
+        foreach (var d in batches.Decisions.Effective(id, seq))
         {
             if (d.Region is int r) byRegion[r] = d;
             else frameDecision = d;
         }
         for (int i = 0; i < regions.Count; i++)
             if (byRegion.TryGetValue(regions[i].Id, out var d)) regions[i] = regions[i] with { Decision = DecisionMark.From(d) };
+        if (BatchRecordings.IsRecordingReport(frame.ReportPath!))
+        {
+            // A recording has no frame images of its own: the page draws its timeline from the recording route.
+            RecordingReport? recording = null;
+            try { recording = ReadRecordingReport(RecordingFolder(batch, frame), seq); }
+            catch (ReviewException) { } // its decisions can still be listed; the recording route says what is missing
+            return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, recording?.Threshold, null,
+                recording?.Frame.Width ?? 0, recording?.Frame.Height ?? 0, regions, frameDecision,
+                new Dictionary<string, string>(StringComparer.Ordinal) { ["source"] = $"/v1/batches/{id}/frames/{seq}/files/source" },
+                Recording: $"/v1/batches/{id}/frames/{seq}/recording");
+        }
         var report = ReadReport(batch, frame);
         var (width, height) = report is null ? MaskSize(batch, frame) : (report.Frame.Width, report.Frame.Height);
-        var files = FrameFiles.ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
+        // Only the artifacts the batch's frames were given (the batch's artifacts field).
+        var files = FrameFiles.Where(f => f is "source" or ArtifactWriter.Report || batch.Artifacts.Contains(f))
+            .ToDictionary(f => f, f => $"/v1/batches/{id}/frames/{seq}/files/{f}", StringComparer.Ordinal);
         return new ReviewFrame(frame.Seq, frame.FrameId, frame.SourcePath, frame.FrameScore, report?.Threshold, report?.ScoreRange,
             width, height, regions, frameDecision, files, report?.HeatScale);
     }
@@ -173,6 +191,15 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
     /// <summary>Stores a decision on a region (or, with <paramref name="region"/> null, on the whole frame); last write wins.</summary>
     public Decision Decide(string id, int seq, int? region, string? verdict, string? note, string? decidedBy)
     {
+        note = CheckVerdict(verdict, note);
+        var batch = Batch(id);
+        CheckTarget(batch, seq, region);
+        return batches.Decisions.Decide(id, seq, region, verdict!, note, decidedBy);
+    }
+
+    /// <summary>Refuses an unknown verdict or a bad note; returns the note as kept (trimmed, null when blank).</summary>
+    private static string? CheckVerdict(string? verdict, string? note)
+    {
         if (!Verdicts.IsKnown(verdict))
             throw new ReviewException(Api.ErrorCodes.ValidationFailed,
                 $"'verdict' must be one of {string.Join(", ", Verdicts.All)}; got {(verdict is null ? "none" : $"'{verdict}'")}.");
@@ -181,9 +208,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
             throw new ReviewException(Api.ErrorCodes.NoteTooLong, $"The note has {note.Length} characters; at most {MaxNoteLength} are kept.");
         if (note is not null && note.Any(c => char.IsControl(c) && c is not ('\n' or '\t')))
             throw new ReviewException(Api.ErrorCodes.ValidationFailed, "The note holds control characters; only text, tabs and line breaks are kept.");
-        var batch = Batch(id);
-        CheckTarget(batch, seq, region);
-        return batches.Decisions.Decide(id, seq, region, verdict!, note, decidedBy);
+        return note;
     }
 
     /// <summary>Withdraws a decision; false when the target had none.</summary>
@@ -199,7 +224,7 @@ public sealed class BatchReview(BatchService batches, ModelCatalog catalog, Eval
         Batch(id);
         if (verdict is not null && !Verdicts.IsKnown(verdict))
             throw new ReviewException(Api.ErrorCodes.ValidationFailed, $"'verdict' must be one of {string.Join(", ", Verdicts.All)}; got '{verdict}'.");
-        var all = batches.Decisions.Current(id);
+        var all = batches.Decisions.Effective(id);
         return verdict is null ? all : all.Where(d => d.Verdict == verdict).ToList();
     }
 

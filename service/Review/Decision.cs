@@ -19,6 +19,8 @@ public static class Verdicts
 /// <summary>
 /// The current decision on one target of a batch: a region (1, 2, ...) or the whole frame (<see cref="Region"/> null).
 /// <see cref="Revision"/> grows with every write to the batch's decisions, so a later write always has a higher one.
+/// <see cref="Track"/> is set on a decision made on a whole track of a recording (<see cref="Seq"/> is the recording);
+/// on a region it names the track whose decision the region carries (see <see cref="TrackDecisions"/>).
 /// </summary>
 public sealed record Decision(
     [property: JsonPropertyName("seq")] int Seq,
@@ -28,7 +30,8 @@ public sealed record Decision(
     [property: JsonPropertyName("note")] string? Note,
     [property: JsonPropertyName("decidedBy")] string? DecidedBy,
     [property: JsonPropertyName("decidedAt")] DateTimeOffset DecidedAt,
-    [property: JsonPropertyName("revision")] long Revision);
+    [property: JsonPropertyName("revision")] long Revision,
+    [property: JsonPropertyName("track"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] int? Track = null);
 
 /// <summary>One write to a batch's decisions, kept for the record; a null verdict means the decision was withdrawn.</summary>
 public sealed record DecisionEntry(
@@ -39,14 +42,16 @@ public sealed record DecisionEntry(
     [property: JsonPropertyName("verdict")] string? Verdict,
     [property: JsonPropertyName("note")] string? Note,
     [property: JsonPropertyName("decidedBy")] string? DecidedBy,
-    [property: JsonPropertyName("decidedAt")] DateTimeOffset DecidedAt);
+    [property: JsonPropertyName("decidedAt")] DateTimeOffset DecidedAt,
+    [property: JsonPropertyName("track"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] int? Track = null);
 
-/// <summary>The part of a decision that travels with a manifest line or region.</summary>
+/// <summary>The part of a decision that travels with a manifest line or region; <see cref="Track"/> when it was made on the region's track.</summary>
 public sealed record DecisionMark(
     [property: JsonPropertyName("verdict")] string Verdict,
     [property: JsonPropertyName("note")] string? Note,
     [property: JsonPropertyName("decidedBy")] string? DecidedBy,
-    [property: JsonPropertyName("decidedAt")] DateTimeOffset DecidedAt)
+    [property: JsonPropertyName("decidedAt")] DateTimeOffset DecidedAt,
+    [property: JsonPropertyName("track"), JsonIgnore(Condition = JsonIgnoreCondition.WhenWritingNull)] int? Track = null)
 {
-    public static DecisionMark From(Decision d) => new(d.Verdict, d.Note, d.DecidedBy, d.DecidedAt);
+    public static DecisionMark From(Decision d) => new(d.Verdict, d.Note, d.DecidedBy, d.DecidedAt, d.Track);
 }

@@ -26,13 +26,17 @@ public sealed record TargetCounts(
 /// the two score bounds show where a threshold would part the reviewed false alarms from the regions worth labeling.
 /// </summary>
 public sealed record ClassTally(
-    [property: JsonPropertyName("classBeneath")] string ClassBeneath,
+    [property: JsonPropertyName("classBeneathName")] string ClassBeneathName,
     [property: JsonPropertyName("regions")] int Regions,
     [property: JsonPropertyName("reviewed")] int Reviewed,
     [property: JsonPropertyName("verdicts")] VerdictCounts Verdicts,
     [property: JsonPropertyName("falseAlarmRate")] double? FalseAlarmRate,
     [property: JsonPropertyName("highestFalseAlarmScore")] float? HighestFalseAlarmScore,
-    [property: JsonPropertyName("lowestLabelItScore")] float? LowestLabelItScore);
+    [property: JsonPropertyName("lowestLabelItScore")] float? LowestLabelItScore)
+{
+    /// <summary>The class's index in the model (null when the batch's model no longer names it).</summary>
+    [JsonPropertyName("classBeneath")] public int? ClassBeneath { get; init; }
+}
 
 public sealed record ReviewCounts(
     [property: JsonPropertyName("frames")] TargetCounts Frames,
@@ -49,7 +53,9 @@ public static class ReviewTally
 {
     /// <param name="frames">The batch's frames (only done ones count).</param>
     /// <param name="regions">The regions of the done frames.</param>
-    public static ReviewCounts Count(IReadOnlyList<FrameSummary> frames, IReadOnlyList<RegionBrief> regions, IReadOnlyList<Decision> decisions)
+    /// <param name="classNames">The model's class names, to give each tally its class index.</param>
+    public static ReviewCounts Count(IReadOnlyList<FrameSummary> frames, IReadOnlyList<RegionBrief> regions, IReadOnlyList<Decision> decisions,
+        IReadOnlyList<string>? classNames = null)
     {
         var byTarget = new Dictionary<(int Seq, int? Region), string>();
         foreach (var d in decisions) byTarget[(d.Seq, d.Region)] = d.Verdict;
@@ -71,7 +77,7 @@ public static class ReviewTally
             regionTotal++;
             string? verdict = byTarget.GetValueOrDefault((r.Seq, r.Region)) ?? frameVerdict;
             Bump(verdict, ref regionLabel, ref regionFalse, ref regionUnsure);
-            if (!classes.TryGetValue(r.ClassBeneath, out var t)) classes[r.ClassBeneath] = t = new Tally();
+            if (!classes.TryGetValue(r.ClassBeneathName, out var t)) classes[r.ClassBeneathName] = t = new Tally();
             t.Add(verdict, r.MaxScore);
         }
         var regionsDecided = new Dictionary<int, int>();
@@ -86,13 +92,20 @@ public static class ReviewTally
             else if (decided > 0) framesInProgress++;
         }
         var byClass = classes
-            .Select(kv => kv.Value.ToTally(kv.Key))
-            .OrderByDescending(c => c.Reviewed).ThenByDescending(c => c.Regions).ThenBy(c => c.ClassBeneath, StringComparer.Ordinal)
+            .Select(kv => kv.Value.ToTally(kv.Key) with { ClassBeneath = IndexOf(classNames, kv.Key) })
+            .OrderByDescending(c => c.Reviewed).ThenByDescending(c => c.Regions).ThenBy(c => c.ClassBeneathName, StringComparer.Ordinal)
             .ToList();
         return new ReviewCounts(
             new TargetCounts(frameTotal, framesReviewed, new VerdictCounts(frameLabel, frameFalse, frameUnsure), framesInProgress),
             new TargetCounts(regionTotal, regionLabel + regionFalse + regionUnsure, new VerdictCounts(regionLabel, regionFalse, regionUnsure)),
             byClass);
+    }
+
+    private static int? IndexOf(IReadOnlyList<string>? names, string name)
+    {
+        for (int i = 0; i < (names?.Count ?? 0); i++)
+            if (names![i] == name) return i;
+        return null;
     }
 
     private static void Bump(string? verdict, ref int label, ref int falseAlarm, ref int unsure)

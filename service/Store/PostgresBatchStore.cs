@@ -14,13 +14,13 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
     public bool Shared => true;
 
     public (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl,
-        IReadOnlyList<NewFrame> frames) => db.InTransaction((c, tx) =>
+        IReadOnlyList<NewFrame> frames, string? artifacts = null) => db.InTransaction((c, tx) =>
     {
         var now = db.Now();
         bool created = PostgresDatabase.Exec(c, tx,
-            "INSERT INTO batches (id, model, state, source, created, updated, callback_url) VALUES (@id, @m, @state, @s, @now, @now, @cb) " +
+            "INSERT INTO batches (id, model, state, source, created, updated, callback_url, artifacts) VALUES (@id, @m, @state, @s, @now, @now, @cb, @a) " +
             "ON CONFLICT (id) DO NOTHING",
-            ("id", id), ("m", model), ("state", BatchStates.Queued), ("s", source), ("now", now), ("cb", callbackUrl)) == 1;
+            ("id", id), ("m", model), ("state", BatchStates.Queued), ("s", source), ("now", now), ("cb", callbackUrl), ("a", artifacts)) == 1;
         // The batch row is the lock that orders concurrent submits to one batch.
         PostgresDatabase.Exec(c, tx, "SELECT 1 FROM batches WHERE id = @id FOR UPDATE", ("id", id));
         var ids = new string[frames.Count];
@@ -108,7 +108,7 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
         var classes = new string[regions.Count];
         var scores = new double[regions.Count];
         for (int i = 0; i < regions.Count; i++)
-            (numbers[i], classes[i], scores[i]) = (regions[i].Id, regions[i].ClassBeneath, RegionIndex.FiniteScore(regions[i].MaxScore));
+            (numbers[i], classes[i], scores[i]) = (regions[i].Id, regions[i].IndexedClass, RegionIndex.FiniteScore(regions[i].MaxScore));
         return db.Run(c => Convert.ToInt64(PostgresDatabase.Scalar(c, null, """
             WITH f AS (UPDATE frames SET state = @doneF, frame_score = @score, region_count = @rc, report_path = @rp, regions_json = @rj,
                            error = NULL, scored_at = @now, scored_by = lease_owner, lease_owner = NULL, lease_until = NULL
@@ -154,7 +154,7 @@ public sealed class PostgresBatchStore(PostgresDatabase db) : IBatchStore
         r.GetString(r.GetOrdinal("source")), PostgresDatabase.Time(r, "created"), PostgresDatabase.Time(r, "updated"),
         r.GetInt32(r.GetOrdinal("frame_count")), r.GetInt32(r.GetOrdinal("done_count")), r.GetInt32(r.GetOrdinal("failed_count")),
         PostgresDatabase.Str(r, "callback_url"), PostgresDatabase.Str(r, "callback_state"), r.GetInt32(r.GetOrdinal("callback_attempts")),
-        PostgresDatabase.Str(r, "model_sha256"), PostgresDatabase.Str(r, "profile_version"), PostgresDatabase.Str(r, "error"));
+        PostgresDatabase.Str(r, "model_sha256"), PostgresDatabase.Str(r, "profile_version"), PostgresDatabase.Str(r, "error"), PostgresDatabase.Str(r, "artifacts"));
 
     private static FrameRecord ReadFrame(NpgsqlDataReader r)
     {

@@ -196,5 +196,33 @@ public sealed class PostgresDatabase : IDisposable
             CREATE INDEX frames_open ON frames(batch_id, seq) WHERE state = 'pending';
             """)),
         new(4, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN callback_owner text, ADD COLUMN callback_until timestamptz")),
+        new(5, tx => Exec(c, tx, """
+            CREATE TABLE jobs (
+                kind text NOT NULL,
+                id text NOT NULL,
+                state text NOT NULL,
+                created timestamptz NOT NULL,
+                updated timestamptz NOT NULL,
+                body text NOT NULL,
+                lease_owner text,
+                lease_until timestamptz,
+                PRIMARY KEY (kind, id));
+            CREATE INDEX jobs_created ON jobs(kind, created);
+            """)),
+        new(6, tx => Exec(c, tx, """
+            ALTER TABLE decision_log ADD COLUMN track integer;
+            CREATE TABLE track_decisions (
+                batch_id text NOT NULL REFERENCES batches(id),
+                seq integer NOT NULL,
+                track integer NOT NULL,
+                verdict text NOT NULL,
+                note text,
+                decided_by text,
+                decided_at timestamptz NOT NULL,
+                revision bigint NOT NULL,
+                PRIMARY KEY (batch_id, seq, track),
+                FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+            """)),
+        new(7, tx => Exec(c, tx, "ALTER TABLE batches ADD COLUMN artifacts text")),
     ];
 }

@@ -14,7 +14,7 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
     public bool Shared => false;
 
     public (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl,
-        IReadOnlyList<NewFrame> frames)
+        IReadOnlyList<NewFrame> frames, string? artifacts = null)
     {
         lock (db.Gate)
         {
@@ -23,8 +23,8 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
             bool created = GetLocked(id, tx) is null;
             if (created)
             {
-                db.Exec(tx, "INSERT INTO batches (id, model, state, source, created, updated, callback_url) VALUES ($id, $m, $state, $s, $now, $now, $cb)",
-                    ("$id", id), ("$m", model), ("$state", BatchStates.Queued), ("$s", source), ("$now", now), ("$cb", callbackUrl));
+                db.Exec(tx, "INSERT INTO batches (id, model, state, source, created, updated, callback_url, artifacts) VALUES ($id, $m, $state, $s, $now, $now, $cb, $a)",
+                    ("$id", id), ("$m", model), ("$state", BatchStates.Queued), ("$s", source), ("$now", now), ("$cb", callbackUrl), ("$a", artifacts));
             }
             int next = Convert.ToInt32(db.Scalar(tx, "SELECT COALESCE(MAX(seq), 0) FROM frames WHERE batch_id = $id", ("$id", id)), CultureInfo.InvariantCulture);
             int added = 0;
@@ -234,7 +234,7 @@ public sealed class SqliteBatchStore(SqliteDatabase db) : IBatchStore
         SqliteDatabase.ParseTime(r.GetString(r.GetOrdinal("created"))), SqliteDatabase.ParseTime(r.GetString(r.GetOrdinal("updated"))),
         r.GetInt32(r.GetOrdinal("frame_count")), r.GetInt32(r.GetOrdinal("done_count")), r.GetInt32(r.GetOrdinal("failed_count")),
         SqliteDatabase.Str(r, "callback_url"), SqliteDatabase.Str(r, "callback_state"), r.GetInt32(r.GetOrdinal("callback_attempts")),
-        SqliteDatabase.Str(r, "model_sha256"), SqliteDatabase.Str(r, "profile_version"), SqliteDatabase.Str(r, "error"));
+        SqliteDatabase.Str(r, "model_sha256"), SqliteDatabase.Str(r, "profile_version"), SqliteDatabase.Str(r, "error"), SqliteDatabase.Str(r, "artifacts"));
 
     private static FrameRecord ReadFrame(SqliteDataReader r)
     {

@@ -32,6 +32,7 @@ public sealed class SqliteDatabase : IDisposable
         Migrate();
         Exec(null, "UPDATE frames SET lease_owner = NULL, lease_until = NULL WHERE lease_owner IS NOT NULL");
         Exec(null, "UPDATE batches SET callback_owner = NULL, callback_until = NULL WHERE callback_owner IS NOT NULL");
+        Exec(null, "UPDATE jobs SET lease_owner = NULL, lease_until = NULL WHERE lease_owner IS NOT NULL");
     }
 
     public string File { get; }
@@ -187,6 +188,34 @@ public sealed class SqliteDatabase : IDisposable
             ALTER TABLE batches ADD COLUMN callback_owner TEXT;
             ALTER TABLE batches ADD COLUMN callback_until TEXT;
             """)),
+        new(5, tx => Exec(tx, """
+            CREATE TABLE jobs (
+                kind TEXT NOT NULL,
+                id TEXT NOT NULL,
+                state TEXT NOT NULL,
+                created TEXT NOT NULL,
+                updated TEXT NOT NULL,
+                body TEXT NOT NULL,
+                lease_owner TEXT,
+                lease_until TEXT,
+                PRIMARY KEY (kind, id));
+            CREATE INDEX jobs_created ON jobs(kind, created);
+            """)),
+        new(6, tx => Exec(tx, """
+            ALTER TABLE decision_log ADD COLUMN track INTEGER;
+            CREATE TABLE track_decisions (
+                batch_id TEXT NOT NULL REFERENCES batches(id),
+                seq INTEGER NOT NULL,
+                track INTEGER NOT NULL,
+                verdict TEXT NOT NULL,
+                note TEXT,
+                decided_by TEXT,
+                decided_at TEXT NOT NULL,
+                revision INTEGER NOT NULL,
+                PRIMARY KEY (batch_id, seq, track),
+                FOREIGN KEY (batch_id, seq) REFERENCES frames(batch_id, seq));
+            """)),
+        new(7, tx => Exec(tx, "ALTER TABLE batches ADD COLUMN artifacts TEXT")),
     ];
 
     public void IndexRegions(SqliteTransaction tx, string batchId, int seq, string? regionsJson)
@@ -201,7 +230,7 @@ public sealed class SqliteDatabase : IDisposable
         foreach (var region in regions)
         {
             pr.Value = region.Id;
-            pc.Value = region.ClassBeneath;
+            pc.Value = region.IndexedClass;
             ps.Value = RegionIndex.FiniteScore(region.MaxScore);
             cmd.ExecuteNonQuery();
         }

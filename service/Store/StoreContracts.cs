@@ -15,9 +15,11 @@ public interface IBatchStore
 
     /// <summary>
     /// Creates the batch, or adds to an existing one with the same id: frames whose id is already there are left
-    /// alone (never scored twice). A finished (done) batch that gains frames is queued again.
+    /// alone (never scored twice). A finished (done) batch that gains frames is queued again. <paramref name="artifacts"/>
+    /// (stored as given, see <see cref="Rendering.ArtifactChoice.Format"/>) is set when the batch is created.
     /// </summary>
-    (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl, IReadOnlyList<NewFrame> frames);
+    (BatchRecord Batch, bool Created, int Added) Submit(string id, string model, string source, string? callbackUrl, IReadOnlyList<NewFrame> frames,
+        string? artifacts = null);
 
     BatchRecord? Get(string id);
     IReadOnlyList<BatchRecord> List(int limit = 100, string? state = null);
@@ -83,7 +85,50 @@ public interface IDecisionStore
 
     /// <summary>Every write to the batch's decisions, oldest first, from <paramref name="after"/> on (exclusive).</summary>
     IReadOnlyList<DecisionEntry> Log(string batchId, long after = 0, int limit = 1000);
+
+    /// <summary>
+    /// Stores <paramref name="verdict"/> as the current decision on track <paramref name="track"/> of the recording
+    /// <paramref name="seq"/> and logs it once (one log entry, whatever the number of frames the track spans).
+    /// </summary>
+    Decision DecideTrack(string batchId, int seq, int track, string verdict, string? note, string? decidedBy);
+
+    /// <summary>Withdraws the current decision on a track (logged); false when there was none.</summary>
+    bool WithdrawTrack(string batchId, int seq, int track, string? decidedBy);
+
+    /// <summary>The current track decisions of a batch (or of one recording), by recording then track; each has <see cref="Decision.Track"/> set and no region.</summary>
+    IReadOnlyList<Decision> CurrentTracks(string batchId, int? seq = null);
 }
+
+/// <summary>
+/// Calibration and evaluation job records (kind, id, state and the job's own JSON), seen by every replica. A queued
+/// or running job is run by one replica at a time: the one holding its claim, a lease renewed while the job runs, so
+/// a job whose replica died is taken over once the lease runs out. A writer whose claim was lost is refused.
+/// </summary>
+public interface IJobStore
+{
+    /// <summary>Adds the job (held by <paramref name="owner"/> for <paramref name="lease"/> when given); false when one with its id exists (left alone).</summary>
+    bool Add(JobRecord job, string? owner = null, TimeSpan lease = default);
+
+    JobRecord? Get(string kind, string id);
+
+    /// <summary>The jobs of a kind, newest first.</summary>
+    IReadOnlyList<JobRecord> List(string kind, int limit = 1000);
+
+    /// <summary>
+    /// Stores the job's new state and record: refused (false) while another owner's live claim holds it. With
+    /// <paramref name="release"/> the writer's claim ends (finished, failed, or handed back at shutdown).
+    /// </summary>
+    bool Save(JobRecord job, string owner, bool release = false);
+
+    /// <summary>The oldest job of the kind in one of <paramref name="runnable"/> states that nobody holds (or whose holder's lease ran out), now held by <paramref name="owner"/>.</summary>
+    JobRecord? ClaimNext(string kind, IReadOnlyList<string> runnable, string owner, TimeSpan lease);
+
+    /// <summary>Pushes the claim's expiry on; false when <paramref name="owner"/> no longer holds the job.</summary>
+    bool Renew(string kind, string id, string owner, TimeSpan lease);
+}
+
+/// <summary>One stored job: <see cref="Body"/> is the job's own JSON, as the API shows it.</summary>
+public sealed record JobRecord(string Kind, string Id, string State, DateTimeOffset Created, string Body);
 
 /// <summary>Who holds claims: host, process and a random part (process ids repeat across containers).</summary>
 public static class ClaimOwner
@@ -101,8 +146,8 @@ public sealed record FrameClaim(FrameRecord Frame, string Owner)
 /// <summary>The store could not be reached (server down, network cut); callers back off and try again.</summary>
 public sealed class StoreUnavailableException(string message, Exception? inner = null) : Exception(message, inner);
 
-/// <summary>One store: batches and decisions over one connection (SQLite) or one pool (PostgreSQL).</summary>
-public sealed class BatchDatabase(string engine, string describe, IBatchStore batches, IDecisionStore decisions, IDisposable owner) : IDisposable
+/// <summary>One store: batches, decisions and jobs over one connection (SQLite) or one pool (PostgreSQL).</summary>
+public sealed class BatchDatabase(string engine, string describe, IBatchStore batches, IDecisionStore decisions, IJobStore jobs, IDisposable owner) : IDisposable
 {
     public const string Sqlite = "sqlite";
     public const string Postgres = "postgres";
@@ -113,6 +158,7 @@ public sealed class BatchDatabase(string engine, string describe, IBatchStore ba
     public string Describe { get; } = describe;
     public IBatchStore Batches { get; } = batches;
     public IDecisionStore Decisions { get; } = decisions;
+    public IJobStore Jobs { get; } = jobs;
 
     private Func<string?> _problem = () => null;
 
@@ -126,14 +172,14 @@ public sealed class BatchDatabase(string engine, string describe, IBatchStore ba
     public static BatchDatabase OpenSqlite(string path, TimeProvider? time = null)
     {
         var db = new SqliteDatabase(path, time ?? TimeProvider.System);
-        return new BatchDatabase(Sqlite, db.File, new SqliteBatchStore(db), new SqliteDecisionStore(db), db);
+        return new BatchDatabase(Sqlite, db.File, new SqliteBatchStore(db), new SqliteDecisionStore(db), new SqliteJobStore(db), db);
     }
 
     /// <summary>The PostgreSQL database named by <paramref name="connectionString"/>, migrated as needed.</summary>
     public static BatchDatabase OpenPostgres(string connectionString, TimeProvider? time = null)
     {
         var db = new PostgresDatabase(connectionString, time ?? TimeProvider.System);
-        return new BatchDatabase(Postgres, db.Describe, new PostgresBatchStore(db), new PostgresDecisionStore(db), db) { _problem = () => db.Problem };
+        return new BatchDatabase(Postgres, db.Describe, new PostgresBatchStore(db), new PostgresDecisionStore(db), new PostgresJobStore(db), db) { _problem = () => db.Problem };
     }
 
     public void Dispose() => owner.Dispose();

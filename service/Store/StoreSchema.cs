@@ -14,6 +14,9 @@ public static class StoreSchema
         (2, "region index filled from the frames' stored regions"),
         (3, "frame claims: lease owner and expiry, and who scored each frame"),
         (4, "callback claims: one replica delivers a batch's callback"),
+        (5, "calibration and evaluation job records, run by one replica at a time"),
+        (6, "track decisions: a verdict on a whole track of a recording, logged beside region decisions"),
+        (7, "the artifacts a batch's frames get (null: every artifact, as before)"),
     ];
 
     public static int Latest => Versions[^1].Version;

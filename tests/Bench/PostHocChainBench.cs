@@ -17,8 +17,10 @@ public static class PostHocChainBench
 {
     private const int Classes = 19;
 
-    public static void Run(int runs)
+    /// <returns>OpenCV / ours per case and kind of logits, for the goals summary.</returns>
+    public static List<(string Case, string Kind, double Ratio)> Run(int runs)
     {
+        var ratios = new List<(string, string, double)>();
         var stats = ScoringBench.Statistics(Classes);
         var options = new ScoringOptions { Method = Strayspot.Scoring.Pipeline.ScoreMethod.Sml };
         // Both sides get the same threads: DOTNET_PROCESSOR_COUNT=1 compares them on one core.
@@ -30,13 +32,14 @@ public static class PostHocChainBench
         Console.WriteLine("|---|---|---|---|---|---|---|");
         foreach (var (label, h, w, fh, fw) in new[] { ("A: 256×512 → 1024×2048", 256, 512, 1024, 2048), ("B: 512×1024 at frame size", 512, 1024, 512, 1024) })
         {
-            Case(label, "smooth, network-like", SyntheticLogits.Make(Classes, h, w, seed: 7), h, w, fh, fw, options, stats, runs);
-            Case(label, "random-like", RandomLogits(Classes, h, w, seed: 8), h, w, fh, fw, options, stats, runs);
+            ratios.Add((label, "smooth", Case(label, "smooth, network-like", SyntheticLogits.Make(Classes, h, w, seed: 7), h, w, fh, fw, options, stats, runs)));
+            ratios.Add((label, "random-like", Case(label, "random-like", RandomLogits(Classes, h, w, seed: 8), h, w, fh, fw, options, stats, runs)));
         }
         Console.WriteLine();
         Console.WriteLine("Times are medians in ms of alternating runs (ours, OpenCV, ours, …) after two warm-up runs of each. The threshold");
         Console.WriteLine("flags the top 5% of each frame's anomaly scores. Score differences come from float rounding and from argmax");
         Console.WriteLine("near-ties after resizing; the masks must agree.");
+        return ratios;
     }
 
     /// <summary>Independent noise per pixel and class: every pixel sits on a class boundary, the worst case for BS and regions.</summary>
@@ -48,7 +51,7 @@ public static class PostHocChainBench
         return data;
     }
 
-    private static void Case(string label, string kind, float[] data, int h, int w, int fh, int fw,
+    private static double Case(string label, string kind, float[] data, int h, int w, int fh, int fw,
         ScoringOptions options, ClassStatistics stats, int runs)
     {
         var logits = new LogitsView(data, Classes, h, w);
@@ -88,6 +91,7 @@ public static class PostHocChainBench
         double o = Measure.Median(ours), c = Measure.Median(theirs);
         string stages = string.Join(", ", stage.Select(x => Measure.Median(x).ToString("0.0")));
         Console.WriteLine($"| {label} | {kind} | {o:0.0} | {c:0.0} | **{c / o:0.0}×** | {stages} | {maxDiff:0.0e0}, {maskDiff}, {last.Regions.ComponentsFound}/{cv.Components} |");
+        return c / o;
     }
 
     /// <summary>The chain in OpenCV calls. Mats are made once and reused, as a tuned OpenCV program would.</summary>

@@ -133,7 +133,7 @@ public static class ReplicaBench
     {
         const int n = 200;
         string regions = Manifest.RegionsJson(Enumerable.Range(1, 3).Select(i =>
-            new ManifestRegion(i, new Strayspot.Service.Reports.BoxReport(i, i, 10, 10), 80, 2f, 3f, "apron", true, [[i, i], [i + 9, i], [i + 9, i + 9]])).ToList());
+            new ManifestRegion(i, new Strayspot.Service.Reports.BoxReport(i, i, 10, 10), 80, 2f, 3f, 0, "apron", true, [[i, i], [i + 9, i], [i + 9, i + 9]])).ToList());
         var perFrame = new List<double>();
         var claims = new List<double>();
         var marks = new List<double>();

@@ -36,6 +36,47 @@ public static class ReviewBench
                 Directory.Delete(folder, recursive: true);
             }
         }
+        Timelines(runs);
+    }
+
+    /// <summary>
+    /// The recording route reads the recording's frames.jsonl line by line for the timeline strip (times and frame
+    /// scores, merged into at most 2000 points). Synthetic lines shaped like the real ones, three regions each.
+    /// </summary>
+    private static void Timelines(int runs)
+    {
+        Console.WriteLine();
+        Console.WriteLine("## Review: a recording's timeline strip (frames.jsonl read for times and scores, three regions a line)");
+        Console.WriteLine();
+        Console.WriteLine("| sampled frames | file | read for the strip | points sent |");
+        Console.WriteLine("|---|---|---|---|");
+        var inv = CultureInfo.InvariantCulture;
+        foreach (int frames in new[] { 2_000, 40_000 })
+        {
+            string path = Path.Combine(Path.GetTempPath(), $"strayspot-timeline-{Guid.NewGuid():N}.jsonl");
+            try
+            {
+                var rng = new Random(9);
+                using (var w = new StreamWriter(path))
+                {
+                    for (int i = 0; i < frames; i++)
+                    {
+                        var regions = string.Join(",", Enumerable.Range(1, 3).Select(r => string.Create(inv,
+                            $"{{\"id\":{r},\"box\":{{\"x\":{rng.Next(1800)},\"y\":{rng.Next(1000)},\"width\":40,\"height\":30}},\"area\":900," +
+                            $"\"meanScore\":{2 + rng.NextDouble():F4},\"maxScore\":{3 + rng.NextDouble():F4},\"classBeneath\":0,\"classBeneathName\":\"pavement\",\"onSurface\":true}}")));
+                        w.WriteLine(string.Create(inv, $"{{\"frameId\":\"drive.mp4@{i:D6}\",\"index\":{i},\"timeSeconds\":{i / 10.0:F3},\"frameScore\":{2 + 2 * rng.NextDouble():F4}," +
+                            $"\"anomalousShare\":0.001,\"regions\":[{regions}],\"tracks\":[{i},{i + 1},{i + 2}]}}"));
+                    }
+                }
+                int points = 0;
+                double ms = Measure.MedianMs(runs, () => points = BatchReview.Timeline(path).Times.Count);
+                Console.WriteLine(string.Create(inv, $"| {frames} | {new FileInfo(path).Length / 1e6:F1} MB | {ms:F1} ms | {points} |"));
+            }
+            finally
+            {
+                File.Delete(path);
+            }
+        }
     }
 
     private static void Row(string db, int frames, int runs)
@@ -58,7 +99,7 @@ public static class ReviewBench
             var all = store.Frames("big");
             var briefs = new List<RegionBrief>();
             foreach (var f in all)
-                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.ClassBeneath, r.MaxScore));
+                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.IndexedClass, r.MaxScore));
             b = ReviewTally.Count(all.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, decisions.Current("big"));
         });
         if (a!.Regions != b!.Regions) throw new InvalidOperationException("the two ways of counting disagree");
@@ -79,7 +120,8 @@ public static class ReviewBench
             // Back to schema version 1, as a file from before the region index: the next open runs the steps that fill it.
             back.CommandText = "DELETE FROM schema_version WHERE version > 1; DROP INDEX frames_open; ALTER TABLE frames DROP COLUMN lease_owner; " +
                                "ALTER TABLE frames DROP COLUMN lease_until; ALTER TABLE frames DROP COLUMN scored_by; " +
-                               "ALTER TABLE batches DROP COLUMN callback_owner; ALTER TABLE batches DROP COLUMN callback_until;";
+                               "ALTER TABLE batches DROP COLUMN callback_owner; ALTER TABLE batches DROP COLUMN callback_until; " +
+                               "DROP TABLE jobs; ALTER TABLE decision_log DROP COLUMN track; DROP TABLE track_decisions;";
             back.ExecuteNonQuery();
         }
         using var tx = c.BeginTransaction();
@@ -111,7 +153,7 @@ public static class ReviewBench
                 for (int p = 0; p < 64; p++) outline[p] = [rng.Next(1920), rng.Next(1080)];
                 float max = 2.5f + (float)rng.NextDouble() * 2;
                 regions.Add(new ManifestRegion(r, new BoxReport(rng.Next(1800), rng.Next(1000), 40, 30), 900, max - 0.5f, max,
-                    Classes[rng.Next(Classes.Length)], true, outline));
+                    0, Classes[rng.Next(Classes.Length)], true, outline));
             }
             seq.Value = i;
             f.Value = $"cam/{i:D6}.png";

@@ -14,6 +14,8 @@ const state = {
   frame: null,        // the open frame: { seq, frameId, width, height, regions, decision, files, threshold, scoreRange } or a dropped one
   dropped: false,     // the open frame was dropped on the page, not part of a batch
   region: null,       // selected region id, null = whole frame
+  recording: null,    // the open frame is a recording: GET …/frames/{seq}/recording (timeline, tracks)
+  track: null,        // selected track id of the open recording, null = whole recording
   urls: [],           // object URLs of the open frame's images, revoked on the next frame
   shown: LIST_PAGE,   // how many frames the list draws
   drafts: new Map(),  // notes typed but not yet sent, by target, so moving between regions loses none
@@ -211,8 +213,8 @@ function renderSummary(o) {
   const body = $('class-table').tBodies[0];
   body.replaceChildren();
   for (const k of c.byClassBeneath) {
-    body.append(el('tr', { 'data-class': k.classBeneath }, [
-      el('td', { text: k.classBeneath }),
+    body.append(el('tr', { 'data-class': k.classBeneathName }, [
+      el('td', { text: k.classBeneathName }),
       el('td', { class: 'num', text: k.reviewed + ' / ' + k.regions }),
       el('td', { class: 'num', text: String(k.verdicts.falseAlarm) }),
       el('td', { class: 'num rate', text: fmtRate(k.falseAlarmRate) }),
@@ -243,8 +245,8 @@ function renderFrameList() {
     const li = el('li', { 'data-seq': String(f.seq), title: f.frameId }, [
       el('span', { class: 'name', text: f.frameId }),
       el('span', { class: 'score', text: fmtScore(f.frameScore) }),
-      el('span', { class: 'meta', text: (f.regionCount ? f.regionsDecided + '/' + f.regionCount + ' regions decided' : 'no regions') +
-        (f.verdict ? ' · frame: ' + VERDICT_TEXT[f.verdict] : '') }),
+      el('span', { class: 'meta', text: (f.recording ? 'recording · ' : '') + (f.regionCount ? f.regionsDecided + '/' + f.regionCount + (f.recording ? ' tracks' : ' regions') + ' decided'
+        : f.recording ? 'no tracks' : 'no regions') + (f.verdict ? (f.recording ? ' · recording: ' : ' · frame: ') + VERDICT_TEXT[f.verdict] : '') }),
       el('span', { class: 'progress', 'aria-hidden': 'true' }, [bar]),
     ]);
     if (isReviewed(f)) li.classList.add('reviewed');
@@ -274,6 +276,7 @@ function needsReview(item) {
 
 function clearFrame(message) {
   releaseUrls();
+  leaveRecording();
   state.frame = null;
   state.region = null;
   $('frame-title').textContent = message || '';
@@ -299,12 +302,30 @@ async function openFrame(i, firstUndecided) {
   }
   if (token !== state.loadToken) return;
   releaseUrls();
-  const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), objectUrl(frame.files.heat), objectUrl(frame.files.mask)]);
-  if (token !== state.loadToken) return;
-  showFrame(frame, source, heat, mask);
-  if (firstUndecided) {
-    const r = state.frame.order.find((x) => !x.decision);
-    if (r) selectRegion(r.id);
+  if (frame.recording) {
+    let recording;
+    try {
+      recording = await apiJson(frame.recording);
+    } catch (e) {
+      setStatus('Recording ' + item.frameId + ' could not be loaded: ' + e.message, true);
+      return;
+    }
+    if (token !== state.loadToken) return;
+    showRecording(frame, recording);
+    if (firstUndecided) {
+      const t = recording.tracks.find((x) => !trackDecided(x));
+      if (t) selectTrack(t.id);
+    }
+  } else {
+    // A batch may have been made without the heat map or the mask (its artifacts field): those layers stay empty.
+    const optional = (path) => (path ? objectUrl(path) : Promise.resolve(null));
+    const [source, heat, mask] = await Promise.all([objectUrl(frame.files.source), optional(frame.files.heat), optional(frame.files.mask)]);
+    if (token !== state.loadToken) return;
+    showFrame(frame, source, heat, mask);
+    if (firstUndecided) {
+      const r = state.frame.order.find((x) => !x.decision);
+      if (r) selectRegion(r.id);
+    }
   }
   history.replaceState(null, '', '#batch=' + encodeURIComponent(state.batchId) + '&seq=' + frame.seq);
   renderFrameList();
@@ -316,6 +337,7 @@ async function openFrame(i, firstUndecided) {
 function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
   // The work order: highest score first, so the likeliest finds come up first; ids stay as in the report.
   frame.order = frame.regions.slice().sort((a, b) => (b.maxScore - a.maxScore) || (a.id - b.id));
+  leaveRecording();
   state.frame = frame;
   state.region = null;
   const w = frame.width, h = frame.height;
@@ -330,9 +352,12 @@ function showFrame(frame, sourceUrl, heatUrl, maskUrl) {
     $(id).setAttribute('height', h);
   }
   $('layer-source').setAttribute('href', sourceUrl);
-  $('layer-heat').setAttribute('href', heatUrl);
+  if (heatUrl) $('layer-heat').setAttribute('href', heatUrl);
+  const toggle = $('heat-toggle');
+  toggle.disabled = !heatUrl;
+  toggle.parentElement.title = heatUrl ? '' : 'This batch was made without the heat map (its artifacts field).';
   $('layer-outline').removeAttribute('href');
-  drawOutline(maskUrl, w, h, frame);
+  if (maskUrl) drawOutline(maskUrl, w, h, frame);
   applyLayers();
   const title = (state.dropped ? 'Dropped frame ' : (state.index + 1) + ' of ' + state.frames.length + ': ') + frame.frameId +
     ' · frame score ' + fmtScore(frame.frameScore) + ' · threshold ' + fmtScore(frame.threshold) + ' · ' + frame.regions.length +
@@ -399,7 +424,7 @@ function drawOutline(maskUrl, w, h, frame) {
 }
 
 function applyLayers() {
-  const heatOn = $('heat-toggle').checked;
+  const heatOn = $('heat-toggle').checked && !$('heat-toggle').disabled;
   const heat = $('layer-heat');
   heat.style.display = heatOn ? '' : 'none';
   heat.setAttribute('opacity', String($('heat-opacity').value / 100));
@@ -485,19 +510,25 @@ function classColor(name) {
   return c ? c.color : null;
 }
 
+// A table cell naming a class beneath, with the descriptor's colour when it has one.
+function classCell(name) {
+  const cell = el('td', {});
+  const color = classColor(name);
+  if (color) {
+    const sw = el('span', { class: 'swatch' });
+    sw.style.background = color;
+    cell.append(sw);
+  }
+  cell.append(name);
+  return cell;
+}
+
 function renderRegionTable() {
   const body = $('region-table').tBodies[0];
   body.replaceChildren();
   if (!state.frame) return;
   for (const r of state.frame.order) {
-    const cls = el('td', {});
-    const color = classColor(r.classBeneath);
-    if (color) {
-      const sw = el('span', { class: 'swatch' });
-      sw.style.background = color;
-      cls.append(sw);
-    }
-    cls.append(r.classBeneath);
+    const cls = classCell(r.classBeneathName || String(r.classBeneath));
     const tr = el('tr', { 'data-region': String(r.id) }, [
       el('td', { text: String(r.id) }),
       el('td', { class: 'num', text: fmtScore(r.maxScore) }),
@@ -527,6 +558,7 @@ function renderProgress() {
 
 function currentTarget() {
   if (!state.frame) return null;
+  if (state.recording) return state.track === null ? { decision: state.frame.decision } : findTrack(state.track);
   if (state.region === null) return { decision: state.frame.decision };
   return state.frame.regions.find((r) => r.id === state.region) || null;
 }
@@ -535,6 +567,7 @@ function renderDecision() {
   const target = currentTarget();
   const decision = target ? target.decision : null;
   $('target-title').textContent = !state.frame ? 'No frame open'
+    : state.recording ? (state.track === null ? 'Whole recording' : 'Track ' + state.track)
     : state.region === null ? 'Whole frame' : 'Region ' + state.region;
   $('target-verdict').replaceChildren(decision
     ? el('span', {}, ['Now: ', verdictSpan(decision.verdict), decision.decidedBy ? ' by ' + decision.decidedBy : ''])
@@ -602,6 +635,7 @@ function stepRegion(delta) {
 function nextUndecided(saved) {
   const f = state.frame;
   if (!f || state.dropped) return;
+  if (state.recording) { nextUndecidedTrack(saved); return; }
   const order = f.order;
   const at = state.region === null ? -1 : order.findIndex((r) => r.id === state.region);
   for (let k = 1; k <= order.length; k++) {
@@ -626,21 +660,335 @@ async function nextFrameToReview(saved) {
   setStatus((saved ? saved + ' ' : '') + 'Every frame with regions is reviewed.');
 }
 
+// ---- A recording: the timeline strip (frame score over time, the threshold, tracks as bars), the picked track's
+// best frame and facts, and decisions on whole tracks. Tracks step in time order, as they lie on the strip.
+
+const STRIP = { left: 46, right: 14, top: 10, plot: 96, axis: 20, lane: 14, laneGap: 4, maxLanes: 8 };
+
+function setUnit(word) {
+  for (const e of document.querySelectorAll('.unit')) e.textContent = word;
+}
+
+function leaveRecording() {
+  state.recording = null;
+  state.track = null;
+  setUnit('region');
+  $('center').classList.remove('recording-mode');
+  $('recording-view').hidden = true;
+}
+
+function findTrack(id) {
+  return state.recording ? state.recording.tracks.find((t) => t.id === id) || null : null;
+}
+
+// What the manifest carries for the track's regions: the later of the track's own decision and a region decision.
+function effectiveTrackDecision(t) {
+  const a = t.decision, b = t.regionDecision;
+  if (!a) return b || null;
+  if (!b) return a;
+  return a.revision >= b.revision ? a : b;
+}
+
+function trackDecided(t) {
+  return !!effectiveTrackDecision(t) || !!(state.frame && state.frame.decision);
+}
+
+function fmtTime(t) {
+  if (t === null || t === undefined) return '–';
+  if (Math.abs(t) < 60) return t.toFixed(2) + ' s';
+  const m = Math.floor(t / 60);
+  return m + ':' + (t - 60 * m).toFixed(1).padStart(4, '0');
+}
+
+function showRecording(frame, recording) {
+  frame.order = frame.regions.slice();
+  state.frame = frame;
+  state.region = null;
+  state.recording = recording;
+  state.track = null;
+  // Lanes: a track goes to the first lane whose last bar ended before it starts, so bars never hide each other.
+  recording.tracks.sort((a, b) => (a.firstTime - b.firstTime) || (a.id - b.id));
+  const ends = [];
+  for (const t of recording.tracks) {
+    let lane = ends.findIndex((e) => e < t.firstTime);
+    if (lane < 0 && ends.length < STRIP.maxLanes) { lane = ends.length; ends.push(t.lastTime); }
+    else if (lane < 0) lane = ends.indexOf(Math.min(...ends));
+    ends[lane] = Math.max(ends[lane] === undefined ? -Infinity : ends[lane], t.lastTime);
+    t.lane = lane;
+  }
+  recording.lanes = Math.max(1, ends.length);
+  $('center').classList.add('recording-mode');
+  setUnit('track');
+  $('recording-view').hidden = false;
+  const span = recording.endSeconds - recording.startSeconds;
+  $('frame-title').textContent = (state.index + 1) + ' of ' + state.frames.length + ': ' + frame.frameId + ' · recording ' +
+    fmtTime(recording.startSeconds) + '–' + fmtTime(recording.endSeconds) + ' (' + fmtTime(span) + ', ' + recording.framesScored + ' frames scored, ' +
+    recording.sampling + ') · threshold ' + fmtScore(recording.threshold) + ' · ' + recording.tracks.length +
+    (recording.tracks.length === 1 ? ' track' : ' tracks') + ' kept of ' + recording.tracksFound + ' found (seen in ≥ ' + recording.minimumFramesSeen + ' frames)';
+  renderRecording();
+}
+
+function renderRecording() {
+  renderTimeline();
+  renderTrackTable();
+  renderTrackDetail();
+  renderDecision();
+  renderRecordingProgress();
+}
+
+function renderTimeline() {
+  const r = state.recording;
+  const g = $('timeline');
+  g.replaceChildren();
+  if (!r) return;
+  const width = Math.max(320, Math.round(g.getBoundingClientRect().width || 800));
+  const lanesTop = STRIP.top + STRIP.plot + STRIP.axis;
+  const height = lanesTop + r.lanes * (STRIP.lane + STRIP.laneGap) + 4;
+  g.setAttribute('viewBox', '0 0 ' + width + ' ' + height);
+  g.setAttribute('height', String(height));
+  const t0 = r.startSeconds, t1 = r.endSeconds > r.startSeconds ? r.endSeconds : r.startSeconds + 1;
+  const x = (t) => STRIP.left + (width - STRIP.left - STRIP.right) * (t - t0) / (t1 - t0);
+  const finite = r.scores.filter((v) => v !== null);
+  let lo = Math.min(r.threshold, ...finite), hi = Math.max(r.threshold, ...finite);
+  if (!(hi > lo)) { lo -= 1; hi += 1; }
+  const pad = (hi - lo) * 0.08;
+  lo -= pad; hi += pad;
+  const y = (v) => STRIP.top + STRIP.plot * (1 - (v - lo) / (hi - lo));
+  const parts = [];
+
+  // Time ticks at a round step giving about one label per 90 px.
+  const steps = [0.1, 0.2, 0.5, 1, 2, 5, 10, 15, 30, 60, 120, 300, 600, 1800, 3600];
+  const want = (t1 - t0) / Math.max(2, (width - STRIP.left - STRIP.right) / 90);
+  const step = steps.find((s) => s >= want) || steps[steps.length - 1];
+  for (let t = Math.ceil(t0 / step) * step; t <= t1 + 1e-9; t += step) {
+    const px = x(t);
+    parts.push(svg('line', { class: 'grid', x1: px, x2: px, y1: STRIP.top, y2: height - 2 }));
+    const label = svg('text', { class: 'tick', x: px, y: STRIP.top + STRIP.plot + 14, 'text-anchor': 'middle' });
+    label.textContent = fmtTime(Math.round(t * 1000) / 1000);
+    parts.push(label);
+  }
+  parts.push(svg('line', { class: 'axis', x1: STRIP.left, x2: width - STRIP.right, y1: STRIP.top + STRIP.plot, y2: STRIP.top + STRIP.plot }));
+  for (const [v, cls] of [[hi - pad, 'tick'], [lo + pad, 'tick']]) {
+    const label = svg('text', { class: cls, x: STRIP.left - 4, y: y(v) + 4, 'text-anchor': 'end' });
+    label.textContent = fmtScore(v);
+    parts.push(label);
+  }
+
+  // Frame score: the stretches above the threshold filled, the line over them, the threshold dashed.
+  const pts = [];
+  for (let i = 0; i < r.times.length; i++) if (r.scores[i] !== null) pts.push([x(r.times[i]), y(r.scores[i]), r.scores[i]]);
+  const yt = y(r.threshold);
+  for (let i = 0; i < pts.length; i++) {
+    if (pts[i][2] <= r.threshold) continue;
+    let j = i;
+    while (j + 1 < pts.length && pts[j + 1][2] > r.threshold) j++;
+    const xa = i > 0 ? cross(pts[i - 1], pts[i], r.threshold) : pts[i][0];
+    const xb = j + 1 < pts.length ? cross(pts[j], pts[j + 1], r.threshold) : pts[j][0];
+    const poly = [[xa, yt]].concat(pts.slice(i, j + 1).map((p) => [p[0], p[1]]), [[xb, yt]]);
+    if (xb - xa < 2) poly.push([xa + 2, yt]);
+    parts.push(svg('polygon', { class: 'above', points: poly.map((p) => p[0].toFixed(1) + ',' + p[1].toFixed(1)).join(' ') }));
+    i = j;
+  }
+  parts.push(svg('polyline', { class: 'score-line', points: pts.map((p) => p[0].toFixed(1) + ',' + p[1].toFixed(1)).join(' ') }));
+  parts.push(svg('line', { class: 'threshold', x1: STRIP.left, x2: width - STRIP.right, y1: yt, y2: yt }));
+  const tl = svg('text', { class: 'threshold-label', x: width - STRIP.right - 2, y: yt - 3, 'text-anchor': 'end' });
+  tl.textContent = 'threshold ' + fmtScore(r.threshold);
+  parts.push(tl);
+
+  // Tracks: one bar per track from its first to its last sighting, in lanes under the plot.
+  for (let lane = 0; lane < r.lanes; lane++) {
+    parts.push(svg('rect', { class: 'lane-band', x: STRIP.left, width: width - STRIP.left - STRIP.right,
+      y: lanesTop + lane * (STRIP.lane + STRIP.laneGap), height: STRIP.lane }));
+  }
+  const picked = findTrack(state.track);
+  if (picked) parts.push(svg('line', { class: 'best-mark', x1: x(picked.bestTime), x2: x(picked.bestTime), y1: STRIP.top, y2: height - 2 }));
+  for (const t of r.tracks) {
+    const decision = effectiveTrackDecision(t);
+    const verdict = decision ? decision.verdict : (state.frame.decision ? state.frame.decision.verdict : null);
+    const bx = x(t.firstTime), bw = Math.max(5, x(t.lastTime) - bx), by = lanesTop + t.lane * (STRIP.lane + STRIP.laneGap);
+    if (state.track === t.id) parts.push(svg('rect', { class: 'track-halo', x: bx - 2, y: by - 2, width: bw + 4, height: STRIP.lane + 4, rx: 4 }));
+    const bar = svg('rect', {
+      class: 'track-bar' + (verdict ? ' ' + verdict : '') + (state.track === t.id ? ' selected' : ''),
+      x: bx, y: by, width: bw, height: STRIP.lane, rx: 3, tabindex: '0', role: 'button', 'data-track': t.id,
+      'aria-label': 'Track ' + t.id + ', ' + fmtTime(t.firstTime) + ' to ' + fmtTime(t.lastTime) + ', highest score ' + fmtScore(t.maxScore) +
+        ', ' + (verdict ? VERDICT_TEXT[verdict] : 'undecided'),
+    });
+    const title = svg('title', {});
+    title.textContent = 'Track ' + t.id + ': ' + fmtTime(t.firstTime) + '–' + fmtTime(t.lastTime) + ', ' + t.framesSeen + ' frames, highest ' + fmtScore(t.maxScore);
+    bar.append(title);
+    bar.addEventListener('click', (ev) => { ev.stopPropagation(); selectTrack(t.id); });
+    bar.addEventListener('keydown', (ev) => { if (ev.key === 'Enter' || ev.key === ' ') { ev.preventDefault(); selectTrack(t.id); } });
+    parts.push(bar);
+    const label = String(t.id), room = label.length * 7 + 6;
+    const inside = bw >= room;
+    const num = svg('text', { class: 'track-num' + (inside && verdict !== 'false-alarm' && verdict !== 'unsure' ? '' : ' outside'),
+      x: inside ? bx + 3 : bx + bw + 3, y: by + STRIP.lane - 3 });
+    num.textContent = label;
+    parts.push(num);
+  }
+  g.append(...parts);
+  g.dataset.tracks = String(r.tracks.length);
+  g.dataset.points = String(pts.length);
+}
+
+// Where the segment a–b crosses the threshold, in x.
+function cross(a, b, threshold) {
+  const f = (threshold - a[2]) / ((b[2] - a[2]) || 1);
+  return a[0] + (b[0] - a[0]) * Math.min(1, Math.max(0, f));
+}
+
+function renderTrackTable() {
+  const body = $('track-table').tBodies[0];
+  body.replaceChildren();
+  for (const t of state.recording.tracks) {
+    const d = effectiveTrackDecision(t);
+    const cls = classCell(t.classBeneathName || String(t.classBeneath));
+    const tr = el('tr', { 'data-track': String(t.id) }, [
+      el('td', { text: String(t.id) }),
+      el('td', { class: 'num', text: fmtTime(t.firstTime) + '–' + fmtTime(t.lastTime) }),
+      el('td', { class: 'num', text: String(t.framesSeen) }),
+      el('td', { class: 'num', text: fmtScore(t.maxScore) }),
+      el('td', { class: 'num', text: fmtScore(t.meanScore) }),
+      cls,
+      el('td', { class: 'decision' }, [verdictSpan(d ? d.verdict : null)]),
+    ]);
+    if (state.track === t.id) tr.classList.add('selected');
+    tr.addEventListener('click', () => selectTrack(t.id));
+    body.append(tr);
+  }
+}
+
+async function renderTrackDetail() {
+  const t = findTrack(state.track);
+  const facts = $('track-facts');
+  const img = $('track-best');
+  facts.replaceChildren();
+  if (!t) {
+    img.removeAttribute('src');
+    img.removeAttribute('data-track');
+    $('track-mark').hidden = true;
+    img.alt = '';
+    $('track-caption').textContent = state.recording.tracks.length ? 'Pick a track to see its best frame.' : 'No track was kept in this recording.';
+    return;
+  }
+  const own = t.decision, region = t.regionDecision, now = effectiveTrackDecision(t);
+  const rows = [
+    ['First seen', fmtTime(t.firstTime)],
+    ['Last seen', fmtTime(t.lastTime) + ' (' + fmtTime(t.lastTime - t.firstTime) + ' in view)'],
+    ['Frames seen', String(t.framesSeen)],
+    ['Highest score', fmtScore(t.maxScore) + ' at ' + fmtTime(t.bestTime)],
+    ['Mean score', fmtScore(t.meanScore)],
+    ['Class beneath', t.classBeneathName],
+    ['Decision', now ? VERDICT_TEXT[now.verdict] + (now === own ? ' (on the track)' : ' (on its region, written later)') : 'none'],
+  ];
+  if (own && region && now === own) rows.push(['Region decision', VERDICT_TEXT[region.verdict] + ' (earlier; the track decision wins)']);
+  for (const [k, v] of rows) facts.append(el('dt', { text: k }), el('dd', { text: v }));
+  $('track-caption').textContent = 'Track ' + t.id + ': best frame ' + t.bestFrameId + ' at ' + fmtTime(t.bestTime) + ', with its overlay.';
+  if (img.dataset.track === String(t.id)) { placeTrackMark(); return; }
+  $('track-mark').hidden = true;
+  const frame = state.frame;
+  try {
+    const url = await objectUrl(t.best);
+    if (state.frame !== frame || state.track !== t.id) return;
+    img.onload = placeTrackMark;
+    img.src = url;
+    img.dataset.track = String(t.id);
+    img.alt = 'Best frame of track ' + t.id + ' with its overlay';
+  } catch (e) {
+    setStatus('The best frame of track ' + t.id + ' could not be loaded: ' + e.message, true);
+  }
+}
+
+// The track's box in its best frame, drawn over the shown image (scaled as the image is; the PNG's legend strip is below the frame).
+function placeTrackMark() {
+  const t = findTrack(state.track);
+  const img = $('track-best'), mark = $('track-mark');
+  if (!t || !img.naturalWidth || img.dataset.track !== String(t.id)) { mark.hidden = true; return; }
+  const scale = Math.min(img.clientWidth / img.naturalWidth, img.clientHeight / img.naturalHeight);
+  const b = t.bestBox;
+  mark.style.left = (img.offsetLeft + img.clientLeft + b.x * scale - 3) + 'px';
+  mark.style.top = (img.offsetTop + img.clientTop + b.y * scale - 3) + 'px';
+  mark.style.width = (b.width * scale + 6) + 'px';
+  mark.style.height = (b.height * scale + 6) + 'px';
+  mark.hidden = false;
+}
+
+function renderRecordingProgress() {
+  const r = state.recording;
+  const decided = r.tracks.filter((t) => effectiveTrackDecision(t)).length;
+  const p = $('frame-progress');
+  p.textContent = state.frame.decision ? 'This recording is reviewed (whole-recording verdict); ' + decided + ' of ' + r.tracks.length + ' tracks decided on their own.'
+    : r.tracks.length === 0 ? 'No tracks kept: decide on the whole recording.'
+    : decided === r.tracks.length ? 'This recording is reviewed: all ' + decided + ' tracks decided.'
+    : decided + ' of ' + r.tracks.length + ' tracks decided in this recording.';
+  p.dataset.decided = String(decided);
+}
+
+function selectTrack(id) {
+  if (!state.recording) return;
+  state.track = id;
+  renderRecording();
+  const row = $('track-table').querySelector('tr.selected');
+  if (row) row.scrollIntoView({ block: 'nearest' });
+}
+
+function stepTrack(delta) {
+  const tracks = state.recording.tracks;
+  if (tracks.length === 0) return;
+  const at = state.track === null ? -1 : tracks.findIndex((t) => t.id === state.track);
+  let next = at + delta;
+  if (at === -1 && delta < 0) next = tracks.length - 1;
+  if (next < 0 || next >= tracks.length) { selectTrack(null); return; }
+  selectTrack(tracks[next].id);
+}
+
+function nextUndecidedTrack(saved) {
+  const tracks = state.recording.tracks;
+  const at = state.track === null ? -1 : tracks.findIndex((t) => t.id === state.track);
+  for (let k = 1; k <= tracks.length; k++) {
+    const t = tracks[(at + k + tracks.length) % tracks.length];
+    if (!trackDecided(t)) { selectTrack(t.id); return; }
+  }
+  nextFrameToReview(saved);
+}
+
+function applyTrackDecision(frame, id, stored) {
+  const r = state.recording && state.frame === frame ? state.recording : null;
+  const t = r ? r.tracks.find((x) => x.id === id) : null;
+  if (t) t.decision = stored;
+  // The recording's line carries its tracks as regions: keep the list's count in step with the manifest.
+  const region = frame.regions.find((x) => x.id === id);
+  if (region) region.decision = t ? effectiveTrackDecision(t) : stored;
+}
+
 // ---- Decisions
 
+// The target of a verdict: a region, or on a recording a track ('t' + id); null is the whole frame or recording.
+function targetKey() {
+  if (state.recording) return state.track === null ? null : 't' + state.track;
+  return state.region;
+}
+
+function targetName(target) {
+  return target === null ? (state.recording ? 'Recording' : 'Frame')
+    : typeof target === 'string' ? 'Track ' + target.slice(1) : 'Region ' + target;
+}
+
 function draftKey() {
-  return state.batchId + '/' + state.frame.seq + '/' + (state.region === null ? 'frame' : state.region);
+  const t = targetKey();
+  return state.batchId + '/' + state.frame.seq + '/' + (t === null ? 'frame' : t);
 }
 
 function decisionPath() {
   const base = '/v1/batches/' + encodeURIComponent(state.batchId) + '/frames/' + state.frame.seq;
-  return state.region === null ? base + '/decision' : base + '/regions/' + state.region + '/decision';
+  const t = targetKey();
+  return t === null ? base + '/decision' : typeof t === 'string' ? base + '/tracks/' + t.slice(1) + '/decision' : base + '/regions/' + t + '/decision';
 }
 
 async function decide(verdict, advance) {
   if (!state.frame || state.dropped) return;
   const note = $('note').value.trim();
-  const target = state.region;
+  const target = targetKey();
   const frame = state.frame;
   try {
     const stored = await apiJson(decisionPath(), {
@@ -650,9 +998,9 @@ async function decide(verdict, advance) {
     });
     state.drafts.delete(state.batchId + '/' + frame.seq + '/' + (target === null ? 'frame' : target));
     applyDecision(frame, target, stored);
-    const saved = (target === null ? 'Frame' : 'Region ' + target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).';
+    const saved = targetName(target) + ': ' + VERDICT_TEXT[verdict] + ' (saved).';
     setStatus(saved);
-    if (advance && $('advance-toggle').checked && state.frame === frame && state.region === target) {
+    if (advance && $('advance-toggle').checked && state.frame === frame && targetKey() === target) {
       if (target === null) await nextFrameToReview(saved); else nextUndecided(saved);
     }
   } catch (e) {
@@ -662,12 +1010,12 @@ async function decide(verdict, advance) {
 
 async function withdraw() {
   if (!state.frame || state.dropped) return;
-  const target = state.region;
+  const target = targetKey();
   const frame = state.frame;
   try {
     await api(decisionPath(), { method: 'DELETE' });
     applyDecision(frame, target, null);
-    setStatus((target === null ? 'Frame' : 'Region ' + target) + ': decision withdrawn.');
+    setStatus(targetName(target) + ': decision withdrawn.');
   } catch (e) {
     setStatus('Not withdrawn: ' + e.message, true);
   }
@@ -675,6 +1023,7 @@ async function withdraw() {
 
 function applyDecision(frame, target, stored) {
   if (target === null) frame.decision = stored;
+  else if (typeof target === 'string') applyTrackDecision(frame, Number(target.slice(1)), stored);
   else {
     const r = frame.regions.find((x) => x.id === target);
     if (r) r.decision = stored;
@@ -684,7 +1033,8 @@ function applyDecision(frame, target, stored) {
     item.verdict = frame.decision ? frame.decision.verdict : null;
     item.regionsDecided = frame.regions.filter((r) => r.decision).length;
   }
-  if (state.frame === frame) {
+  if (state.frame === frame && state.recording) renderRecording();
+  else if (state.frame === frame) {
     renderBoxes();
     renderRegionTable();
     renderDecision();
@@ -726,7 +1076,7 @@ async function scoreDropped(file) {
       decision: null,
       regions: report.regions.map((r) => ({
         id: r.id, box: r.box, area: r.area, maxScore: r.maxScore, meanScore: r.meanScore,
-        classBeneath: r.classBeneathName || String(r.classBeneath), onSurface: r.onSurface, decision: null,
+        classBeneath: r.classBeneath, classBeneathName: r.classBeneathName, onSurface: r.onSurface, decision: null,
       })),
     }, sourceUrl, heat, mask);
     setStatus('Scored ' + file.name + ' with ' + model + '.');
@@ -772,7 +1122,10 @@ function onKey(e) {
   if (e.ctrlKey || e.metaKey || e.altKey) return;
   const k = e.key;
   let handled = true;
-  if (k === 'j' || k === 'ArrowDown') { if (state.index + 1 < state.frames.length) openFrame(state.index + 1); }
+  if (state.recording && (k === 'n' || k === 'ArrowRight')) stepTrack(1);
+  else if (state.recording && (k === 'b' || k === 'ArrowLeft')) stepTrack(-1);
+  else if (state.recording && k === 'f') selectTrack(null);
+  else if (k === 'j' || k === 'ArrowDown') { if (state.index + 1 < state.frames.length) openFrame(state.index + 1); }
   else if (k === 'k' || k === 'ArrowUp') { if (state.index > 0) openFrame(state.index - 1); }
   else if (k === 'n') stepRegion(1);
   else if (k === 'b') stepRegion(-1);
@@ -849,6 +1202,7 @@ function wire() {
     if (t && t.decision && !state.dropped && ($('note').value.trim() || null) !== (t.decision.note || null)) decide(t.decision.verdict);
   });
   document.addEventListener('keydown', onKey);
+  window.addEventListener('resize', () => { if (state.recording) { renderTimeline(); placeTrackMark(); } });
 
   const zone = $('drop-zone');
   zone.addEventListener('dragover', (e) => { e.preventDefault(); zone.classList.add('over'); });

@@ -79,6 +79,39 @@ public class CalibrationsApiTests
         await TestService.ProblemAsync(await s.Client.PostAsync("/v1/models/demo/calibrations", Upload(evil.ToArray(), "evil.zip")), 400, "archive-escape");
     }
 
+    [Fact]
+    public async Task Job_files_of_an_earlier_version_are_imported_into_the_store_and_stay_readable()
+    {
+        // Written as a build before the store held jobs left them: one job.json per job folder.
+        const string calibration = "0f0e0d0c0b0a09080706050403020100", evaluation = "00112233445566778899aabbccddeeff";
+        await using var s = await TestService.StartAsync(models =>
+        {
+            TestService.WriteModel(models, "apron-a");
+            string jobs = Path.Combine(models, "..", "data", ".strayspot");
+            Directory.CreateDirectory(Path.Combine(jobs, "calibrations", calibration));
+            File.WriteAllText(Path.Combine(jobs, "calibrations", calibration, "job.json"), $$"""
+                { "id": "{{calibration}}", "model": "apron-a", "modelSha256": "abc", "folder": "ordinary", "state": "done",
+                  "framesDone": 4, "framesTotal": 4, "createdUtc": "2026-11-30T08:00:00+00:00", "finishedUtc": "2026-11-30T08:01:00+00:00" }
+                """);
+            Directory.CreateDirectory(Path.Combine(jobs, "evaluations", evaluation));
+            File.WriteAllText(Path.Combine(jobs, "evaluations", evaluation, "job.json"), $$"""
+                { "id": "{{evaluation}}", "model": "apron-a", "dataset": "labelled", "state": "failed", "error": "no labels",
+                  "createdUtc": "2026-11-30T09:00:00+00:00" }
+                """);
+        });
+        await WaitReady(s);
+        var job = await WaitState(s, calibration, "done");
+        Assert.Equal((4, "ordinary"), (job.GetProperty("framesDone").GetInt32(), job.GetProperty("folder").GetString()));
+        var evaluations = await s.Client.GetFromJsonAsync<JsonElement>("/v1/evaluations");
+        var only = Assert.Single(evaluations.EnumerateArray());
+        Assert.Equal((evaluation, "failed", "no labels"),
+            (only.GetProperty("id").GetString(), only.GetProperty("state").GetString(), only.GetProperty("error").GetString()));
+        // The files are kept (renamed): the store is now where the jobs live.
+        string folder = Path.Combine(s.DataRoot, ".strayspot", "calibrations", calibration);
+        Assert.False(File.Exists(Path.Combine(folder, "job.json")));
+        Assert.True(File.Exists(Path.Combine(folder, "job.json.imported")));
+    }
+
     private static MultipartFormDataContent Upload(byte[] bytes, string name)
     {
         var form = new MultipartFormDataContent();

@@ -30,6 +30,15 @@ public class ScoringFormTests
     }
 
     [Fact]
+    public void All_means_every_artifact_the_endpoint_can_make_as_score_and_batches_take_it()
+    {
+        var noOverlay = Strayspot.Service.Hosting.ArtifactStore.Files.Keys.Where(k => k != "overlay").ToHashSet();
+        var (r, errors) = ScoringForm.Parse(Form(("artifacts", "all")), new ScoringOptions(), 100, noOverlay);
+        Assert.Empty(errors);
+        Assert.Equal(Strayspot.Service.Rendering.ArtifactWriter.All.Where(a => a != "overlay"), r!.Artifacts);
+    }
+
+    [Fact]
     public void No_fields_keep_the_profile_and_default_artifacts()
     {
         var profile = new ScoringOptions { Threshold = 1.25f };

@@ -117,6 +117,16 @@ public class BatchResumeTests
     }
 
     [Fact]
+    public void Regions_stored_with_the_class_name_in_classBeneath_read_back_with_the_name_beside_an_unknown_index()
+    {
+        const string old = """[{"id":3,"box":{"x":1,"y":2,"width":3,"height":4},"area":9,"meanScore":2,"maxScore":3,"classBeneath":"tarmac","onSurface":true,"outline":[[1,2]]}]""";
+        var region = Assert.Single(Manifest.ReadRegions(old));
+        Assert.Equal((3, -1, "tarmac", "tarmac"), (region.Id, region.ClassBeneath, region.ClassBeneathName, region.IndexedClass));
+        var now = Assert.Single(Manifest.ReadRegions(Manifest.RegionsJson([region with { ClassBeneath = 2 }])));
+        Assert.Equal((2, "tarmac"), (now.ClassBeneath, now.ClassBeneathName));
+    }
+
+    [Fact]
     public void Outline_simplification_keeps_corners_and_at_most_the_limit()
     {
         var square = new List<(int X, int Y)>();

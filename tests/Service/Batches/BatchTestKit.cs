@@ -63,19 +63,20 @@ public static class BatchTestKit
         TestService.StartAsync(CopyDemoModel, Config(pause, extra));
 
     public static async Task<JsonElement> PostFolderAsync(HttpClient client, string folder, string? batchId = null, string? callbackUrl = null,
-        HttpStatusCode expected = HttpStatusCode.Created)
+        HttpStatusCode expected = HttpStatusCode.Created, string? artifacts = null)
     {
-        var r = await client.PostAsJsonAsync("/v1/batches", new { model = Model, folder, batchId, callbackUrl });
+        var r = await client.PostAsJsonAsync("/v1/batches", new { model = Model, folder, batchId, callbackUrl, artifacts });
         string body = await r.Content.ReadAsStringAsync();
         Assert.True(expected == r.StatusCode, $"expected {(int)expected}, got {(int)r.StatusCode}: {body}");
         return JsonDocument.Parse(body).RootElement;
     }
 
     /// <summary>Writes frames into <paramref name="folder"/> under the data root, submits them as a batch and waits until it is done.</summary>
-    public static async Task<JsonElement> DoneBatchAsync(TestService s, string folder, string batchId, int frames, int debris = 0)
+    public static async Task<JsonElement> DoneBatchAsync(TestService s, string folder, string batchId, int frames, int debris = 0,
+        string? artifacts = null)
     {
         WriteFrames(Path.Combine(s.DataRoot, folder), frames, debris);
-        await PostFolderAsync(s.Client, folder, batchId: batchId);
+        await PostFolderAsync(s.Client, folder, batchId: batchId, artifacts: artifacts);
         return await WaitForStateAsync(s.Client, batchId, "done");
     }
 
@@ -112,6 +113,14 @@ public static class BatchTestKit
         Assert.True(r.IsSuccessStatusCode, body);
         Assert.Equal("application/x-ndjson", r.Content.Headers.ContentType?.MediaType);
         return body.Split('\n', StringSplitOptions.RemoveEmptyEntries).Select(l => JsonDocument.Parse(l).RootElement).ToList();
+    }
+
+    /// <summary>Waits until the one-frame batch is done and returns its manifest line.</summary>
+    public static async Task<JsonElement> WaitManifestLineAsync(HttpClient client, string id)
+    {
+        var batch = await WaitAsync(client, id, b => b.GetProperty("state").GetString() is "done" or "failed");
+        Assert.True(batch.GetProperty("state").GetString() == "done", batch.ToString());
+        return Assert.Single(await ManifestAsync(client, id));
     }
 
     public static async Task<Dictionary<string, JsonElement>> FramesAsync(HttpClient client, string id)

@@ -9,6 +9,45 @@ namespace Strayspot.Tests.Service.Batches;
 
 public class BatchesApiTests
 {
+    private static List<string> FilesOfOnlyFrame(TestService s, string batchId) =>
+        Directory.GetFiles(Path.Combine(s.DataRoot, "batches", batchId, "frames", "00001")).Select(Path.GetFileName).Order(StringComparer.Ordinal).ToList()!;
+
+    [Fact]
+    public async Task Batches_write_the_lean_artifacts_by_default_and_only_the_ones_asked_for()
+    {
+        await using var s = await StartAsync();
+        WriteFrames(Path.Combine(s.DataRoot, "one"), 1);
+        var lean = await PostFolderAsync(s.Client, "one", batchId: "lean");
+        Assert.Equal(["mask", "overlay"], lean.GetProperty("batch").GetProperty("artifacts").EnumerateArray().Select(a => a.GetString()));
+        await WaitForStateAsync(s.Client, "lean", "done");
+        Assert.Equal(["mask.png", "overlay.png", "report.json"], FilesOfOnlyFrame(s, "lean"));
+        var line = Assert.Single(await ManifestAsync(s.Client, "lean"));
+        Assert.Equal(["mask", "overlay", "report"], line.GetProperty("artifacts").EnumerateObject().Select(p => p.Name).Order(StringComparer.Ordinal));
+
+        await PostFolderAsync(s.Client, "one", batchId: "maps", artifacts: "score, heat");
+        await WaitForStateAsync(s.Client, "maps", "done");
+        Assert.Equal(["heat.png", "report.json", "score.npy"], FilesOfOnlyFrame(s, "maps"));
+        await PostFolderAsync(s.Client, "one", batchId: "bare", artifacts: "none");
+        await WaitForStateAsync(s.Client, "bare", "done");
+        Assert.Equal(["report.json"], FilesOfOnlyFrame(s, "bare"));
+        Assert.Equal(["report"], Assert.Single(await ManifestAsync(s.Client, "bare")).GetProperty("artifacts").EnumerateObject().Select(p => p.Name));
+
+        // A resubmission may not change what the batch's frames get.
+        await PostFolderAsync(s.Client, "one", batchId: "bare", artifacts: "all", expected: HttpStatusCode.Conflict);
+    }
+
+    [Fact]
+    public async Task An_unknown_artifact_is_refused_naming_the_closest_and_nothing_is_stored()
+    {
+        await using var s = await StartAsync();
+        WriteFrames(Path.Combine(s.DataRoot, "one"), 1);
+        var r = await s.Client.PostAsJsonAsync("/v1/batches", new { model = Model, folder = "one", batchId = "typo", artifacts = "overlay,heet" });
+        var problem = await TestService.ProblemAsync(r, 400, "validation-failed");
+        Assert.Contains("'heat'", problem.GetProperty("detail").GetString());
+        await TestService.ProblemAsync(await s.Client.GetAsync("/v1/batches/typo"), 404, "batch-not-found");
+        Assert.False(Directory.Exists(Path.Combine(s.DataRoot, "batches", "typo")));
+    }
+
     [Fact]
     public async Task Folder_batch_runs_to_done_and_its_manifest_lists_every_frame_once_ranked_by_score()
     {
@@ -40,8 +79,8 @@ public class BatchesApiTests
             Assert.Equal("default", line.GetProperty("profileVersion").GetString());
             Assert.Equal("shift1/" + line.GetProperty("frameId").GetString(), line.GetProperty("source").GetString());
             var artifacts = line.GetProperty("artifacts");
-            foreach (string key in new[] { "classes", "mask", "heat", "overlay", "report" })
-                Assert.True(File.Exists(Path.Combine(batchFolder, artifacts.GetProperty(key).GetString()!)), key);
+            foreach (var link in artifacts.EnumerateObject())
+                Assert.True(File.Exists(Path.Combine(batchFolder, link.Value.GetString()!)), link.Name);
             var report = JsonDocument.Parse(File.ReadAllText(Path.Combine(batchFolder, artifacts.GetProperty("report").GetString()!))).RootElement;
             Assert.Equal(line.GetProperty("frameScore").GetSingle(), report.GetProperty("frameScore").GetSingle());
             Assert.Equal(report.GetProperty("regions").GetArrayLength(), line.GetProperty("regions").GetArrayLength());
@@ -58,7 +97,11 @@ public class BatchesApiTests
                     Assert.InRange(p[0].GetInt32(), x0, x1 - 1);
                     Assert.InRange(p[1].GetInt32(), y0, y1 - 1);
                 }
-                Assert.False(string.IsNullOrEmpty(region.GetProperty("classBeneath").GetString()));
+                // One vocabulary with the frame report: classBeneath is the class index, classBeneathName its name.
+                var same = report.GetProperty("regions").EnumerateArray().Single(r => r.GetProperty("id").GetInt32() == region.GetProperty("id").GetInt32());
+                Assert.Equal(same.GetProperty("classBeneath").GetInt32(), region.GetProperty("classBeneath").GetInt32());
+                Assert.Equal(same.GetProperty("classBeneathName").GetString(), region.GetProperty("classBeneathName").GetString());
+                Assert.False(string.IsNullOrEmpty(region.GetProperty("classBeneathName").GetString()));
                 Assert.True(region.GetProperty("maxScore").GetSingle() >= region.GetProperty("meanScore").GetSingle());
             }
         }

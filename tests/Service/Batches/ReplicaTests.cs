@@ -12,20 +12,22 @@ namespace Strayspot.Tests.Service.Batches;
 /// Several service processes on one real PostgreSQL and one shared data folder, as a cluster runs them: frames are
 /// split by leased claims, a replica killed with SIGKILL loses its frames to the others once its lease runs out,
 /// the database restarting under them loses nothing, and decisions written through one are read through another.
-/// Leases are short here (1.5 s) so takeovers take seconds.
+/// Leases are short here (1.5 s) so takeovers take seconds. The serving replicas are started once for the class and
+/// shared by its tests (each on its own batch): starting a process and loading its model is most of the cost; a
+/// replica a test kills is replaced.
 /// </summary>
 [Collection(PostgresCollection.Name)]
-public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper output)
+public sealed class ReplicaTests(PostgresFixture postgres, ReplicaTests.SharedFleet shared, ITestOutputHelper output) : IClassFixture<ReplicaTests.SharedFleet>
 {
     private const int Small = 96; // frame width; height is half: the split is under test, not the scoring
 
     [PostgresFact]
     public async Task Three_replicas_split_one_batch_and_score_every_frame_exactly_once()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         var names = WriteFrames(Path.Combine(fleet.Data, "yard"), 60, debris: 6, width: Small, height: Small / 2);
         var clock = System.Diagnostics.Stopwatch.StartNew();
-        var replicas = await fleet.StartAsync(3);
+        var replicas = await fleet.LiveAsync(3);
         output.WriteLine($"three replicas ready in {clock.ElapsedMilliseconds} ms");
         using var a = replicas[0].Client();
         using var c = replicas[2].Client();
@@ -46,16 +48,16 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task A_killed_replicas_frames_are_taken_over_after_its_lease_and_none_is_lost_or_doubled()
     {
-        using var fleet = new Fleet(postgres.Cluster);
-        var replicas = await fleet.StartAsync(3);
+        var fleet = shared.Of(postgres.Cluster);
         for (int round = 1; round <= 3; round++)
         {
             string folder = $"round{round}", id = $"kill-{round}";
-            var names = WriteFrames(Path.Combine(fleet.Data, folder), 24, seed: round, width: Small, height: Small / 2);
-            var live = replicas.Where(r => !r.HasExited).ToList();
+            var names = WriteFrames(Path.Combine(fleet.Data, folder), 16, seed: round, width: Small, height: Small / 2);
+            var live = await fleet.LiveAsync(3);
             using var client = live[0].Client();
-            await PostFolderAsync(client, folder, batchId: id);
-            await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 6, TimeSpan.FromSeconds(60));
+            // Every artifact, as batches wrote before the lean default: frames long enough to catch a replica holding one.
+            await PostFolderAsync(client, folder, batchId: id, artifacts: "all");
+            await WaitAsync(client, id, b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 3, TimeSpan.FromSeconds(60));
 
             // The victim: a replica holding a claim right now (the others keep scoring). It is frozen before its claims
             // are read, so it cannot finish the frame between the read and the kill.
@@ -77,7 +79,7 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             victim.Kill();
             Assert.NotEmpty(held);
             output.WriteLine($"round {round}: killed replica {victim.Id} holding frame(s) {string.Join(", ", held)}");
-            replicas.Add(fleet.Start()); // as an orchestrator would; the other two finish meanwhile
+            fleet.Start(); // as an orchestrator would; the other two finish meanwhile
 
             await WaitForStateAsync(client, id, "done", TimeSpan.FromSeconds(60));
             await AssertEveryFrameOnceAsync(client, id, names, fleet);
@@ -95,9 +97,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     [PostgresFact]
     public async Task A_database_restart_mid_batch_makes_replicas_not_ready_and_loses_nothing()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         var names = WriteFrames(Path.Combine(fleet.Data, "night"), 30, width: Small, height: Small / 2);
-        var replicas = await fleet.StartAsync(2);
+        var replicas = await fleet.LiveAsync(3);
         using var a = replicas[0].Client();
         await PostFolderAsync(a, "night", batchId: "night-1");
         await WaitAsync(a, "night-1", b => b.GetProperty("frames").GetProperty("done").GetInt32() >= 5, TimeSpan.FromSeconds(60));
@@ -132,11 +134,12 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
     }
 
     [PostgresFact]
-    public async Task A_decision_written_through_one_replica_is_read_through_another_and_logged_once()
+    public async Task Decisions_and_jobs_written_through_one_replica_are_read_through_another_and_logged_once()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        var fleet = shared.Of(postgres.Cluster);
         WriteFrames(Path.Combine(fleet.Data, "gate"), 3, debris: 3, width: Small, height: Small / 2);
-        var replicas = await fleet.StartAsync(2);
+        Strayspot.Tests.Service.Evaluation.EvaluationFixtures.WriteFlatDataset(Path.Combine(fleet.Data, "held-out"), 2);
+        var replicas = await fleet.LiveAsync(2);
         using var a = replicas[0].Client();
         using var b = replicas[1].Client();
         await PostFolderAsync(a, "gate", batchId: "gate-1");
@@ -154,26 +157,82 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         // The latest write in the log is the current decision, whichever replica took it.
         Assert.Equal(log[^1].GetProperty("revision").GetInt64(), current.GetProperty("revision").GetInt64());
         Assert.Equal(log[^1].GetProperty("note").GetString(), current.GetProperty("note").GetString());
+
+        // Calibration and evaluation jobs started through A are listed, followed and activated through B.
+        // On a second copy of the model, installed now (every replica picks it up from the shared folder): activating
+        // changes the model's calibration, which the other tests' batches must not see.
+        string staged = Path.Combine(fleet.Data, "..", "staged-model");
+        CopyDemoModel(staged, Fleet.JobsModel);
+        Directory.Move(Path.Combine(staged, Fleet.JobsModel), Path.Combine(fleet.Models, Fleet.JobsModel)); // appears whole
+        foreach (var replica in new[] { a, b })
+            for (var until = DateTime.UtcNow.AddSeconds(30); !await UsableAsync(replica, Fleet.JobsModel) && DateTime.UtcNow < until;)
+                await Task.Delay(100);
+        var calibration = await a.PostAsJsonAsync($"/v1/models/{Fleet.JobsModel}/calibrations", new { folder = "gate" });
+        Assert.Equal(HttpStatusCode.Accepted, calibration.StatusCode);
+        string calibrationId = (await calibration.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        var evaluation = await a.PostAsJsonAsync($"/v1/models/{Fleet.JobsModel}/evaluations", new { dataset = "held-out" });
+        Assert.Equal(HttpStatusCode.Accepted, evaluation.StatusCode);
+        string evaluationId = (await evaluation.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("id").GetString()!;
+        Assert.Contains(calibrationId, (await GetAsync(b, "/v1/calibrations")).EnumerateArray().Select(j => j.GetProperty("id").GetString()));
+        Assert.Contains(evaluationId, (await GetAsync(b, "/v1/evaluations")).EnumerateArray().Select(j => j.GetProperty("id").GetString()));
+        var calibrated = await WaitForJobAsync(b, $"/v1/calibrations/{calibrationId}");
+        Assert.Equal("done", calibrated.GetProperty("state").GetString());
+        Assert.Equal(3, calibrated.GetProperty("framesDone").GetInt32());
+        Assert.Equal("done", (await WaitForJobAsync(b, $"/v1/evaluations/{evaluationId}")).GetProperty("state").GetString());
+        Assert.True((await b.GetAsync($"/v1/evaluations/{evaluationId}/files/metrics.json")).IsSuccessStatusCode);
+        var activated = await b.PostAsync($"/v1/calibrations/{calibrationId}/activate", null);
+        Assert.True(activated.IsSuccessStatusCode, await activated.Content.ReadAsStringAsync());
+        Assert.Equal("activated", (await GetAsync(a, $"/v1/calibrations/{calibrationId}")).GetProperty("state").GetString());
+        // The activated calibration reaches the replica that did not activate it (it sees the shared models folder change).
+        long? measuredOver = null;
+        for (var until = DateTime.UtcNow.AddSeconds(30); measuredOver != 3 && DateTime.UtcNow < until; await Task.Delay(100))
+            measuredOver = (await GetAsync(a, $"/v1/models/{Fleet.JobsModel}")).GetProperty("calibration").GetProperty("frameCount").GetInt64();
+        Assert.Equal(3, measuredOver);
+        // One record per job, in the one store.
+        Assert.Equal([("calibration", calibrationId, "activated"), ("evaluation", evaluationId, "done")], fleet.Jobs());
+    }
+
+    private static async Task<bool> UsableAsync(HttpClient client, string model)
+    {
+        var r = await client.GetAsync($"/v1/models/{model}");
+        return r.IsSuccessStatusCode && (await r.Content.ReadFromJsonAsync<JsonElement>()).GetProperty("usable").GetBoolean();
+    }
+
+    private static async Task<JsonElement> WaitForJobAsync(HttpClient client, string path)
+    {
+        var until = DateTime.UtcNow.AddSeconds(60);
+        while (true)
+        {
+            var job = await GetAsync(client, path);
+            if (job.GetProperty("state").GetString() is "done" or "failed" || DateTime.UtcNow > until) return job;
+            await Task.Delay(100);
+        }
     }
 
     [PostgresFact]
     public async Task A_worker_takes_only_batch_work_and_exits_when_none_is_left()
     {
-        using var fleet = new Fleet(postgres.Cluster);
+        using var fleet = new Fleet(postgres.Cluster); // its own store: the shared serving replicas would take its batch
         var names = WriteFrames(Path.Combine(fleet.Data, "late"), 8, width: Small, height: Small / 2);
-
-        using (var idle = fleet.Start(verb: "work"))
-        {
-            using var client = await idle.ReadyClientAsync();
-            Assert.Equal(HttpStatusCode.NotFound, (await client.GetAsync("/v1/models")).StatusCode); // no scoring API on a worker
-            await idle.StopAsync();
-        }
-
         // Queued straight into the store, as the service does on POST /v1/batches (sources relative to the data folder).
         using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
             store.Batches.Submit("late-1", Model, "folder:late", null, names.Select(n => new Strayspot.Service.Batches.NewFrame(n, "late/" + n)).ToList());
+
+        // Side by side, on a store with no work: a worker without --until-idle serves health but no scoring API, and stays up until stopped.
+        var clock = System.Diagnostics.Stopwatch.StartNew();
+        using var empty = new Fleet(postgres.Cluster);
+        using var idle = empty.Start(verb: "work");
         var worker = fleet.Start(verb: "work", args: ["--until-idle"]);
+        using (var client = await idle.ReadyClientAsync())
+        {
+            Assert.Equal(HttpStatusCode.NotFound, (await client.GetAsync("/v1/models")).StatusCode); // no scoring API on a worker
+            output.WriteLine($"idle worker ready in {clock.ElapsedMilliseconds} ms");
+            await idle.StopAsync();
+            output.WriteLine($"idle worker stopped at {clock.ElapsedMilliseconds} ms");
+        }
+
         await worker.WaitForExitAsync(TimeSpan.FromSeconds(90));
+        output.WriteLine($"worker done at {clock.ElapsedMilliseconds} ms");
         Assert.True(worker.ExitCode == 0, worker.Log);
 
         using (var store = Strayspot.Service.Store.BatchDatabase.OpenPostgres(fleet.Connection))
@@ -194,12 +253,24 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
         Assert.Equal(names.Count, Directory.EnumerateDirectories(frames).Count(d => !Path.GetFileName(d).StartsWith('.')));
     }
 
+    /// <summary>The class's serving replicas on one database, started on first use and stopped after the class.</summary>
+    public sealed class SharedFleet : IDisposable
+    {
+        private Fleet? _fleet;
+
+        public Fleet Of(PostgresCluster cluster) => _fleet ??= new Fleet(cluster);
+
+        public void Dispose() => _fleet?.Dispose();
+    }
+
     /// <summary>Replicas on one database and one data folder (the demo model, copied once).</summary>
-    private sealed class Fleet : IDisposable
+    public sealed class Fleet : IDisposable
     {
         private readonly string _root = Path.Combine(Path.GetTempPath(), "strayspot-fleet-" + Guid.NewGuid().ToString("N"));
         private readonly List<ServiceProcess> _started = [];
         private readonly string _connection;
+
+        public const string JobsModel = "demo-jobs";
 
         public Fleet(PostgresCluster cluster)
         {
@@ -226,11 +297,17 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
             return p;
         }
 
-        public async Task<List<ServiceProcess>> StartAsync(int n)
+        /// <summary>
+        /// <paramref name="n"/> serving replicas that are alive and ready, oldest first: those started so far (replacements
+        /// of killed ones included), and new ones started side by side when there are fewer.
+        /// </summary>
+        public async Task<List<ServiceProcess>> LiveAsync(int n)
         {
-            var list = Enumerable.Range(0, n).Select(_ => Start()).ToList();
-            foreach (var p in list) (await p.ReadyClientAsync()).Dispose();
-            return list;
+            var live = _started.Where(p => p.Verb == "serve" && !p.HasExited).ToList();
+            for (int i = live.Count; i < n; i++) live.Add(Start());
+            live = live.Take(n).ToList();
+            await Task.WhenAll(live.Select(async p => (await p.ReadyClientAsync()).Dispose()));
+            return live;
         }
 
         /// <summary>Frames of the batch scored by each claim owner (host/process/random).</summary>
@@ -240,6 +317,9 @@ public sealed class ReplicaTests(PostgresFixture postgres, ITestOutputHelper out
 
         public string ScorerOf(string batch, int seq) =>
             Query("SELECT scored_by FROM frames WHERE batch_id = @b AND seq = @s", r => r.GetString(0), ("b", batch), ("s", seq)).Single();
+
+        /// <summary>Every stored job: kind and state, by kind.</summary>
+        public List<(string, string, string)> Jobs() => Query("SELECT kind, id, state FROM jobs ORDER BY kind, id", r => (r.GetString(0), r.GetString(1), r.GetString(2)));
 
         /// <summary>The frames process <paramref name="pid"/> holds a claim on now.</summary>
         public List<int> Held(string batch, int pid) => Query(

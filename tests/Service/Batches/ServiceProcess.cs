@@ -9,10 +9,11 @@ public sealed class ServiceProcess : IDisposable
     private readonly Process _process;
     private readonly ConcurrentQueue<string> _log = new();
 
-    private ServiceProcess(Process process, int port)
+    private ServiceProcess(Process process, int port, string verb)
     {
         _process = process;
         Port = port;
+        Verb = verb;
         process.OutputDataReceived += (_, e) => { if (e.Data is not null) _log.Enqueue(e.Data); };
         process.ErrorDataReceived += (_, e) => { if (e.Data is not null) _log.Enqueue(e.Data); };
         process.BeginOutputReadLine();
@@ -20,6 +21,7 @@ public sealed class ServiceProcess : IDisposable
     }
 
     public int Port { get; }
+    public string Verb { get; }
     public int Id => _process.Id;
     public bool HasExited => _process.HasExited;
     public int ExitCode => _process.ExitCode;
@@ -37,7 +39,7 @@ public sealed class ServiceProcess : IDisposable
         info.Environment["STRAYSPOT_Service__Batches__PollInterval"] = "00:00:00.200";
         info.Environment["STRAYSPOT_Service__IntraOpThreads"] = "1";
         foreach (var (k, v) in environment ?? new Dictionary<string, string>()) info.Environment[k] = v;
-        return new ServiceProcess(Process.Start(info)!, port);
+        return new ServiceProcess(Process.Start(info)!, port, verb);
     }
 
     public HttpClient Client() => new() { BaseAddress = new Uri($"http://127.0.0.1:{Port}"), Timeout = TimeSpan.FromSeconds(10) };

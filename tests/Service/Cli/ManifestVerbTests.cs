@@ -1,3 +1,4 @@
+using Microsoft.Extensions.Configuration;
 using System.CommandLine;
 using System.Text.Json;
 using Strayspot.Service.Batches;
@@ -11,18 +12,27 @@ public sealed class ManifestVerbTests : IDisposable
 {
     private readonly string _data = Directory.CreateTempSubdirectory("strayspot-manifest-").FullName;
 
-    private static async Task<(int Exit, string Out, string Err)> Run(params string[] args)
+    private static Task<(int Exit, string Out, string Err)> Run(params string[] args) => RunWith(null, args);
+
+    /// <summary>Runs the verb with the store settings given (as a configuration would); null: read as the service reads them.</summary>
+    internal static async Task<(int Exit, string Out, string Err)> RunWith(IDictionary<string, string?>? settings, params string[] args)
     {
         var output = new StringWriter();
         var error = new StringWriter();
-        int exit = await ManifestVerb.Create().Parse(args).InvokeAsync(new InvocationConfiguration { Output = output, Error = error });
+        var configuration = settings is null ? null : new ConfigurationBuilder().AddInMemoryCollection(settings).Build();
+        int exit = await ManifestVerb.Create(configuration).Parse(args).InvokeAsync(new InvocationConfiguration { Output = output, Error = error });
         return (exit, output.ToString(), error.ToString());
     }
 
-    /// <summary>A batch of three done frames as the service leaves it, with decisions on two of them.</summary>
     private void SeedBatch()
     {
         using var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(Path.Combine(_data, ".strayspot", "batches.db"));
+        SeedBatch(database);
+    }
+
+    /// <summary>A batch of three done frames as the service leaves it, with decisions on two of them.</summary>
+    internal static void SeedBatch(Strayspot.Service.Store.BatchDatabase database)
+    {
         var store = database.Batches;
         store.Submit("night", "demo", "folder:cams", null, [new NewFrame("a.png", "cams/a.png"), new NewFrame("b.png", "cams/b.png"), new NewFrame("c.png", "cams/c.png")]);
         store.Transition("night", BatchStates.Running, [BatchStates.Queued]);
@@ -30,7 +40,7 @@ public sealed class ManifestVerbTests : IDisposable
         for (int seq = 1; seq <= 3; seq++)
         {
             var start = store.ClaimNextFrame("night", "seed", TimeSpan.FromMinutes(1))!;
-            var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], "pavement", true, [[4, 4], [11, 4], [11, 9]]);
+            var region = new ManifestRegion(1, new BoxReport(4, 4, 8, 6), 30, 2.5f, scores[seq - 1], 0, "pavement", true, [[4, 4], [11, 4], [11, 9]]);
             store.CompleteFrame(start, new FrameResult(scores[seq - 1], 1, $"frames/{start.Seq:D5}/report.json", Manifest.RegionsJson([region])));
         }
         database.Decisions.Decide("night", 2, 1, Verdicts.LabelIt, "chock left behind", "tester");
@@ -80,6 +90,49 @@ public sealed class ManifestVerbTests : IDisposable
     public void Dispose()
     {
         Microsoft.Data.Sqlite.SqliteConnection.ClearAllPools();
+        try { Directory.Delete(_data, recursive: true); } catch (IOException) { }
+    }
+}
+
+/// <summary>The verb reads the store the service is configured with: here a real PostgreSQL (started as the postgres user).</summary>
+[Collection(Strayspot.Tests.Support.PostgresCollection.Name)]
+public sealed class ManifestVerbPostgresTests(Strayspot.Tests.Support.PostgresFixture postgres) : IDisposable
+{
+    private readonly string _data = Directory.CreateTempSubdirectory("strayspot-manifest-pg-").FullName;
+
+    [Strayspot.Tests.Support.PostgresFact]
+    public async Task Reads_the_batch_from_the_configured_postgres_store_and_never_makes_a_sqlite_file()
+    {
+        string connection = postgres.Cluster.CreateDatabase();
+        using (var database = Strayspot.Service.Store.BatchDatabase.OpenPostgres(connection)) ManifestVerbTests.SeedBatch(database);
+        var settings = new Dictionary<string, string?> { ["Service:Store"] = "postgres", ["Service:StoreConnection"] = connection };
+
+        var all = await ManifestVerbTests.RunWith(settings, "--data", _data, "--batch", "night");
+        Assert.True(all.Exit == 0, all.Err);
+        Assert.Contains("3 frame line(s) of batch 'night' with 2 decision(s)", all.Out);
+        var lines = File.ReadAllLines(Path.Combine(_data, "batches", "night", "manifest.jsonl")).Select(l => JsonDocument.Parse(l).RootElement).ToList();
+        Assert.Equal(["b.png", "a.png", "c.png"], lines.Select(l => l.GetProperty("frameId").GetString()));
+        Assert.Equal("chock left behind", lines[0].GetProperty("regions")[0].GetProperty("decision").GetProperty("note").GetString());
+        Assert.False(File.Exists(Path.Combine(_data, ".strayspot", "batches.db")), "the SQLite store must not be opened");
+
+        var unknown = await ManifestVerbTests.RunWith(settings, "--data", _data, "--batch", "day");
+        Assert.Equal(2, unknown.Exit);
+        Assert.Contains("no batch 'day' in postgres://", unknown.Err);
+        Assert.Contains("night", unknown.Err);
+
+        var unset = await ManifestVerbTests.RunWith(new Dictionary<string, string?> { ["Service:Store"] = "postgres" }, "--data", _data, "--batch", "night");
+        Assert.Equal(2, unset.Exit);
+        Assert.Contains("Service:StoreConnection", unset.Err);
+
+        var wrongDatabase = new Npgsql.NpgsqlConnectionStringBuilder(connection) { Database = "no_such_database" }.ToString();
+        var wrong = await ManifestVerbTests.RunWith(new Dictionary<string, string?> { ["Service:Store"] = "postgres", ["Service:StoreConnection"] = wrongDatabase },
+            "--data", _data, "--batch", "night");
+        Assert.Equal(2, wrong.Exit);
+        Assert.Contains("no_such_database", wrong.Err);
+    }
+
+    public void Dispose()
+    {
         try { Directory.Delete(_data, recursive: true); } catch (IOException) { }
     }
 }

@@ -71,6 +71,31 @@ public class FramePreprocessorTests
             }
     }
 
+    [Theory]
+    [InlineData("rgb")]
+    [InlineData("bgr")]
+    public void A_frame_of_the_input_size_gets_the_same_values_as_the_resampling_path(string order)
+    {
+        // The equal-size shortcut must not change a single bit: padding to a multiple of 8 sends the same frame
+        // through the resampling path (zero weights, content at the top left), which is compared bit for bit.
+        using var image = TestImages.Noise(21, 13, seed: 3);
+        using var frame = DecodedFrame.FromImage(image.Clone());
+        InputDescriptor Of(int pad) => new()
+        {
+            Layout = "nchw", ChannelOrder = order, ValueScale = 255f, Mean = [0.485f, 0.456f, 0.406f], Std = [0.229f, 0.224f, 0.225f],
+            Size = new SizePolicy { Mode = "dynamic", PadMultiple = pad },
+        };
+        var direct = new FramePreprocessor(Of(1)).Prepare(frame);
+        var padded = new FramePreprocessor(Of(8)).Prepare(frame);
+        Assert.Equal(new long[] { 1, 3, 13, 21 }, direct.Shape);
+        Assert.Equal(new long[] { 1, 3, 16, 24 }, padded.Shape);
+        for (int c = 0; c < 3; c++)
+            for (int y = 0; y < 13; y++)
+                for (int x = 0; x < 21; x++)
+                    Assert.Equal(BitConverter.SingleToInt32Bits(padded.Data.Span[(c * 16 + y) * 24 + x]),
+                        BitConverter.SingleToInt32Bits(direct.Data.Span[(c * 13 + y) * 21 + x]));
+    }
+
     [Fact]
     public void PlanFollowsLongestAndShortestSideAndPadsToMultiple()
     {

@@ -28,6 +28,14 @@ public class FrameSourcesTests
         return root;
     }
 
+    /// <summary>The frames of <see cref="Folder"/> as frames.zip.</summary>
+    private static string Zipped(TempFolder dir)
+    {
+        string zip = Path.Combine(dir.Path, "frames.zip");
+        ZipFile.CreateFromDirectory(Folder(dir), zip);
+        return zip;
+    }
+
     [Fact]
     public void A_folder_is_walked_in_ordinal_order_of_relative_paths_without_hidden_entries()
     {
@@ -43,9 +51,8 @@ public class FrameSourcesTests
     public void Archive_file_and_upload_sources_give_the_same_frames_with_stable_ids()
     {
         using var dir = new TempFolder();
-        string folder = Folder(dir);
-        string zip = Path.Combine(dir.Path, "frames.zip");
-        ZipFile.CreateFromDirectory(folder, zip);
+        string zip = Zipped(dir);
+        string folder = Path.Combine(dir.Path, "frames");
         var archived = new ArchiveFrameSource(zip, Path.Combine(dir.Path, "unpacked"), new ArchiveLimits(100, 1 << 20)).Frames().ToList();
         Assert.Equal(["a.png", "b.png", "cam2/a.png"], archived.Select(f => f.Id));
 
@@ -101,5 +108,18 @@ public class FrameSourcesTests
         string report = File.ReadAllText(Path.Combine(dir.Path, "out", ranking[0].Report));
         Assert.Contains("\"preprocess\"", report);
         Assert.Contains("\"inference\"", report);
+    }
+
+    [Fact]
+    public void Frames_scored_from_an_archive_are_named_by_the_archive_and_entry_not_the_temporary_copy()
+    {
+        using var dir = new TempFolder();
+        string zip = Zipped(dir);
+        string model = new TestSegmentationGraph { Classes = 3, Stride = 2 }.WriteFolder(Path.Combine(dir.Path, "model"));
+        using var local = LocalModel.Open(model, new ParallelSettings { IntraOpThreads = 1, WarmUp = false });
+        var ranking = ScoreVerb.ScoreAll(local, ScoreVerb.ExpandFrames([zip]),
+            local.Version.Defaults with { Method = Strayspot.Scoring.Pipeline.ScoreMethod.MaxLogit }, Path.Combine(dir.Path, "out"));
+        Assert.Equal([zip + "!a.png", zip + "!b.png", zip + "!cam2/a.png"], ranking.Select(r => r.Frame).Order(StringComparer.Ordinal));
+        Assert.DoesNotContain("strayspot-unpacked-", File.ReadAllText(Path.Combine(dir.Path, "out", "ranking.json")));
     }
 }

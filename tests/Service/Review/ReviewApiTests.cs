@@ -50,10 +50,10 @@ public class ReviewApiTests
         var surfaceNames = classes.EnumerateArray().Where(c => c.GetProperty("surface").GetBoolean()).Select(c => c.GetProperty("name").GetString()).ToHashSet();
         Assert.NotEmpty(surfaceNames);
         foreach (var r in regions.EnumerateArray())
-            if (surfaceNames.Contains(r.GetProperty("classBeneath").GetString()))
+            if (surfaceNames.Contains(r.GetProperty("classBeneathName").GetString()))
                 Assert.True(r.GetProperty("onSurface").GetBoolean(), r.ToString());
         Assert.Contains(regions.EnumerateArray(), r => r.GetProperty("onSurface").GetBoolean());
-        string beneath = regions[0].GetProperty("classBeneath").GetString()!;
+        string beneath = regions[0].GetProperty("classBeneathName").GetString()!;
         await s.Client.PutAsJsonAsync($"/v1/batches/ov/frames/{seq}/regions/{regions[0].GetProperty("id").GetInt32()}/decision", new { verdict = "false-alarm" });
         var after = await GetAsync(s.Client, "/v1/batches/ov/review");
         var counts = after.GetProperty("counts");
@@ -62,7 +62,9 @@ public class ReviewApiTests
         Assert.Equal(0, counts.GetProperty("frames").GetProperty("reviewed").GetInt32());
         Assert.Equal(1, counts.GetProperty("frames").GetProperty("inProgress").GetInt32());
         Assert.Equal(1, counts.GetProperty("regions").GetProperty("verdicts").GetProperty("falseAlarm").GetInt32());
-        var byClass = counts.GetProperty("byClassBeneath").EnumerateArray().Single(c => c.GetProperty("classBeneath").GetString() == beneath);
+        var byClass = counts.GetProperty("byClassBeneath").EnumerateArray().Single(c => c.GetProperty("classBeneathName").GetString() == beneath);
+        // One vocabulary: the tally carries the class index beside the name, as regions and frame reports do.
+        Assert.Equal(regions[0].GetProperty("classBeneath").GetInt32(), byClass.GetProperty("classBeneath").GetInt32());
         Assert.True(byClass.GetProperty("falseAlarmRate").GetDouble() > 0);
         Assert.Equal(1, after.GetProperty("frames")[0].GetProperty("regionsDecided").GetInt32());
         Assert.Equal(JsonValueKind.Null, after.GetProperty("evaluation").ValueKind);
@@ -72,7 +74,7 @@ public class ReviewApiTests
     public async Task A_frame_lists_its_regions_and_serves_its_source_and_artifacts_at_frame_size()
     {
         await using var s = await StartAsync();
-        await DoneBatchAsync(s, "apron", "fr", 2, debris: 1);
+        await DoneBatchAsync(s, "apron", "fr", 2, debris: 1, artifacts: "all");
         var overview = await GetAsync(s.Client, "/v1/batches/fr/review");
         int seq = overview.GetProperty("frames")[0].GetProperty("seq").GetInt32();
         var frame = await GetAsync(s.Client, $"/v1/batches/fr/frames/{seq}");

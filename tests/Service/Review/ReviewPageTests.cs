@@ -65,7 +65,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         var http = new HttpClient { BaseAddress = new Uri(address), Timeout = TimeSpan.FromSeconds(60) };
         if (apiKey is not null) http.DefaultRequestHeaders.Add("X-Api-Key", apiKey);
         var live = new LiveService { App = app, Root = root, Http = http, BaseUrl = address.TrimEnd('/'), FramePaths = frames };
-        var submit = await http.PostAsJsonAsync("/v1/batches", new { model = "demo", folder = "apron", batchId = Batch });
+        var submit = await http.PostAsJsonAsync("/v1/batches", new { model = "demo", folder = "apron", batchId = Batch, artifacts = "mask,overlay,heat" });
         Assert.True(submit.IsSuccessStatusCode, await submit.Content.ReadAsStringAsync());
         if (waitForDone) await Batches.BatchTestKit.WaitForStateAsync(http, Batch, "done", TimeSpan.FromSeconds(90));
         return live;
@@ -212,7 +212,7 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
         await Expect(page.Locator(".verdicts button[data-verdict='label-it']")).ToHaveClassAsync(new System.Text.RegularExpressions.Regex(@"\bchosen\b"));
         // The summary: the region on the class beneath region 2 counts one false alarm.
         var frame = JsonDocument.Parse(await s.Http.GetStringAsync($"/v1/batches/{Batch}/frames/{seq}")).RootElement;
-        string beneath2 = frame.GetProperty("regions")[1].GetProperty("classBeneath").GetString()!;
+        string beneath2 = frame.GetProperty("regions")[1].GetProperty("classBeneathName").GetString()!;
         await Expect(page.Locator($"#class-table tr[data-class='{beneath2}']")).ToBeVisibleAsync();
         await session.ScreenshotAsync("after reload");
 

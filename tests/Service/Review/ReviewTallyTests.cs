@@ -7,7 +7,7 @@ namespace Strayspot.Tests.Service.Review;
 public class ReviewTallyTests
 {
     private static ManifestRegion Region(int id, string beneath, float maxScore) =>
-        new(id, new BoxReport(0, 0, 1, 1), 1, maxScore - 1, maxScore, beneath, true, [[0, 0]]);
+        new(id, new BoxReport(0, 0, 1, 1), 1, maxScore - 1, maxScore, 0, beneath, true, [[0, 0]]);
 
     private static FrameRecord Frame(int seq, string state, params ManifestRegion[] regions) =>
         new("b", seq, $"f{seq}.png", $"f{seq}.png", state, state == FrameStates.Done ? 3f : null, regions.Length, $"frames/{seq:D5}/report.json",
@@ -19,7 +19,7 @@ public class ReviewTallyTests
         var briefs = new List<RegionBrief>();
         foreach (var f in frames)
             if (f.State == FrameStates.Done)
-                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.ClassBeneath, r.MaxScore));
+                foreach (var r in Manifest.ReadRegions(f.RegionsJson)) briefs.Add(new RegionBrief(f.Seq, r.Id, r.IndexedClass, r.MaxScore));
         return ReviewTally.Count(frames.Select(f => new FrameSummary(f.Seq, f.FrameId, f.State, f.FrameScore, f.RegionCount)).ToList(), briefs, decisions);
     }
 
@@ -52,16 +52,16 @@ public class ReviewTallyTests
         Assert.Equal(5, c.Regions.Reviewed);
         Assert.Equal(new VerdictCounts(1, 4, 0), c.Regions.Verdicts);
 
-        var tarmac = c.ByClassBeneath.Single(x => x.ClassBeneath == "tarmac");
+        var tarmac = c.ByClassBeneath.Single(x => x.ClassBeneathName == "tarmac");
         Assert.Equal(4, tarmac.Regions);
         Assert.Equal(3, tarmac.Reviewed);
         Assert.Equal(0.6667, tarmac.FalseAlarmRate);
         Assert.Equal(3.5f, tarmac.HighestFalseAlarmScore);
         Assert.Equal(5.0f, tarmac.LowestLabelItScore);
-        var grass = c.ByClassBeneath.Single(x => x.ClassBeneath == "grass");
+        var grass = c.ByClassBeneath.Single(x => x.ClassBeneathName == "grass");
         Assert.Equal(1.0, grass.FalseAlarmRate);
         Assert.Null(grass.LowestLabelItScore);
-        Assert.Equal("tarmac", c.ByClassBeneath[0].ClassBeneath); // most reviewed first
+        Assert.Equal("tarmac", c.ByClassBeneath[0].ClassBeneathName); // most reviewed first
     }
 
     [Fact]

@@ -95,10 +95,11 @@ public sealed class CommandLineSetupTests
         var options = new Strayspot.Scoring.Pipeline.ScoringOptions { Method = Strayspot.Scoring.Pipeline.ScoreMethod.MaxLogit };
         var e = Assert.Throws<ScoringInputException>(() => ScoreLogitsVerb.Run(npy, null, "256x512", options, dir["a"]));
         Assert.Contains("swapped", e.Message);
+        Assert.Equal(ScoringErrorCodes.LogitsAspect, e.Code);
         ScoreLogitsVerb.Run(npy, null, "512x256", options, dir["b"]);
         ScoreLogitsVerb.Run(npy, null, "256x512", options, dir["c"], stretch: true);
-        Assert.True(ScoreLogitsVerb.AspectAgrees(17, 33, 65, 129)); // stride 4 with rounding
-        Assert.True(ScoreLogitsVerb.AspectAgrees(1, 1, 20, 40));
+        Assert.True(LogitsAspect.Agrees(17, 33, 65, 129)); // stride 4 with rounding
+        Assert.True(LogitsAspect.Agrees(1, 1, 20, 40));
     }
 
     [Fact]

@@ -40,20 +40,21 @@ public sealed class SqliteMigrationTests : IDisposable
     public void A_database_from_before_versioning_is_migrated_in_order_and_keeps_its_rows()
     {
         Directory.CreateDirectory(_folder);
-        var region = new ManifestRegion(1, new BoxReport(0, 0, 2, 2), 4, 3f, 3.5f, "apron", false, [[0, 0], [1, 1]]);
+        // As stored before classBeneath became the class index: the name in its place.
+        const string region = """[{"id":1,"box":{"x":0,"y":0,"width":2,"height":2},"area":4,"meanScore":3,"maxScore":3.5,"classBeneath":"apron","onSurface":false,"outline":[[0,0],[1,1]]}]""";
         using (var raw = new SqliteConnection($"Data Source={Db};Pooling=False"))
         {
             raw.Open();
             using var cmd = raw.CreateCommand();
             cmd.CommandText = Unversioned;
-            cmd.Parameters.AddWithValue("$regions", Manifest.RegionsJson([region]));
+            cmd.Parameters.AddWithValue("$regions", region);
             cmd.ExecuteNonQuery();
         }
 
         using (var db = BatchDatabase.OpenSqlite(Db))
         {
             var s = db.Batches;
-            Assert.Equal([(1, 1, "apron", 3.5f)], s.RegionBriefs("old").Select(b => (b.Seq, b.Region, b.ClassBeneath, b.MaxScore)));
+            Assert.Equal([(1, 1, "apron", 3.5f)], s.RegionBriefs("old").Select(b => (b.Seq, b.Region, b.ClassBeneathName, b.MaxScore)));
             Assert.Equal((2, 1, 1), (s.Get("old")!.FrameCount, s.Get("old")!.DoneCount, s.Get("old")!.PendingCount));
             var claim = s.ClaimNextFrame("old", "me", TimeSpan.FromMinutes(1))!;
             Assert.Equal(("b.png", 2), (claim.Frame.FrameId, claim.Frame.Attempts));

@@ -29,7 +29,7 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
     private static NewFrame[] Frames(int n) => Enumerable.Range(1, n).Select(i => new NewFrame($"f{i:D3}.png", $"x/f{i:D3}.png")).ToArray();
 
     private static ManifestRegion Region(int id, string beneath, float max) =>
-        new(id, new BoxReport(0, 0, 2, 2), 4, max - 1, max, beneath, false, [[0, 0], [1, 0], [1, 1]]);
+        new(id, new BoxReport(0, 0, 2, 2), 4, max - 1, max, 0, beneath, false, [[0, 0], [1, 0], [1, 1]]);
 
     private static FrameResult Result(FrameClaim c, float score = 1f, params ManifestRegion[] regions) =>
         new(score, regions.Length, $"frames/{c.Seq:D5}/report.json", Manifest.RegionsJson(regions));
@@ -161,7 +161,7 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
             Assert.True(s.CompleteFrame(c, Result(c, 3f, r)));
         }
         Assert.Equal([(1, 1, "apron", 4f), (1, 2, "grass", float.PositiveInfinity), (3, 1, "apron", 2.5f)],
-            s.RegionBriefs("b").Select(b => (b.Seq, b.Region, b.ClassBeneath, b.MaxScore)));
+            s.RegionBriefs("b").Select(b => (b.Seq, b.Region, b.ClassBeneathName, b.MaxScore)));
         Assert.Equal([(1, 2), (2, 0), (3, 1)], s.FrameSummaries("b").Select(f => (f.Seq, f.RegionCount ?? -1)));
     }
 
@@ -188,6 +188,98 @@ public sealed class StoreContractTests(PostgresFixture postgres) : IDisposable
         Assert.Equal(log.Select(e => e.Revision).Order(), log.Select(e => e.Revision));
         Assert.Equal(2, d.Log("b", after: log[1].Revision).Count);
         Assert.Single(d.Current("b"));
+    }
+
+    private static JobRecord Job(string id, int minute, string state = "queued") =>
+        new("calibration", id, state, new DateTimeOffset(2026, 12, 2, 10, minute, 0, TimeSpan.Zero), $"{{\"id\":\"{id}\",\"state\":\"{state}\"}}");
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void Jobs_are_added_once_listed_newest_first_and_kept_apart_by_kind(string engine)
+    {
+        var j = Open(engine).Jobs;
+        Assert.True(j.Add(Job("old", 1)));
+        Assert.True(j.Add(Job("new", 2)));
+        Assert.False(j.Add(Job("old", 3, "done"))); // an existing job is left as it is
+        Assert.True(j.Add(Job("old", 1) with { Kind = "evaluation" }));
+        Assert.Equal(["new", "old"], j.List("calibration").Select(x => x.Id));
+        var old = j.Get("calibration", "old")!;
+        Assert.Equal(("queued", Job("old", 1).Created, Job("old", 1).Body), (old.State, old.Created, old.Body));
+        Assert.Single(j.List("evaluation"));
+        Assert.Null(j.Get("evaluation", "new"));
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void A_job_is_run_by_one_claimer_at_a_time_and_taken_over_after_its_lease(string engine)
+    {
+        var j = Open(engine).Jobs;
+        string[] runnable = ["queued", "running"];
+        j.Add(Job("a", 1));
+        j.Add(Job("b", 2));
+        j.Add(Job("c", 3, "done"));
+        var dead = j.ClaimNext("calibration", runnable, "dead", TimeSpan.FromMilliseconds(200))!;
+        Assert.Equal("a", dead.Id); // oldest first
+        Assert.True(j.Save(dead with { State = "running" }, "dead"));
+        var live = j.ClaimNext("calibration", runnable, "live", Lease)!;
+        Assert.Equal("b", live.Id); // a is held
+        Assert.Null(j.ClaimNext("calibration", runnable, "third", Lease)); // c is finished
+        Assert.False(j.Save(live with { State = "failed" }, "dead")); // not the holder
+        Thread.Sleep(600);
+        var taken = j.ClaimNext("calibration", runnable, "live", Lease)!;
+        Assert.Equal(("a", "running"), (taken.Id, taken.State));
+        Assert.False(j.Renew("calibration", "a", "dead", Lease));
+        Assert.False(j.Save(taken with { State = "done" }, "dead")); // the late writer is refused
+        Assert.True(j.Renew("calibration", "a", "live", Lease));
+        Assert.True(j.Save(taken with { State = "done" }, "live", release: true));
+        Assert.Equal("done", j.Get("calibration", "a")!.State);
+        Assert.True(j.Save(j.Get("calibration", "a")! with { State = "activated" }, "anyone")); // released: any replica may write
+        Assert.True(j.Save(live with { State = "running" }, "live", release: true)); // handed back unfinished: free to take at once
+        Assert.Equal("b", j.ClaimNext("calibration", runnable, "third", Lease)!.Id);
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void Concurrent_claimers_take_each_job_once(string engine)
+    {
+        var j = Open(engine).Jobs;
+        for (int i = 0; i < 20; i++) j.Add(Job($"j{i:D2}", i));
+        var taken = new System.Collections.Concurrent.ConcurrentBag<string>();
+        Parallel.For(0, 4, w =>
+        {
+            while (j.ClaimNext("calibration", ["queued"], $"w{w}", Lease) is { } job) taken.Add(job.Id);
+        });
+        Assert.Equal(Enumerable.Range(0, 20).Select(i => $"j{i:D2}"), taken.Order(StringComparer.Ordinal));
+    }
+
+    [Theory, InlineData("sqlite"), PostgresData]
+    public void A_track_decision_is_kept_apart_from_region_decisions_logged_once_and_laid_on_its_region_when_later(string engine)
+    {
+        var db = Open(engine);
+        var s = db.Batches;
+        s.Submit("b", "m", "folder:x", null, Frames(1));
+        Run(s, "b");
+        var c = s.ClaimNextFrame("b", "a", Lease)!;
+        s.CompleteFrame(c, Result(c, 3f, Region(1, "apron", 4f), Region(2, "apron", 5f)));
+        var d = db.Decisions;
+        var region = d.Decide("b", 1, 2, Verdicts.FalseAlarm, null, "ann");
+        var track = d.DecideTrack("b", 1, 2, Verdicts.LabelIt, "whole pass", "bo");
+        d.DecideTrack("b", 1, 1, Verdicts.Unsure, null, "bo");
+        Assert.Equal((2, (int?)null, Verdicts.LabelIt, "whole pass", "f001.png"), (track.Track!.Value, track.Region, track.Verdict, track.Note, track.FrameId));
+        Assert.True(track.Revision > region.Revision);
+        // Region decisions and track decisions are read apart; the region's own decision is still stored.
+        Assert.Equal([(1, (int?)2, (int?)null)], d.Current("b").Select(x => (x.Seq, x.Region, x.Track)));
+        Assert.Equal([1, 2], d.CurrentTracks("b").Select(x => x.Track!.Value));
+        Assert.Equal([1, 2], d.CurrentTracks("b", 1).Select(x => x.Track!.Value));
+        // Effective: the later write wins on region 2 (the track), and track 1 stands in for region 1.
+        Assert.Equal([(1, Verdicts.Unsure, (int?)1), (2, Verdicts.LabelIt, (int?)2)], d.Effective("b").Select(x => (x.Region!.Value, x.Verdict, x.Track)));
+        var later = d.Decide("b", 1, 2, Verdicts.FalseAlarm, "not this one", "ann");
+        Assert.Equal((Verdicts.FalseAlarm, (int?)null), d.Effective("b", 1).Where(x => x.Region == 2).Select(x => (x.Verdict, x.Track)).Single());
+        Assert.True(d.WithdrawTrack("b", 1, 2, "bo"));
+        Assert.False(d.WithdrawTrack("b", 1, 2, "bo"));
+        Assert.Equal([1], d.CurrentTracks("b").Select(x => x.Track!.Value));
+        // One log entry per track write (withdrawal included), beside the region entries, in revision order.
+        var log = d.Log("b");
+        Assert.Equal([(2, (int?)null), (null, 2), (null, 1), (2, null), (null, 2)], log.Select(e => (e.Region, e.Track)));
+        Assert.Equal([Verdicts.FalseAlarm, Verdicts.LabelIt, Verdicts.Unsure, Verdicts.FalseAlarm, null], log.Select(e => e.Verdict));
+        Assert.Equal(later.Revision, log[3].Revision);
     }
 
     [Theory, InlineData("sqlite"), PostgresData]
