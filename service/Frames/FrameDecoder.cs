@@ -100,6 +100,19 @@ public sealed class FrameDecoder
         stream.Position = start;
         if (format.Name == "JPEG" && memory.TryGetBuffer(out var all))
             EnsureJpegComplete(all.AsSpan((int)start), source);
+        if (format.Name == "PNG" && memory.TryGetBuffer(out var pngBytes))
+        {
+            Image<Rgb24>? fast;
+            try
+            {
+                fast = PngFastDecoder.TryDecode(pngBytes.AsSpan((int)start), _configuration, _options.AllocationLimitMegabytes * 1024L * 1024);
+            }
+            catch (Exception e) when (IsDecodeFailure(e))
+            {
+                throw Map(e, source);
+            }
+            if (fast is not null) return new DecodedFrame(fast, format.Name);
+        }
         Image<Rgb24> image;
         try
         {

@@ -8,12 +8,12 @@ namespace Strayspot.Bench;
 /// </summary>
 public static class IssueTables
 {
-    public static void Run(int runs, int? framesAtOnce, bool memoryPattern, int? networkRuns)
+    public static void Run(int runs, int? framesAtOnce, bool memoryPattern, int? networkRuns, int? intraOp = null)
     {
         var clock = Stopwatch.StartNew();
         string loadBefore = LoadAverage();
         var chain = PostHocChainBench.Run(runs);
-        var load = LoadBench.Run(runs, framesAtOnce, memoryPattern, networkRuns);
+        var load = LoadBench.Run(runs, framesAtOnce, memoryPattern, networkRuns, intraOp);
 
         Console.WriteLine();
         Console.WriteLine("| goal | target | this run | met |");

@@ -22,7 +22,8 @@ public static class LoadBench
     /// <param name="framesAtOnce">Service:MaxConcurrentFrames for the service part; null keeps the service's default.</param>
     /// <param name="memoryPattern">Service:OnnxMemoryPattern for the service part.</param>
     /// <param name="networkRuns">Service:NetworkRunsAtOnce for the service part; null keeps the service's default.</param>
-    public static Result Run(int runs, int? framesAtOnce = null, bool memoryPattern = false, int? networkRuns = null)
+    /// <param name="intraOp">Service:IntraOpThreads for the service part; null keeps the CPU budget's.</param>
+    public static Result Run(int runs, int? framesAtOnce = null, bool memoryPattern = false, int? networkRuns = null, int? intraOp = null)
     {
         string root = Directory.CreateTempSubdirectory("strayspot-bench-load-").FullName;
         try
@@ -73,7 +74,7 @@ public static class LoadBench
             }
 
             long pooled = PooledBytesPerFrame(folder, frames[0], memoryPattern);
-            return Service(models, frames, runs, best, bestName, framesAtOnce, memoryPattern, networkRuns, sessionBytes, pooled);
+            return Service(models, frames, runs, best, bestName, framesAtOnce, memoryPattern, networkRuns, intraOp, sessionBytes, pooled);
         }
         finally
         {
@@ -140,8 +141,9 @@ public static class LoadBench
     }
 
     private static Result Service(string models, byte[][] frames, int runs, double networkFps, string networkSetting, int? framesAtOnce,
-        bool memoryPattern, int? networkRuns, long sessionBytes, long pooledBytes)
+        bool memoryPattern, int? networkRuns, int? intraOp, long sessionBytes, long pooledBytes)
     {
+        int threads = intraOp ?? CpuBudget.Current.IntraOpThreads;
         int runsAtOnce = networkRuns ?? new ServiceOptions().NetworkRunsAtOnce;
         int slots = framesAtOnce ?? new ServiceOptions().MaxConcurrentFrames;
         int port = ServiceBench.FreePort();
@@ -157,6 +159,7 @@ public static class LoadBench
                 ["Service:MaxConcurrentFrames"] = slots.ToString(),
                 ["Service:OnnxMemoryPattern"] = memoryPattern ? "true" : "false",
                 ["Service:NetworkRunsAtOnce"] = runsAtOnce.ToString(),
+                ["Service:IntraOpThreads"] = threads.ToString(),
             },
         });
         app.StartAsync().GetAwaiter().GetResult();
@@ -172,7 +175,7 @@ public static class LoadBench
             long idleManaged = GC.GetTotalMemory(false);
 
             Console.WriteLine();
-            Console.WriteLine($"Service: Service:MaxConcurrentFrames = {slots}{(framesAtOnce is null ? " (the default: the CPU budget's frames in flight)" : "")}, intra-op threads {CpuBudget.Current.IntraOpThreads}, ONNX Runtime memory pattern {(memoryPattern ? "on" : "off")}, network runs at once {(runsAtOnce == 0 ? "not limited" : runsAtOnce)}.");
+            Console.WriteLine($"Service: Service:MaxConcurrentFrames = {slots}{(framesAtOnce is null ? " (the default: the CPU budget's frames in flight)" : "")}, intra-op threads {threads}{(intraOp is null ? " (the CPU budget's)" : "")}, ONNX Runtime memory pattern {(memoryPattern ? "on" : "off")}, network runs at once {(runsAtOnce == 0 ? "not limited" : runsAtOnce)}.");
             Console.WriteLine();
             Console.WriteLine("| HTTP service, 1024×512 PNG, no artifacts | p50 | p99 | p99 / p50 | throughput | service / network alone |");
             Console.WriteLine("|---|---|---|---|---|---|");
