@@ -10,8 +10,10 @@ namespace Strayspot.Service.Hosting;
 /// </summary>
 /// <param name="Cpus">CPUs' worth of time: min(quota/period over the process's cgroup and its parents, cores).</param>
 /// <param name="Threads">Whole threads the budget pays for: ⌊Cpus⌋, at least 1 (half a CPU more only throttles).</param>
-/// <param name="FramesInFlight">Frames worth scoring at once: 1 below 4 threads (one frame's network already uses
-/// every thread), 2 from 4 up (one frame's decoding and post-hoc stages overlap the other's network).</param>
+/// <param name="FramesInFlight">Frames worth scoring at once: 2 from 2 threads up (one frame's decoding, post-hoc
+/// stages and HTTP overlap the other's network, and a network on fewer threads wastes less of them waiting), 1 on a
+/// single thread. On 2 cores, 2 frames × 1 intra-op thread beat 1 frame × 2 threads at 2, 4 and 16 clients (README,
+/// Benchmarks: <c>frame-settings</c>).</param>
 /// <param name="IntraOpThreads">Threads for one inference: Threads / FramesInFlight, at least 1.</param>
 /// <param name="Source">Where <paramref name="Cpus"/> came from, for the start-up log.</param>
 public sealed record CpuBudget(double Cpus, int Threads, int FramesInFlight, int IntraOpThreads, string Source)
@@ -25,7 +27,7 @@ public sealed record CpuBudget(double Cpus, int Threads, int FramesInFlight, int
     public static CpuBudget Split(double cpus, string source)
     {
         int threads = Math.Max(1, (int)Math.Floor(cpus + 1e-9));
-        int frames = threads >= 4 ? 2 : 1;
+        int frames = threads >= 2 ? 2 : 1;
         return new CpuBudget(cpus, threads, frames, Math.Max(1, threads / frames), source);
     }
 

@@ -24,8 +24,8 @@ public sealed class ServiceOptions
     public long MaxPixels { get; set; } = 4096L * 4096;
     /// <summary>
     /// Frames scored at the same time; the rest wait in a bounded queue. Unset, the container's CPU quota decides
-    /// (<see cref="CpuBudget.FramesInFlight"/>): a second frame at once on fewer than 4 CPUs only splits the cores
-    /// between two networks and grows ONNX Runtime's arena by another frame's worth of buffers.
+    /// (<see cref="CpuBudget.FramesInFlight"/>): two from 2 CPUs up, each network on half the threads, so one
+    /// frame's decoding and post-hoc stages run while the other's network does.
     /// </summary>
     public int MaxConcurrentFrames { get; set; } = CpuBudget.Current.FramesInFlight;
     /// <summary>Frames allowed to wait for a slot; beyond this a request gets 429 at once.</summary>

@@ -56,8 +56,8 @@ public sealed class CpuBudgetTests : IDisposable
         Write("fs/cpu.max", "max 100000\n");
         var b = Detect("0::/\n", cores: 2);
         Assert.Equal(2, b.Cpus);
-        Assert.Equal(2, b.IntraOpThreads);
-        Assert.Equal(1, b.FramesInFlight);
+        Assert.Equal(1, b.IntraOpThreads);
+        Assert.Equal(2, b.FramesInFlight);
         Assert.Contains("no CPU quota", b.Source);
     }
 
@@ -78,8 +78,8 @@ public sealed class CpuBudgetTests : IDisposable
         var b = Detect("12:memory:/docker/abc\n4:cpu,cpuacct:/docker/abc\n1:name=systemd:/docker/abc\n", cores: 8);
         Assert.Equal(3, b.Cpus, 9);
         Assert.Equal(3, b.Threads);
-        Assert.Equal(1, b.FramesInFlight);
-        Assert.Equal(3, b.IntraOpThreads);
+        Assert.Equal(2, b.FramesInFlight);
+        Assert.Equal(1, b.IntraOpThreads);
         Assert.Contains("cgroup v1", b.Source);
     }
 
