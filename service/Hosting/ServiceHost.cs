@@ -99,10 +99,6 @@ public static class ServiceHost
         {
             f.MultipartBodyLengthLimit = s.Value.MaxRequestBytes;
             f.ValueCountLimit = 64;
-            // Above the threshold a file part is spilled to a temporary file and read back: a 1024×512 PNG (about
-            // 200 KB) went to disk on every request at the 64 KB default. File parts up to 4 MB now stay in memory
-            // (pooled buffers) while their request lasts; larger ones still spill.
-            f.MemoryBufferThreshold = 4 * 1024 * 1024;
         });
 
         ConfigureLogging(builder, settings);
