@@ -21,7 +21,7 @@ public static class CadenceBench
         {
             var (folder, _) = BundledDemo.Extract(Path.Combine(root, "models", "demo"), Path.Combine(root, "frames"));
             byte[] png = DemoPng.Encode(new ApronSceneGenerator(1024, 512).Render(70));
-            using var local = LocalModel.Open(folder, ParallelSettings.FromThreads(CpuBudget.Current.IntraOpThreads));
+            using var local = LocalModel.Open(folder, ParallelSettings.FromThreads(Environment.ProcessorCount));
             var decoder = new FrameDecoder();
             using var frame = decoder.Decode(png);
             var worker = new FramePreprocessor(local.Version.Descriptor.Input);
@@ -44,7 +44,7 @@ public static class CadenceBench
                 afterFrameWork.Add(Timed());
             }
             Console.WriteLine();
-            Console.WriteLine($"| one inference, demo model 1024×512, service settings ({CpuBudget.Current.IntraOpThreads} intra-op threads, no spinning, memory pattern off) | median ms |");
+            Console.WriteLine($"| one inference, demo model 1024×512, the service's session settings ({Environment.ProcessorCount} intra-op threads, no spinning, memory pattern off) | median ms |");
             Console.WriteLine("|---|---|");
             Console.WriteLine($"| back to back (the network-alone table's way) | {Measure.Median(backToBack):0.0} |");
             Console.WriteLine($"| after a 15 ms pause (threads asleep) | {Measure.Median(afterPause):0.0} |");
