@@ -16,7 +16,7 @@ namespace Strayspot.Scoring.Boundaries;
 /// </summary>
 /// <remarks>
 /// Boundaries depend only on the class map, so each frame gets one Chebyshev distance map to the nearest
-/// edge pixel (a pixel with an 8-neighbour of another class); boundary at width r ⇔ distance ≤ r−1.
+/// edge pixel, computed once before the rounds and in parallel row bands (a pixel with an 8-neighbour of another class); boundary at width r ⇔ distance ≤ r−1.
 /// Each round is then a masked, separable 3×3 box sum. Scratch is owned by the instance and reused;
 /// one instance is not for concurrent use.
 /// </remarks>
@@ -26,6 +26,7 @@ public sealed class BoundarySuppression
     /// <summary>Distances are exact up to this value and clamped to it: no round asks about a larger one.</summary>
     private readonly int _cap;
     private byte[] _distance = [];
+    private byte[] _rowDistance = [];
     private byte[] _rowMin = [];
     private float[][] _bandRows = [];
 
@@ -53,7 +54,7 @@ public sealed class BoundarySuppression
         if (!_options.Enabled) return;
 
         int n = width * height;
-        if (_distance.Length < n) _distance = new byte[n];
+        if (_distance.Length < n) { _distance = new byte[n]; _rowDistance = new byte[n]; }
         if (_rowMin.Length < height) _rowMin = new byte[height];
         int bands = FrameBands.BandCount(width, height);
         if (_bandRows.Length < bands || (_bandRows.Length > 0 && _bandRows[0].Length < RowScratch(width)))
@@ -66,8 +67,9 @@ public sealed class BoundarySuppression
         fixed (ushort* classPtr = classIndex)
         fixed (byte* distPtr = _distance)
         fixed (byte* rowMinPtr = _rowMin)
+        fixed (byte* rowDistPtr = _rowDistance)
         {
-            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands, rowMinPtr)) return;
+            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands, rowMinPtr, rowDistPtr)) return;
 
             // In place is still a synchronous update: a boundary pixel reads only non-boundary pixels, and
             // those do not change during the round. Bands may therefore write their rows while others read them.
@@ -91,6 +93,8 @@ public sealed class BoundarySuppression
     /// </summary>
     private static int RowScratch(int width) => 10 * width;
 
+    // Called a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static unsafe void Round(float* values, byte* dist, byte* rowMin, int w, int h, int threshold,
         int y0, int y1, float* rows)
     {
