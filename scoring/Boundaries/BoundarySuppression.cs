@@ -16,7 +16,7 @@ namespace Strayspot.Scoring.Boundaries;
 /// </summary>
 /// <remarks>
 /// Boundaries depend only on the class map, so each frame gets one Chebyshev distance map to the nearest
-/// edge pixel (a pixel with an 8-neighbour of another class); boundary at width r ⇔ distance ≤ r−1.
+/// edge pixel, computed once before the rounds and in parallel row bands (a pixel with an 8-neighbour of another class); boundary at width r ⇔ distance ≤ r−1.
 /// Each round is then a masked, separable 3×3 box sum. Scratch is owned by the instance and reused;
 /// one instance is not for concurrent use.
 /// </remarks>
@@ -26,6 +26,7 @@ public sealed class BoundarySuppression
     /// <summary>Distances are exact up to this value and clamped to it: no round asks about a larger one.</summary>
     private readonly int _cap;
     private byte[] _distance = [];
+    private byte[] _rowDistance = [];
     private byte[] _rowMin = [];
     private float[][] _bandRows = [];
 
@@ -53,143 +54,201 @@ public sealed class BoundarySuppression
         if (!_options.Enabled) return;
 
         int n = width * height;
-        if (_distance.Length < n) _distance = new byte[n];
+        if (_distance.Length < n) { _distance = new byte[n]; _rowDistance = new byte[n]; }
         if (_rowMin.Length < height) _rowMin = new byte[height];
+        // Widths never grow from round to round; a round that repeats the previous width recomputes the same means
+        // from the same unchanged pixels, so only the distinct thresholds matter.
+        Span<int> thresholds = stackalloc int[_options.Iterations];
+        int rounds = 0;
+        for (int i = 0; i < _options.Iterations; i++)
+        {
+            int t = _options.WidthAt(i) - 1;
+            if (rounds == 0 || t < thresholds[rounds - 1]) thresholds[rounds++] = t;
+        }
         int bands = FrameBands.BandCount(width, height);
-        if (_bandRows.Length < bands || (_bandRows.Length > 0 && _bandRows[0].Length < RowScratch(width)))
+        // Bands must be taller than the seams between them (rounds−1 rows on each side).
+        if (bands > 1 && height / bands < 2 * rounds) bands = Math.Max(1, height / (2 * rounds));
+        int scratch = RowScratch(width, rounds);
+        if (_bandRows.Length < bands || (_bandRows.Length > 0 && _bandRows[0].Length < scratch))
         {
             _bandRows = new float[bands][];
-            for (int b = 0; b < bands; b++) _bandRows[b] = new float[RowScratch(width)];
+            for (int b = 0; b < bands; b++) _bandRows[b] = new float[scratch];
         }
 
         fixed (float* scorePtr = score)
         fixed (ushort* classPtr = classIndex)
         fixed (byte* distPtr = _distance)
         fixed (byte* rowMinPtr = _rowMin)
+        fixed (byte* rowDistPtr = _rowDistance)
         {
-            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands, rowMinPtr)) return;
+            if (!DistanceToEdges.Compute(classPtr, distPtr, width, height, _cap, bands, rowMinPtr, rowDistPtr)) return;
 
-            // In place is still a synchronous update: a boundary pixel reads only non-boundary pixels, and
-            // those do not change during the round. Bands may therefore write their rows while others read them.
+            // Round i changes only pixels at distance exactly t_i and reads only pixels farther than t_i, which
+            // earlier rounds have finished: so row y may run round i as soon as rows y−1..y+1 have run rounds
+            // before i. One sweep down the rows runs all rounds (round i trails round 0 by i rows) while the rows
+            // are in cache. Inside a band, a row k rows from the band's edge runs rounds 0..k (round 0 reads only
+            // pixels that never change, also across the edge); the seams then finish the rest, each seam alone.
             nint values = (nint)scorePtr, dist = (nint)distPtr, rowMin = (nint)rowMinPtr;
             float[][] rows = _bandRows;
-            for (int i = 0; i < _options.Iterations; i++)
+            int[] thr = thresholds[..rounds].ToArray();
+            FrameBands.For(bands, height, (b, y0, y1) =>
             {
-                int threshold = _options.WidthAt(i) - 1;
-                FrameBands.For(bands, height, (b, y0, y1) =>
+                fixed (float* r = rows[b])
                 {
-                    fixed (float* r = rows[b])
-                        Round((float*)values, (byte*)dist, (byte*)rowMin, width, height, threshold, y0, y1, r);
+                    int* slots = stackalloc int[3 * thr.Length];
+                    var sweep = new Sweep((float*)values, (byte*)dist, (byte*)rowMin, width, height, thr, r, slots);
+                    int top = y0 == 0 ? int.MinValue / 2 : y0, bottom = y1 == height ? int.MaxValue / 2 : y1 - 1;
+                    for (int step = y0; step < y1 + thr.Length - 1; step++)
+                        for (int i = 0; i < thr.Length; i++)
+                        {
+                            int y = step - i;
+                            if (y < y0 || y >= y1 || i > Math.Min(y - top, bottom - y)) continue;
+                            sweep.Row(i, y);
+                        }
+                }
+            });
+            if (bands > 1 && thr.Length > 1)
+                FrameBands.For(bands - 1, bands - 1, (s, _, _) =>
+                {
+                    var (edge, _) = FrameBands.Band(s + 1, bands, height);
+                    var (above, _) = FrameBands.Band(s, bands, height);
+                    var (_, below) = FrameBands.Band(s + 1, bands, height);
+                    fixed (float* r = rows[s])
+                    {
+                        int* slots = stackalloc int[3 * thr.Length];
+                    var sweep = new Sweep((float*)values, (byte*)dist, (byte*)rowMin, width, height, thr, r, slots);
+                        for (int i = 1; i < thr.Length; i++)
+                            for (int y = edge - i; y < edge + i; y++)
+                            {
+                                // Rows k from their own band's edge ran rounds 0..k in the bands.
+                                int k = y < edge ? Math.Min(edge - 1 - y, y - (above == 0 ? int.MinValue / 2 : above))
+                                                 : Math.Min(y - edge, (below == height ? int.MaxValue / 2 : below - 1) - y);
+                                if (i > k) sweep.Row(i, y);
+                            }
+                    }
                 });
-            }
         }
     }
 
     /// <summary>
-    /// Per band: masked values, mask, 3 ring rows of horizontal sums of each, one row of zeros, and room for
-    /// the row's list of boundary chunks (w/8 + 1 ints fit in w floats).
+    /// Per band: masked values, mask, one row of zeros, room for the row's list of boundary chunks (w/8 + 1 ints
+    /// fit in w floats), then per round 3 ring rows of horizontal sums of each of values and mask.
     /// </summary>
-    private static int RowScratch(int width) => 10 * width;
+    private static int RowScratch(int width, int rounds) => (4 + 6 * rounds) * width;
 
-    private static unsafe void Round(float* values, byte* dist, byte* rowMin, int w, int h, int threshold,
-        int y0, int y1, float* rows)
+    /// <summary>One band's scratch and the frame, for running any round on any row.</summary>
+    private unsafe struct Sweep
     {
-        float* masked = rows, count = rows + w, zero = rows + 8 * w;
-        new Span<float>(zero, w).Clear();
+        private readonly float* _values, _rows;
+        private readonly byte* _dist, _rowMin;
+        private readonly int _w, _h;
+        private readonly int[] _thresholds;
+        /// <summary>Which frame row each round's ring slot holds (−1: none); 3 per round, on the caller's stack.</summary>
+        private readonly int* _slotRow;
+
+        public Sweep(float* values, byte* dist, byte* rowMin, int w, int h, int[] thresholds, float* rows, int* slotRow)
+        {
+            _values = values; _dist = dist; _rowMin = rowMin; _w = w; _h = h; _thresholds = thresholds; _rows = rows;
+            _slotRow = slotRow;
+            new Span<int>(slotRow, 3 * thresholds.Length).Fill(-1);
+            new Span<float>(rows + 2 * w, w).Clear();
+        }
+
+        public void Row(int round, int y) =>
+            RoundRow(_values, _dist, _rowMin, _w, _h, _thresholds[round], y, _rows, _rows + (4 + 6 * round) * _w, _slotRow + 3 * round);
+    }
+
+    // Called for every row of every frame: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static unsafe void RoundRow(float* values, byte* dist, byte* rowMin, int w, int h, int threshold, int y,
+        float* rows, float* ringRows, int* slotRow)
+    {
+        if (rowMin[y] > threshold) return; // no boundary pixel in this row: nothing changes
+        float* masked = rows, count = rows + w, zero = rows + 2 * w;
         Vector256<int> thr = Vector256.Create(threshold);
         Vector256<byte> ring = Vector256.Create((byte)threshold);
-        // Which frame row each ring slot holds (rows are prepared only around rows that have boundary pixels).
-        int* slotRow = stackalloc int[3] { -1, -1, -1 };
 
-        float* SumRow(int y) => y < 0 || y >= h ? zero : rows + (2 + y % 3) * w;
-        float* CountRow(int y) => y < 0 || y >= h ? zero : rows + (5 + y % 3) * w;
+        float* SumRow(int yy) => yy < 0 || yy >= h ? zero : ringRows + (yy % 3) * w;
+        float* CountRow(int yy) => yy < 0 || yy >= h ? zero : ringRows + (3 + yy % 3) * w;
 
-        void Prepare(int y)
+        int chunks = w / 8;
+        int* boundaryChunks = (int*)(rows + 3 * w);
+        float* v = values + (long)y * w;
+        byte* d = dist + (long)y * w;
+
+        // Only pixels at distance exactly t can change: the distance map is 1-Lipschitz, so a pixel nearer
+        // than t has no neighbour beyond t to take a mean of. Find the 8-pixel chunks holding such a pixel.
+        // Few: visit just those, each straight from its 3×3 neighbourhood. Many: whole-row separable sums are
+        // cheaper per pixel.
+        int found = 0, xc = 0;
+        for (; xc + 32 <= chunks * 8; xc += 32)
         {
-            if (y < 0 || y >= h || slotRow[y % 3] == y) return;
-            slotRow[y % 3] = y;
-            float* v = values + (long)y * w;
-            byte* d = dist + (long)y * w;
-            float* hs = rows + (2 + y % 3) * w, hc = rows + (5 + y % 3) * w;
+            uint bits = Vector256.Equals(Vector256.Load(d + xc), ring).ExtractMostSignificantBits();
+            if (bits == 0) continue;
+            for (int k = 0; k < 4; k++)
+                if ((bits >> (8 * k) & 0xFF) != 0) boundaryChunks[found++] = xc + 8 * k;
+        }
+        for (; xc < chunks * 8; xc += 8)
+            if (Vector64.Equals(Vector64.Load(d + xc), ring.GetLower().GetLower()) != Vector64<byte>.Zero) boundaryChunks[found++] = xc;
+        if (found == 0)
+        {
+            for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
+            return;
+        }
+        if (found * 5 < chunks * 2)
+        {
+            float* up = y > 0 ? v - w : zero, dn = y < h - 1 ? v + w : zero;
+            byte* dUp = y > 0 ? d - w : (byte*)zero, dDn = y < h - 1 ? d + w : (byte*)zero;
+            for (int c = 0; c < found; c++)
+            {
+                int x = boundaryChunks[c];
+                if (x >= 1 && x <= w - 9) SparseChunk(v, d, up, dUp, dn, dDn, x, thr);
+                else for (int xx = x; xx < x + 8; xx++) ScalarPixel(values, dist, w, h, xx, y, threshold);
+            }
+            for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
+            return;
+        }
+
+        // The masked sums of a row hold only pixels beyond t, which no longer change once the row is prepared.
+        for (int yy = y - 1; yy <= y + 1; yy++)
+        {
+            if (yy < 0 || yy >= h || slotRow[yy % 3] == yy) continue;
+            slotRow[yy % 3] = yy;
+            float* pv = values + (long)yy * w;
+            byte* pd = dist + (long)yy * w;
             Vector256<float> one = Vector256<float>.One;
             int x = 0;
             for (; x <= w - 8; x += 8)
             {
-                var keep = NonBoundaryMask(d + x, thr);
-                Vector256.Store(Vector256.Load(v + x) & keep, masked + x);
+                var keep = NonBoundaryMask(pd + x, thr);
+                Vector256.Store(Vector256.Load(pv + x) & keep, masked + x);
                 Vector256.Store(one & keep, count + x);
             }
             for (; x < w; x++)
             {
-                bool nb = d[x] > threshold;
-                masked[x] = nb ? v[x] : 0f;
+                bool nb = pd[x] > threshold;
+                masked[x] = nb ? pv[x] : 0f;
                 count[x] = nb ? 1f : 0f;
             }
-            HorizontalSum3(masked, hs, w);
-            HorizontalSum3(count, hc, w);
+            HorizontalSum3(masked, SumRow(yy), w);
+            HorizontalSum3(count, CountRow(yy), w);
         }
-
-        int chunks = w / 8;
-        int* boundaryChunks = (int*)(rows + 9 * w);
-        for (int y = y0; y < y1; y++)
+        float* sa = SumRow(y - 1), sb = SumRow(y), sc = SumRow(y + 1);
+        float* ca = CountRow(y - 1), cb = CountRow(y), cc = CountRow(y + 1);
+        int xv = 0;
+        for (; xv <= w - 8; xv += 8)
         {
-            if (rowMin[y] > threshold) continue; // no boundary pixel in this row: nothing changes
-            float* v = values + (long)y * w;
-            byte* d = dist + (long)y * w;
-
-            // Only pixels at distance exactly t can change: the distance map is 1-Lipschitz, so a pixel nearer
-            // than t has no neighbour beyond t to take a mean of. Find the 8-pixel chunks holding such a pixel.
-            // Few: visit just those, each straight from its 3×3 neighbourhood. Many: whole-row separable sums are
-            // cheaper per pixel.
-            int found = 0, xc = 0;
-            for (; xc + 32 <= chunks * 8; xc += 32)
-            {
-                uint bits = Vector256.Equals(Vector256.Load(d + xc), ring).ExtractMostSignificantBits();
-                if (bits == 0) continue;
-                for (int k = 0; k < 4; k++)
-                    if ((bits >> (8 * k) & 0xFF) != 0) boundaryChunks[found++] = xc + 8 * k;
-            }
-            for (; xc < chunks * 8; xc += 8)
-                if (Vector64.Equals(Vector64.Load(d + xc), ring.GetLower().GetLower()) != Vector64<byte>.Zero) boundaryChunks[found++] = xc;
-            if (found == 0)
-            {
-                for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
-                continue;
-            }
-            if (found * 5 < chunks * 2)
-            {
-                float* up = y > 0 ? v - w : zero, dn = y < h - 1 ? v + w : zero;
-                byte* dUp = y > 0 ? d - w : (byte*)zero, dDn = y < h - 1 ? d + w : (byte*)zero;
-                for (int c = 0; c < found; c++)
-                {
-                    int x = boundaryChunks[c];
-                    if (x >= 1 && x <= w - 9) SparseChunk(v, d, up, dUp, dn, dDn, x, thr);
-                    else for (int xx = x; xx < x + 8; xx++) ScalarPixel(values, dist, w, h, xx, y, threshold);
-                }
-                for (int x = chunks * 8; x < w; x++) ScalarPixel(values, dist, w, h, x, y, threshold);
-                continue;
-            }
-
-            Prepare(y - 1);
-            Prepare(y);
-            Prepare(y + 1);
-            float* sa = SumRow(y - 1), sb = SumRow(y), sc = SumRow(y + 1);
-            float* ca = CountRow(y - 1), cb = CountRow(y), cc = CountRow(y + 1);
-            int xv = 0;
-            for (; xv <= w - 8; xv += 8)
-            {
-                var boundary = ~NonBoundaryMask(d + xv, thr);
-                if (boundary == Vector256<float>.Zero) continue;
-                var sum = Vector256.Load(sa + xv) + Vector256.Load(sb + xv) + Vector256.Load(sc + xv);
-                var cnt = Vector256.Load(ca + xv) + Vector256.Load(cb + xv) + Vector256.Load(cc + xv);
-                var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & boundary;
-                Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + xv)), v + xv);
-            }
-            for (; xv < w; xv++)
-            {
-                float cnt = ca[xv] + cb[xv] + cc[xv];
-                if (d[xv] <= threshold && cnt > 0) v[xv] = (sa[xv] + sb[xv] + sc[xv]) / cnt;
-            }
+            var boundary = ~NonBoundaryMask(d + xv, thr);
+            if (boundary == Vector256<float>.Zero) continue;
+            var sum = Vector256.Load(sa + xv) + Vector256.Load(sb + xv) + Vector256.Load(sc + xv);
+            var cnt = Vector256.Load(ca + xv) + Vector256.Load(cb + xv) + Vector256.Load(cc + xv);
+            var change = Vector256.GreaterThan(cnt, Vector256<float>.Zero) & boundary;
+            Vector256.Store(Vector256.ConditionalSelect(change, sum / cnt, Vector256.Load(v + xv)), v + xv);
+        }
+        for (; xv < w; xv++)
+        {
+            float cnt = ca[xv] + cb[xv] + cc[xv];
+            if (d[xv] <= threshold && cnt > 0) v[xv] = (sa[xv] + sb[xv] + sc[xv]) / cnt;
         }
     }
 

@@ -1,4 +1,5 @@
 using System.Numerics.Tensors;
+using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 
 namespace Strayspot.Scoring.Boundaries;
@@ -17,35 +18,81 @@ internal static class DistanceToEdges
     /// Fills <paramref name="dist"/> (w·h bytes) with min(distance, <paramref name="cap"/>); cap must be 1..64.
     /// Returns false, leaving the map at <paramref name="cap"/> everywhere, when the frame has no edge at all.
     /// When <paramref name="rowMin"/> is given it receives each row's smallest distance (lets rounds skip rows).
+    /// <paramref name="rowDistance"/> is w·h bytes of scratch (allocated here when null).
     /// </summary>
-    public static unsafe bool Compute(ushort* cls, byte* dist, int w, int h, int cap, int bands, byte* rowMin = null)
+    // Called once per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    public static unsafe bool Compute(ushort* cls, byte* dist, int w, int h, int cap, int bands, byte* rowMin = null, byte* rowDistance = null)
     {
-        int anyEdge = 0;
-        nint c = (nint)cls, d = (nint)dist;
-        FrameBands.For(bands, h, (_, y0, y1) =>
+        byte[]? owned = null;
+        if (rowDistance == null)
         {
-            bool found = false;
-            for (int y = y0; y < y1; y++) found |= MarkEdges((ushort*)c, (byte*)d, w, h, y, (byte)cap);
-            if (found) Volatile.Write(ref anyEdge, 1);
-        });
-        if (anyEdge == 0) return false;
+            owned = GC.AllocateUninitializedArray<byte>(w * h, pinned: true);
+            rowDistance = (byte*)Unsafe.AsPointer(ref owned[0]);
+        }
+        try
+        {
+            // The Chebyshev distance splits by rows: min over |dy| < cap of max(|dy|, distance to the nearest edge
+            // pixel within row y+dy). Both steps read only rows near their own, so bands run in parallel and no
+            // pass walks the whole frame in order.
+            int anyEdge = 0;
+            nint c = (nint)cls, d = (nint)dist, hd = (nint)rowDistance, rm = (nint)rowMin;
+            FrameBands.For(bands, h, (_, y0, y1) =>
+            {
+                bool found = false;
+                for (int y = y0; y < y1; y++)
+                {
+                    bool edge = MarkEdges((ushort*)c, (byte*)hd, w, h, y, (byte)cap);
+                    if (!edge) continue;
+                    found = true;
+                    byte* row = (byte*)hd + (long)y * w;
+                    ScanFromLeft(row, w, cap);
+                    ScanFromRight(row, w, cap);
+                }
+                if (found) Volatile.Write(ref anyEdge, 1);
+            });
+            if (anyEdge == 0)
+            {
+                new Span<byte>(dist, w * h).Fill((byte)cap);
+                if (rowMin != null) new Span<byte>(rowMin, h).Fill((byte)cap);
+                return false;
+            }
+            FrameBands.For(bands, h, (_, y0, y1) =>
+            {
+                for (int y = y0; y < y1; y++)
+                {
+                    byte* row = (byte*)d + (long)y * w;
+                    CombineRows((byte*)hd, row, w, h, y, cap);
+                    if (rm != 0) ((byte*)rm)[y] = TensorPrimitives.Min(new ReadOnlySpan<byte>(row, w));
+                }
+            });
+            return true;
+        }
+        finally
+        {
+            GC.KeepAlive(owned);
+        }
+    }
 
-        // Exact two-pass chessboard chamfer: the row-above (row-below) part is vector work; the within-row
-        // dependency is a min-plus prefix scan done by doubling, exact up to the cap.
-        for (int y = 0; y < h; y++)
+    /// <summary>row = min over |k| &lt; cap (rows inside the frame) of max(k, rowDistance[y+k]).</summary>
+    private static unsafe void CombineRows(byte* rowDistance, byte* row, int w, int h, int y, int cap)
+    {
+        new ReadOnlySpan<byte>(rowDistance + (long)y * w, w).CopyTo(new Span<byte>(row, w));
+        for (int k = 1; k < cap; k++)
         {
-            byte* row = dist + (long)y * w;
-            if (y > 0) MinWithNeighbourRow(row, row - w, w);
-            ScanFromLeft(row, w, cap);
+            var kv = Vector256.Create((byte)k);
+            for (int side = -1; side <= 1; side += 2)
+            {
+                int yy = y + side * k;
+                if (yy < 0 || yy >= h) continue;
+                byte* other = rowDistance + (long)yy * w;
+                int x = 0;
+                for (; x <= w - 32; x += 32)
+                    Vector256.Store(Vector256.Min(Vector256.Load(row + x), Vector256.Max(Vector256.Load(other + x), kv)), row + x);
+                for (; x < w; x++)
+                    row[x] = (byte)Math.Min(row[x], Math.Max(other[x], k));
+            }
         }
-        for (int y = h - 1; y >= 0; y--)
-        {
-            byte* row = dist + (long)y * w;
-            if (y < h - 1) MinWithNeighbourRow(row, row + w, w);
-            ScanFromRight(row, w, cap);
-            if (rowMin != null) rowMin[y] = TensorPrimitives.Min(new ReadOnlySpan<byte>(row, w));
-        }
-        return true;
     }
 
     /// <summary>Row y of the initial map: 0 at edge pixels, cap elsewhere. Returns whether the row has an edge.</summary>
@@ -98,23 +145,6 @@ internal static class DistanceToEdges
         int l = Math.Max(x - 1, 0), r = Math.Min(x + 1, w - 1);
         ushort m = c[x];
         return m != c[l] || m != c[r] || m != up[l] || m != up[x] || m != up[r] || m != dn[l] || m != dn[x] || m != dn[r];
-    }
-
-    /// <summary>row[x] = min(row[x], 1 + min of the three pixels of the other row around x).</summary>
-    private static unsafe void MinWithNeighbourRow(byte* row, byte* other, int w)
-    {
-        if (w == 1) { row[0] = (byte)Math.Min(row[0], other[0] + 1); return; }
-        row[0] = (byte)Math.Min(row[0], Math.Min(other[0], other[1]) + 1);
-        int x = 1;
-        var one = Vector256<byte>.One;
-        for (; x <= w - 33; x += 32)
-        {
-            var m = Vector256.Min(Vector256.Min(Vector256.Load(other + x - 1), Vector256.Load(other + x)), Vector256.Load(other + x + 1));
-            Vector256.Store(Vector256.Min(Vector256.Load(row + x), m + one), row + x);
-        }
-        for (; x < w - 1; x++)
-            row[x] = (byte)Math.Min(row[x], Math.Min(Math.Min(other[x - 1], other[x]), other[x + 1]) + 1);
-        row[w - 1] = (byte)Math.Min(row[w - 1], Math.Min(other[w - 2], other[w - 1]) + 1);
     }
 
     /// <summary>

@@ -1,3 +1,4 @@
+using System.Runtime.CompilerServices;
 using System.Numerics;
 using System.Runtime.Intrinsics;
 using Strayspot.Scoring.Logits;
@@ -32,6 +33,8 @@ public static class AnomalyMask
         }
     }
 
+    // Called once or a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static unsafe int Run(float* s, byte* m, int n, float threshold)
     {
         int count = 0, i = 0;

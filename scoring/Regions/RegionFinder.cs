@@ -1,3 +1,4 @@
+using System.Runtime.CompilerServices;
 using System.Numerics.Tensors;
 using Strayspot.Scoring.Boundaries;
 using Strayspot.Scoring.Logits;
@@ -91,6 +92,8 @@ public sealed class RegionFinder
         }
     }
 
+    // Called once or a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private void FindRuns(ReadOnlySpan<byte> mask, int width, int height)
     {
         _runCount = 0;

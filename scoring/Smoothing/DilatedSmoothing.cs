@@ -1,3 +1,4 @@
+using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 using Strayspot.Scoring.Boundaries;
 using Strayspot.Scoring.Logits;
@@ -78,6 +79,8 @@ public sealed class DilatedSmoothing
         }
     }
 
+    // Called once or a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static unsafe void HorizontalRow(float* input, float* output, int w, float* k, int taps, int half, int dil)
     {
         int reach = half * dil;
@@ -107,6 +110,8 @@ public sealed class DilatedSmoothing
         return acc;
     }
 
+    // Called once or a few times per frame with long loops: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static unsafe void VerticalRow(float* input, float* output, int w, int h, int y, float* k, int taps, int half, int dil)
     {
         // At most 63 taps: the row pointers live on the stack.

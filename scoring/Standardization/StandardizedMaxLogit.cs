@@ -1,3 +1,4 @@
+using System.Runtime.CompilerServices;
 using System.Numerics.Tensors;
 using System.Runtime.Intrinsics;
 using System.Runtime.Intrinsics.X86;
@@ -113,21 +114,39 @@ public sealed class StandardizedMaxLogit
 
     private unsafe int ApplyAvx2(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml)
     {
-        int n = maxLogit.Length, i = 0;
+        int n = maxLogit.Length, blocks = n / 8;
         fixed (float* x = maxLogit, mean = _mean, inv = _invStd, o = sml)
         fixed (ushort* cls = classIndex)
         {
-            var lo = Vector256.Create(float.MinValue);
-            var hi = Vector256.Create(float.MaxValue);
-            for (; i + 8 <= n; i += 8)
+            // Frame-sized maps: a few spans of 8-pixel blocks per core (pixels are independent, results unchanged).
+            int spans = n >= ParallelPixels ? Environment.ProcessorCount * 4 : 1;
+            if (spans == 1) ApplyBlocks(x, cls, mean, inv, o, 0, blocks);
+            else
             {
-                var idx = Avx2.ConvertToVector256Int32(Vector128.Load(cls + i));
-                var m = Avx2.GatherVector256(mean, idx, 4);
-                var s = Avx2.GatherVector256(inv, idx, 4);
-                Vector256.MinNative(Vector256.MaxNative((Vector256.Load(x + i) - m) * s, lo), hi).Store(o + i);
+                nint xp = (nint)x, cp = (nint)cls, mp = (nint)mean, ip = (nint)inv, op = (nint)o;
+                Parallel.For(0, spans, s => ApplyBlocks((float*)xp, (ushort*)cp, (float*)mp, (float*)ip, (float*)op,
+                    (int)((long)blocks * s / spans), (int)((long)blocks * (s + 1) / spans)));
             }
         }
-        return i;
+        return blocks * 8;
+    }
+
+    /// <summary>Below this many pixels one thread does it: scheduling would cost more.</summary>
+    private const int ParallelPixels = 256 * 1024;
+
+    // Called once per frame with a long loop: compile fully optimized at once rather than after 30 frames.
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static unsafe void ApplyBlocks(float* x, ushort* cls, float* mean, float* inv, float* o, int b0, int b1)
+    {
+        var lo = Vector256.Create(float.MinValue);
+        var hi = Vector256.Create(float.MaxValue);
+        for (int i = b0 * 8; i < b1 * 8; i += 8)
+        {
+            var idx = Avx2.ConvertToVector256Int32(Vector128.Load(cls + i));
+            var m = Avx2.GatherVector256(mean, idx, 4);
+            var s = Avx2.GatherVector256(inv, idx, 4);
+            Vector256.MinNative(Vector256.MaxNative((Vector256.Load(x + i) - m) * s, lo), hi).Store(o + i);
+        }
     }
 
     private void CheckSpans(int values, ReadOnlySpan<ushort> classIndex, int output)

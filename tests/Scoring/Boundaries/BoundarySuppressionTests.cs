@@ -10,6 +10,7 @@ public class BoundarySuppressionTests
     {
         { 1, 1 }, { 1, 17 }, { 23, 1 }, { 2, 2 }, { 3, 50 }, { 64, 3 }, { 33, 35 }, { 70, 41 }, { 97, 130 },
         { 300, 257 }, // above the parallel threshold: several bands
+        { 2000, 40 }, // above it and short: bands only just taller than the seams between them
     };
 
     [Theory]
