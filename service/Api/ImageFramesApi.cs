@@ -66,13 +66,8 @@ public static class ImageFramesApi
         if (file is null && !errors.ContainsKey(FramePart))
             errors[FramePart] = [$"The form has no file part '{FramePart}' (PNG, JPEG or WebP)."];
         if (req is null || file is null) return ApiProblems.Validation(errors);
-        if (req.Options.Method == ScoreMethod.Sml && entry.Statistics is null)
-            return ApiProblems.Create(ErrorCodes.StatisticsMissing,
-                $"Model '{model}' has no class statistics (calibration.json or statistics.json), which the sml method needs; " +
-                "calibrate the model or choose another method.");
-        if (entry.Descriptor!.Output.Kind == "probabilities" && !ScoreMethodInputs.WorksOnProbabilities(req.Options.Method))
-            return ApiProblems.Create(ModelErrorCodes.MethodNeedsLogits,
-                $"Model '{model}' outputs probabilities (output.kind), so only the msp and entropy methods are defined for it.");
+        // The same readiness rule as score and batches; its ModelException becomes problem+json (422).
+        ModelReadiness.EnsureCanScore(entry.Descriptor!, entry.Statistics, req.Options, entry.Folder);
 
         // One pooled copy of the upload (the form keeps its own): returned once the frame is decoded or refused.
         int length = (int)Math.Min(file.Length, int.MaxValue);

@@ -140,10 +140,8 @@ public static class LogitsApi
             return ApiProblems.Create(ErrorCodes.ModelClassMismatch,
                 $"The logits have {logits.Channels} classes but model '{model}' has {descriptor.Classes.Count}.",
                 new Dictionary<string, object?> { ["logitsClasses"] = logits.Channels, ["modelClasses"] = descriptor.Classes.Count });
-        if (req.Options.Method == ScoreMethod.Sml && entry.Statistics is null)
-            return ApiProblems.Create(ErrorCodes.StatisticsMissing,
-                $"Model '{model}' has no class statistics (calibration.json or statistics.json), which the sml method needs; " +
-                "calibrate the model or choose another method.");
+        // The same readiness rule as score and batches; its ModelException becomes problem+json (422).
+        ModelReadiness.EnsureCanScore(descriptor, entry.Statistics, req.Options, entry.Folder);
         entry.Statistics?.EnsureClassCount(logits.Channels);
 
         int frameWidth = req.FrameWidth ?? logits.Width, frameHeight = req.FrameHeight ?? logits.Height;

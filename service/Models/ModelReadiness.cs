@@ -19,7 +19,8 @@ public static class ModelReadiness
         if (options.Method == ScoreMethod.Sml && statistics is null)
             throw new ModelException(ModelErrorCodes.StatisticsMissing,
                 $"Model '{Path.GetFileName(Path.TrimEndingDirectorySeparator(modelFolder))}' is not calibrated (no calibration.json), and the sml method needs its class statistics. " +
-                $"Calibrate it on ordinary frames: strayspot calibrate {modelFolder} <frames-folder>. " +
+                $"Calibrate it on ordinary frames: strayspot calibrate {modelFolder} <frames-folder> " +
+                $"(over HTTP: POST /v1/models/{Path.GetFileName(Path.TrimEndingDirectorySeparator(modelFolder))}/calibrations). " +
                 "Or choose a method without statistics together with a threshold on that method's scale " +
                 "(e.g. --method msp --threshold -0.5 flags pixels whose top class has less than 50% probability).");
     }

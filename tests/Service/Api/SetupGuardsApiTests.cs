@@ -172,6 +172,25 @@ public class SetupGuardsApiTests(SetupGuardsService fixture) : IClassFixture<Set
         Assert.DoesNotContain(fixture.Service.Root, failed.GetProperty("error").GetString());
     }
 
+    [Theory]
+    [InlineData("raw", ModelErrorCodes.StatisticsMissing, "POST /v1/models/raw/calibrations")]
+    [InlineData("soft", ModelErrorCodes.MethodNeedsLogits, "msp")]
+    public async Task Frames_and_logits_on_a_model_that_cannot_score_get_the_batches_refusal_without_server_paths(string model, string code, string named)
+    {
+        // One readiness rule for every path: the logits endpoint used to let a probabilities model run maxlogit.
+        foreach (var response in new[]
+        {
+            await Client.PostAsync($"/v1/models/{model}/frames", Form("frame", Png(24, 16))),
+            await Client.PostAsync($"/v1/models/{model}/logits", Form("logits", Npy(3, 16, 24))),
+        })
+        {
+            var problem = await TestService.ProblemAsync(response, 422, code);
+            string detail = problem.GetProperty("detail").GetString()!;
+            Assert.Contains(named, detail);
+            Assert.DoesNotContain(fixture.Service.Root, detail);
+        }
+    }
+
     [Fact]
     public async Task Frames_and_logits_for_a_model_with_a_stale_calibration_get_its_code_not_a_503()
     {
