@@ -154,8 +154,8 @@ public static class BatchRecordings
             tracks, segments);
     }
 
-    /// <summary>tracks.json read without the sightings (a long recording's bulk), which a manifest line leaves out anyway.</summary>
-    private static readonly JsonSerializerOptions ReportInBrief = new(FrameReport.JsonOptions)
+    /// <summary>tracks.json read without the sightings (a long recording's bulk), which a manifest line and the review timeline leave out.</summary>
+    internal static readonly JsonSerializerOptions ReportInBrief = new(FrameReport.JsonOptions)
     {
         TypeInfoResolver = new System.Text.Json.Serialization.Metadata.DefaultJsonTypeInfoResolver
         {

@@ -135,7 +135,7 @@ public sealed partial class BatchReview
         try
         {
             using var stream = File.OpenRead(Path.Combine(folder, RecordingRun.TracksFile));
-            return JsonSerializer.Deserialize<RecordingReport>(stream, FrameReport.JsonOptions)
+            return JsonSerializer.Deserialize<RecordingReport>(stream, BatchRecordings.ReportInBrief)
                    ?? throw new JsonException("empty");
         }
         catch (Exception e) when (e is IOException or JsonException or UnauthorizedAccessException)
