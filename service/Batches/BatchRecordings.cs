@@ -106,7 +106,8 @@ public static class BatchRecordings
         if (keep)
             yield return new ManifestLine(recording.Seq, recording.FrameId, recording.SourcePath, recording.FrameScore, tracks, artifacts,
                 batch.Model, batch.ModelSha256, batch.ProfileVersion, Decision: whole is null ? null : DecisionMark.From(whole),
-                Kind: ManifestKinds.Recording, Recording: recording.FrameId, Timeline: report is null ? null : Timeline(report, recording.FrameId, folder));
+                Kind: ManifestKinds.Recording, Recording: recording.FrameId, Timeline: report is null ? null : Timeline(report, recording.FrameId, folder),
+                Warnings: Manifest.Any(report?.Warnings));
 
         string framesPath = Path.Combine(batchFolder, folder, RecordingRun.FramesFile);
         if (!File.Exists(framesPath)) yield break;

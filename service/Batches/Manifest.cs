@@ -37,6 +37,8 @@ public sealed record ManifestRegion(
 /// <see cref="Kind"/> says what the line is: a <c>frame</c> (an image), a <c>recording</c> (a video, its regions its
 /// kept tracks, <see cref="Timeline"/> its tracks' spans and ranked segments) or a <c>recording-frame</c> (one sampled
 /// frame of the <see cref="Recording"/> whose line shares its <see cref="Seq"/>, at <see cref="TimeSeconds"/>).
+/// <see cref="Warnings"/> repeats the report's warnings where there are any: a frame's from its report.json, a
+/// recording's once on its own line from tracks.json (one recording, one frame size); absent when there are none.
 /// </summary>
 public sealed record ManifestLine(
     [property: JsonPropertyName("seq")] int Seq,
@@ -55,7 +57,8 @@ public sealed record ManifestLine(
     [property: JsonPropertyName("index")] long? Index = null,
     [property: JsonPropertyName("timeSeconds")] double? TimeSeconds = null,
     [property: JsonPropertyName("segment")] int? Segment = null,
-    [property: JsonPropertyName("timeline")] RecordingTimeline? Timeline = null);
+    [property: JsonPropertyName("timeline")] RecordingTimeline? Timeline = null,
+    [property: JsonPropertyName("warnings")] IReadOnlyList<ReportWarning>? Warnings = null);
 
 /// <summary>What a manifest line stands for.</summary>
 public static class ManifestKinds
@@ -184,13 +187,39 @@ public static class Manifest
             foreach (string name in batch.Artifacts) artifacts[name] = folder + "/" + ArtifactWriter.FileOf(name);
             artifacts[ArtifactWriter.Report] = folder + "/" + ArtifactWriter.ReportFile;
             yield return new ManifestLine(f.Seq, f.FrameId, f.SourcePath, f.FrameScore, regions, artifacts, batch.Model, batch.ModelSha256,
-                batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision));
+                batch.ProfileVersion, Decision: frameDecision is null ? null : DecisionMark.From(frameDecision),
+                Warnings: WarningsOf(Path.Combine(batchFolder, f.ReportPath!)));
         }
         if (onlyVerdict is not null) yield break;
         foreach (var f in failed)
             yield return new ManifestLine(f.Seq, f.FrameId, f.SourcePath, null, [], null, batch.Model, batch.ModelSha256, batch.ProfileVersion, f.Error,
                 Kind: Recordings.VideoRecording.IsVideoFile(f.SourcePath) ? ManifestKinds.Recording : ManifestKinds.Frame);
     }
+
+    /// <summary>
+    /// The <c>warnings</c> of a frame's report.json, read without building the rest of the report; null when it has
+    /// none or cannot be read (the line then says no more than the store knows).
+    /// </summary>
+    internal static IReadOnlyList<ReportWarning>? WarningsOf(string reportPath)
+    {
+        try
+        {
+            var reader = new Utf8JsonReader(File.ReadAllBytes(reportPath));
+            if (!reader.Read() || reader.TokenType != JsonTokenType.StartObject) return null;
+            while (reader.Read() && reader.TokenType == JsonTokenType.PropertyName)
+            {
+                bool wanted = reader.ValueTextEquals("warnings"u8);
+                reader.Read();
+                if (!wanted) { reader.Skip(); continue; }
+                return Any(JsonSerializer.Deserialize<List<ReportWarning>>(ref reader, LineJson));
+            }
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException or JsonException) { }
+        return null;
+    }
+
+    /// <summary>A warnings list as a line carries it: null when empty, so a line without doubts has no field.</summary>
+    internal static IReadOnlyList<ReportWarning>? Any(IReadOnlyList<ReportWarning>? warnings) => warnings is { Count: > 0 } ? warnings : null;
 
     /// <summary>Writes the lines as JSON lines; returns how many.</summary>
     public static int WriteTo(Stream stream, IEnumerable<ManifestLine> lines)

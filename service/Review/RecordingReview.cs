@@ -1,3 +1,4 @@
+using System.Buffers;
 using System.Text.Json;
 using System.Text.Json.Serialization;
 using Strayspot.Service.Batches;
@@ -147,20 +148,14 @@ public sealed partial class BatchReview
     /// <summary>
     /// Times and frame scores of the sampled frames, read line by line so a long recording is never held whole; past
     /// <see cref="MaxTimelinePoints"/> they are merged into equal runs of frames, each kept as its highest score (a
-    /// short peak must stay visible on the strip).
+    /// short peak must stay visible on the strip). A line that cannot be read is left out, as the manifest leaves it.
     /// </summary>
     public static (List<double> Times, List<float?> Scores, bool Merged) Timeline(string framesPath)
     {
         var times = new List<double>();
         var scores = new List<float?>();
         if (!File.Exists(framesPath)) return (times, scores, false);
-        foreach (string line in File.ReadLines(framesPath))
-        {
-            if (line.Length == 0) continue;
-            var (t, s) = TimeAndScore(line);
-            times.Add(t);
-            scores.Add(s);
-        }
+        TimelineLines.Read(framesPath, times, scores);
         if (times.Count <= MaxTimelinePoints) return (times, scores, false);
         int run = (times.Count + MaxTimelinePoints - 1) / MaxTimelinePoints;
         var mt = new List<double>(MaxTimelinePoints);
@@ -175,13 +170,93 @@ public sealed partial class BatchReview
         }
         return (mt, ms, true);
     }
+}
 
-    private static (double Time, float? Score) TimeAndScore(string line)
+/// <summary>
+/// Reads <c>frames.jsonl</c> for the strip: only each line's <c>timeSeconds</c> and <c>frameScore</c>. The bytes are
+/// tokenized in place and everything else (regions, outlines) is stepped over without being built, so a line costs
+/// one pass of the tokenizer instead of a text decode plus a parsed document.
+/// </summary>
+internal static class TimelineLines
+{
+    public static void Read(string path, List<double> times, List<float?> scores)
     {
-        using var doc = JsonDocument.Parse(line);
-        var root = doc.RootElement;
-        double t = root.GetProperty("timeSeconds").GetDouble();
-        float? s = root.TryGetProperty("frameScore", out var f) && f.ValueKind == JsonValueKind.Number ? f.GetSingle() : null;
-        return (t, s is float v && float.IsFinite(v) ? v : null);
+        byte[] buffer = ArrayPool<byte>.Shared.Rent(1 << 16);
+        try
+        {
+            using var file = new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.ReadWrite, 1, FileOptions.SequentialScan);
+            int filled = 0;
+            bool first = true;
+            while (true)
+            {
+                int read = file.Read(buffer, filled, buffer.Length - filled);
+                filled += read;
+                int start = 0;
+                if (first && filled >= 3 && buffer.AsSpan(0, 3).SequenceEqual("\uFEFF"u8)) start = 3;
+                if (first && (filled >= 3 || read == 0)) first = false;
+                while (true)
+                {
+                    int end = buffer.AsSpan(start, filled - start).IndexOfAny((byte)'\n', (byte)'\r');
+                    if (end < 0) break;
+                    Line(buffer.AsSpan(start, end), times, scores);
+                    start += end + 1;
+                }
+                if (read == 0)
+                {
+                    Line(buffer.AsSpan(start, filled - start), times, scores);
+                    return;
+                }
+                // Keep the unfinished line at the front; a line longer than the buffer grows it.
+                filled -= start;
+                Buffer.BlockCopy(buffer, start, buffer, 0, filled);
+                if (filled == buffer.Length)
+                {
+                    byte[] bigger = ArrayPool<byte>.Shared.Rent(buffer.Length * 2);
+                    Buffer.BlockCopy(buffer, 0, bigger, 0, filled);
+                    ArrayPool<byte>.Shared.Return(buffer);
+                    buffer = bigger;
+                }
+            }
+        }
+        finally
+        {
+            ArrayPool<byte>.Shared.Return(buffer);
+        }
+    }
+
+    private static void Line(ReadOnlySpan<byte> line, List<double> times, List<float?> scores)
+    {
+        if (line.IsEmpty) return;
+        try
+        {
+            if (TimeAndScore(line) is var (t, s))
+            {
+                times.Add(t);
+                scores.Add(s);
+            }
+        }
+        catch (Exception e) when (e is JsonException or InvalidOperationException or FormatException) { }
+    }
+
+    /// <summary>
+    /// The line's time and finite frame score (null when absent, not a number or not finite); null when the line has no
+    /// time. As a parsed document would read it: the whole line must be one JSON object, and a repeated name's last value counts.
+    /// </summary>
+    internal static (double Time, float? Score)? TimeAndScore(ReadOnlySpan<byte> line)
+    {
+        var reader = new Utf8JsonReader(line, isFinalBlock: true, state: default);
+        if (!reader.Read() || reader.TokenType != JsonTokenType.StartObject) return null;
+        double? time = null;
+        float? score = null;
+        while (reader.Read() && reader.TokenType == JsonTokenType.PropertyName)
+        {
+            bool isTime = reader.ValueTextEquals("timeSeconds"u8), isScore = !isTime && reader.ValueTextEquals("frameScore"u8);
+            reader.Read();
+            if (isTime) time = reader.GetDouble();
+            else if (isScore) score = reader.TokenType == JsonTokenType.Number ? reader.GetSingle() : null;
+            else reader.Skip();
+        }
+        if (reader.Read()) return null; // more after the object: not one line's object
+        return time is double tv ? (tv, score is float v && float.IsFinite(v) ? v : null) : null;
     }
 }
