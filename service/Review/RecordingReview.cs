@@ -240,7 +240,9 @@ internal static class TimelineLines
 
     /// <summary>
     /// The line's time and finite frame score (null when absent, not a number or not finite); null when the line has no
-    /// time. As a parsed document would read it: the whole line must be one JSON object, and a repeated name's last value counts.
+    /// time. As a parsed document reads it (a repeated name's last value counts), but once both are read the rest of
+    /// the line, a frame's regions and outlines, is only searched for the two names (plain or escaped): when neither
+    /// can be there it is not tokenized at all. So a line torn after its score still gives its point.
     /// </summary>
     internal static (double Time, float? Score)? TimeAndScore(ReadOnlySpan<byte> line)
     {
@@ -248,15 +250,19 @@ internal static class TimelineLines
         if (!reader.Read() || reader.TokenType != JsonTokenType.StartObject) return null;
         double? time = null;
         float? score = null;
+        bool scoreRead = false;
         while (reader.Read() && reader.TokenType == JsonTokenType.PropertyName)
         {
             bool isTime = reader.ValueTextEquals("timeSeconds"u8), isScore = !isTime && reader.ValueTextEquals("frameScore"u8);
             reader.Read();
             if (isTime) time = reader.GetDouble();
-            else if (isScore) score = reader.TokenType == JsonTokenType.Number ? reader.GetSingle() : null;
+            else if (isScore) (score, scoreRead) = (reader.TokenType == JsonTokenType.Number ? reader.GetSingle() : null, true);
             else reader.Skip();
+            if (time is not null && scoreRead && NeitherNameIn(line[(int)reader.BytesConsumed..])) break;
         }
-        if (reader.Read()) return null; // more after the object: not one line's object
         return time is double tv ? (tv, score is float v && float.IsFinite(v) ? v : null) : null;
     }
+
+    private static bool NeitherNameIn(ReadOnlySpan<byte> rest) =>
+        rest.IndexOf("\"timeSeconds\""u8) < 0 && rest.IndexOf("\"frameScore\""u8) < 0 && rest.IndexOf("\\u"u8) < 0;
 }

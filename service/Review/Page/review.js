@@ -233,6 +233,24 @@ function renderSummary(o) {
   }
 }
 
+// A box that scrolls sideways says so: data-more on its wrapper names the side(s) with more to see (the shaded
+// edges), and it takes keyboard focus only while there is something to scroll.
+function watchOverflow(box) {
+  const update = () => {
+    const max = box.scrollWidth - box.clientWidth;
+    const more = [];
+    if (box.scrollLeft > 1) more.push('left');
+    if (box.scrollLeft < max - 1) more.push('right');
+    box.parentElement.dataset.more = more.join(' ');
+    if (max > 1) box.tabIndex = 0; else box.removeAttribute('tabindex');
+  };
+  box.addEventListener('scroll', update, { passive: true });
+  const watch = new ResizeObserver(update);
+  watch.observe(box);
+  watch.observe(box.firstElementChild);
+  update();
+}
+
 function renderFrameList() {
   const list = $('frame-list');
   list.replaceChildren();
@@ -1201,6 +1219,7 @@ function wire() {
     const t = currentTarget();
     if (t && t.decision && !state.dropped && ($('note').value.trim() || null) !== (t.decision.note || null)) decide(t.decision.verdict);
   });
+  watchOverflow($('class-scroll'));
   document.addEventListener('keydown', onKey);
   window.addEventListener('resize', () => { if (state.recording) { renderTimeline(); placeTrackMark(); } });
 

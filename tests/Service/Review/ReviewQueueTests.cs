@@ -208,7 +208,60 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.Sh
         // No dead space: the region list reaches the bottom of the centre column, and the frame takes a fair share of the height.
         Assert.True(m[4] - m[3] < 16, $"{m[4] - m[3]:F0} px left empty under the region list");
         Assert.True(m[5] > 0.4 * height, $"the frame is only {m[5]:F0} px tall in a {height} px window");
+        await AssertRightColumnFitsAsync(page, $"{width}×{height}");
         await session.ScreenshotAsync($"{width}x{height}", fullPage: false);
+    }
+
+    /// <summary>Nothing in the decisions column runs past its right edge: the tally table fits its box, which shows no cue.</summary>
+    private static async Task AssertRightColumnFitsAsync(IPage page, string what)
+    {
+        await Expect(page.Locator("#class-table tbody tr").First).ToBeVisibleAsync();
+        var f = await page.EvaluateAsync<double[]>("""
+            () => {
+              const right = document.querySelector('.right'), box = document.getElementById('class-scroll');
+              const table = document.getElementById('class-table').getBoundingClientRect();
+              return [right.scrollWidth, right.clientWidth, box.scrollWidth, box.clientWidth, table.right, right.getBoundingClientRect().right];
+            }
+            """);
+        Assert.True(f[0] <= f[1], $"{what}: the decisions column is {f[0]} px wide inside {f[1]} px");
+        Assert.True(f[2] <= f[3], $"{what}: the false-alarm table is {f[2]} px wide in a {f[3]} px box");
+        Assert.True(f[4] <= f[5], $"{what}: the false-alarm table ends at {f[4]:F0} px, past the column's edge at {f[5]:F0} px");
+        await Expect(page.Locator(".right .scroll-cue")).ToHaveAttributeAsync("data-more", "");
+        await Expect(page.Locator("#class-scroll")).Not.ToHaveAttributeAsync("tabindex", "0");
+    }
+
+    [BrowserFact]
+    public async Task The_false_alarm_table_fits_its_column_and_scrolls_inside_it_with_a_cue_when_a_class_name_is_too_long()
+    {
+        var s = await shared.GetAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await page.SetViewportSizeAsync(1024, 700);
+        await OpenPageAsync(page, s);
+        await AssertRightColumnFitsAsync(page, "1024×700");
+
+        // A model's own class name can be longer than the column: the table scrolls inside its box, not the column.
+        await page.EvaluateAsync("""
+            () => { document.querySelector('#class-table tbody td').textContent = 'container-dolly-with-a-very-long-class-name-from-a-users-model'; }
+            """);
+        var cue = page.Locator(".right .scroll-cue");
+        await Expect(cue).ToHaveAttributeAsync("data-more", "right");
+        var box = page.Locator("#class-scroll");
+        await Expect(box).ToHaveAttributeAsync("tabindex", "0");
+        var f = await page.EvaluateAsync<double[]>("() => { const r = document.querySelector('.right'); return [r.scrollWidth, r.clientWidth]; }");
+        Assert.True(f[0] <= f[1], "the column itself must not scroll sideways");
+        await session.ScreenshotAsync("long class name, more to the right", fullPage: false);
+        // The keyboard reaches it and scrolls it: focus, then the arrow key, with nothing else taking the key.
+        string frameBefore = await page.Locator("#frame-title").InnerTextAsync();
+        await box.FocusAsync();
+        await page.Keyboard.PressAsync("End");
+        await page.Keyboard.PressAsync("ArrowRight");
+        await Expect(cue).ToHaveAttributeAsync("data-more", new Regex(@"\bleft\b"));
+        await box.EvaluateAsync("b => { b.scrollLeft = b.scrollWidth; }");
+        await Expect(cue).ToHaveAttributeAsync("data-more", "left");
+        Assert.Equal(frameBefore, await page.Locator("#frame-title").InnerTextAsync());
+        await session.ScreenshotAsync("long class name, scrolled to the end", fullPage: false);
+        session.AssertNoConsoleErrors();
     }
 
     [Fact]

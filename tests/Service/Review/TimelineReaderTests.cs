@@ -116,13 +116,13 @@ public sealed class TimelineReaderTests : IDisposable
     }
 
     [Fact]
-    public void A_line_that_cannot_be_read_is_left_out_and_the_rest_still_read()
+    public void A_line_without_a_readable_time_or_score_is_left_out_and_a_tail_torn_after_both_keeps_its_point()
     {
         string path = Path.Combine(_dir, "torn.jsonl");
-        File.WriteAllText(path, "{\"timeSeconds\":0.1,\"frameScore\":1}\n{\"frameId\":\"x\"}\n{\"timeSeconds\":\"soon\"}\n{\"timeSeconds\":0.2,\"frameScore\":2} trailing\n" +
-                                "{\"timeSeconds\":0.3,\"frameScore\":3}\n{\"timeSeconds\":0.4,\"frameScore\":4,\"regions\":[{\"id\"");
+        File.WriteAllText(path, "{\"timeSeconds\":0.1,\"frameScore\":1}\n{\"frameId\":\"x\"}\n{\"timeSeconds\":\"soon\"}\nnot json\n" +
+                                "{\"timeSeconds\":0.2,\"frameSc\n{\"timeSeconds\":0.3,\"frameScore\":3}\n{\"timeSeconds\":0.4,\"frameScore\":4,\"regions\":[{\"id\"");
         var light = BatchReview.Timeline(path);
-        Assert.Equal([0.1, 0.3], light.Times);
-        Assert.Equal([1f, 3f], light.Scores);
+        Assert.Equal([0.1, 0.3, 0.4], light.Times);
+        Assert.Equal([1f, 3f, 4f], light.Scores);
     }
 }
