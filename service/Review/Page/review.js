@@ -3,6 +3,7 @@
 
 const KEY_STORE = 'strayspot.apiKey';
 const VERDICTS = ['label-it', 'false-alarm', 'unsure'];
+const SCROLL_KEYS = new Set(['ArrowUp', 'ArrowDown', 'ArrowLeft', 'ArrowRight', 'PageUp', 'PageDown', 'Home', 'End']);
 const VERDICT_TEXT = { 'label-it': 'Label it', 'false-alarm': 'False alarm', 'unsure': 'Unsure' };
 const LIST_PAGE = 300; // frames drawn in the list at a time; a batch can hold many thousands
 
@@ -1139,6 +1140,9 @@ function onKey(e) {
   if (t && (t.tagName === 'TEXTAREA' || t.tagName === 'SELECT' || (t.tagName === 'INPUT' && t.type !== 'checkbox' && t.type !== 'range'))) return;
   if (e.ctrlKey || e.metaKey || e.altKey) return;
   const k = e.key;
+  // A list or table the reader reached with the keyboard scrolls with the arrow and paging keys, as any scrolling
+  // box does; after a click on a row the keys keep their meaning on the page.
+  if (t && t.dataset && t.dataset.scrollKeys === 'yes' && SCROLL_KEYS.has(k)) return;
   let handled = true;
   if (state.recording && (k === 'n' || k === 'ArrowRight')) stepTrack(1);
   else if (state.recording && (k === 'b' || k === 'ArrowLeft')) stepTrack(-1);
@@ -1220,6 +1224,17 @@ function wire() {
     if (t && t.decision && !state.dropped && ($('note').value.trim() || null) !== (t.decision.note || null)) decide(t.decision.verdict);
   });
   watchOverflow($('class-scroll'));
+  let pointerDown = false;
+  document.addEventListener('pointerdown', (e) => {
+    pointerDown = true;
+    const box = e.target.closest && e.target.closest('[role="region"]');
+    if (box) box.dataset.scrollKeys = 'no';
+  }, true);
+  document.addEventListener('keydown', () => { pointerDown = false; }, true);
+  document.addEventListener('focusin', (e) => {
+    if (e.target.getAttribute && e.target.getAttribute('role') === 'region') e.target.dataset.scrollKeys = pointerDown ? 'no' : 'yes';
+    pointerDown = false;
+  });
   document.addEventListener('keydown', onKey);
   window.addEventListener('resize', () => { if (state.recording) { renderTimeline(); placeTrackMark(); } });
 

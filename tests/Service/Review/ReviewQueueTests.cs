@@ -231,6 +231,37 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.Sh
     }
 
     [BrowserFact]
+    public async Task A_list_reached_with_the_keyboard_scrolls_with_the_arrows_and_after_a_click_the_arrows_step_frames()
+    {
+        var s = await shared.GetAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await page.SetViewportSizeAsync(1280, 720);
+        await OpenPageAsync(page, s);
+        var list = page.Locator(".region-box");
+        await Expect(page.Locator("#region-table tbody tr").First).ToBeVisibleAsync();
+        Assert.True(await list.EvaluateAsync<bool>("b => b.scrollHeight > b.clientHeight + 20"), "the top frame's region list should scroll at 1280×720");
+        string title = await page.Locator("#frame-title").InnerTextAsync();
+
+        // Tab into the region list: the arrows scroll it and the open frame stays.
+        await page.Locator("#zoom-reset").FocusAsync();
+        await page.Keyboard.PressAsync("Shift+Tab");
+        await page.Keyboard.PressAsync("Tab");
+        for (int i = 0; i < 12 && !await list.EvaluateAsync<bool>("b => b === document.activeElement"); i++) await page.Keyboard.PressAsync("Tab");
+        await Expect(list).ToBeFocusedAsync();
+        await page.Keyboard.PressAsync("ArrowDown");
+        await page.Keyboard.PressAsync("PageDown");
+        await Expect(page.Locator("#frame-title")).ToHaveTextAsync(title);
+        Assert.True(await list.EvaluateAsync<double>("b => b.scrollTop") > 0, "the arrow keys did not scroll the focused region list");
+
+        // A click on a row focuses the list too, but the arrows keep their page meaning: the next frame.
+        await page.Locator("#region-table tbody tr").Nth(1).ClickAsync();
+        await page.Keyboard.PressAsync("ArrowDown");
+        await Expect(page.Locator("#frame-title")).ToContainTextAsync("2 of 4:");
+        session.AssertNoConsoleErrors();
+    }
+
+    [BrowserFact]
     public async Task The_false_alarm_table_fits_its_column_and_scrolls_inside_it_with_a_cue_when_a_class_name_is_too_long()
     {
         var s = await shared.GetAsync();
