@@ -1027,6 +1027,14 @@ async function decide(verdict, advance) {
   }
 }
 
+// Verdicts wait for the one before: with "go to the next undecided" on, a key pressed while the last verdict is
+// still being saved belongs to the region or track the page moves on to, not to the one being saved.
+let verdictChain = Promise.resolve();
+function queueVerdict(verdict) {
+  verdictChain = verdictChain.then(() => decide(verdict, true));
+  return verdictChain;
+}
+
 async function withdraw() {
   if (!state.frame || state.dropped) return;
   const target = targetKey();
@@ -1157,7 +1165,7 @@ function onKey(e) {
   else if (k === 'o') { $('outline-toggle').checked = !$('outline-toggle').checked; applyLayers(); }
   else if (k === 'u') nextUndecided();
   else if (k === 'U') nextFrameToReview();
-  else if (k === '1' || k === '2' || k === '3') decide(VERDICTS[Number(k) - 1], true);
+  else if (k === '1' || k === '2' || k === '3') queueVerdict(VERDICTS[Number(k) - 1]);
   else handled = false;
   if (handled) e.preventDefault();
 }
@@ -1208,7 +1216,7 @@ function wire() {
   $('outline-toggle').addEventListener('change', applyLayers);
   $('zoom-reset').addEventListener('click', () => zoomTo(null));
   $('stage').addEventListener('click', () => zoomTo(null));
-  for (const b of document.querySelectorAll('.verdicts button[data-verdict]')) b.addEventListener('click', () => decide(b.dataset.verdict, true));
+  for (const b of document.querySelectorAll('.verdicts button[data-verdict]')) b.addEventListener('click', () => queueVerdict(b.dataset.verdict));
   $('next-undecided').addEventListener('click', () => nextUndecided());
   $('next-frame-todo').addEventListener('click', () => nextFrameToReview());
   $('withdraw').addEventListener('click', withdraw);

@@ -91,6 +91,32 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
     }
 
     [BrowserFact]
+    public async Task Verdict_keys_pressed_faster_than_they_are_saved_land_on_successive_regions()
+    {
+        await using var s = await StartAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await OpenPageAsync(page, s);
+        int seq = (await OverviewAsync(s.Http)).GetProperty("frames")[0].GetProperty("seq").GetInt32();
+        var order = await RegionOrderAsync(s.Http, seq);
+        Assert.True(order.Count >= 4, "the top demo frame should have several regions");
+        await page.Keyboard.PressAsync("u");
+        await Expect(page.Locator("#target-title")).ToHaveTextAsync($"Region {order[0]}");
+        // Three verdicts typed at once: each belongs to the region the page moves on to after the one before.
+        await page.Keyboard.PressAsync("1");
+        await page.Keyboard.PressAsync("2");
+        await page.Keyboard.PressAsync("3");
+        await Expect(page.Locator("#target-title")).ToHaveTextAsync($"Region {order[3]}");
+        await Expect(page.Locator("#frame-progress")).ToContainTextAsync($"3 of {order.Count} regions decided");
+        var regions = JsonDocument.Parse(await s.Http.GetStringAsync($"/v1/batches/{Batch}/frames/{seq}")).RootElement.GetProperty("regions")
+            .EnumerateArray().ToDictionary(r => r.GetProperty("id").GetInt32(),
+                r => r.TryGetProperty("decision", out var d) && d.ValueKind == JsonValueKind.Object ? d.GetProperty("verdict").GetString() : null);
+        Assert.Equal(["label-it", "false-alarm", "unsure", null], order.Take(4).Select(id => regions[id]));
+        session.AssertNoConsoleErrors();
+        session.AssertNoFailedRequests();
+    }
+
+    [BrowserFact]
     public async Task Keyboard_steps_through_ranked_frames_and_regions_and_the_heat_map_toggles_and_fades()
     {
         await using var s = await StartAsync();

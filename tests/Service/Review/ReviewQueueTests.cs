@@ -262,6 +262,22 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.Sh
     }
 
     [BrowserFact]
+    public async Task The_file_picker_for_a_dropped_frame_is_reached_and_opened_with_the_keyboard()
+    {
+        var s = await shared.GetAsync();
+        await using var session = await browser.OpenAsync(output);
+        var page = session.Page;
+        await OpenPageAsync(page, s);
+        await page.Locator("#reload-batches").FocusAsync();
+        await page.Keyboard.PressAsync("Tab");
+        await Expect(page.Locator("#drop-file")).ToBeFocusedAsync();
+        Assert.Equal("solid", await page.Locator(".file-pick").EvaluateAsync<string>("l => getComputedStyle(l).outlineStyle"));
+        var chooser = await page.RunAndWaitForFileChooserAsync(() => page.Keyboard.PressAsync("Space"));
+        Assert.False(chooser.IsMultiple);
+        session.AssertNoConsoleErrors();
+    }
+
+    [BrowserFact]
     public async Task The_false_alarm_table_fits_its_column_and_scrolls_inside_it_with_a_cue_when_a_class_name_is_too_long()
     {
         var s = await shared.GetAsync();
