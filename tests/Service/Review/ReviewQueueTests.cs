@@ -278,14 +278,22 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.Sh
     }
 
     [BrowserFact]
-    public async Task The_false_alarm_table_fits_its_column_and_scrolls_inside_it_with_a_cue_when_a_class_name_is_too_long()
+    public async Task In_a_small_window_the_frame_stays_above_the_legend_and_the_false_alarm_table_scrolls_inside_its_column_with_a_cue()
     {
         var s = await shared.GetAsync();
         await using var session = await browser.OpenAsync(output);
         var page = session.Page;
-        await page.SetViewportSizeAsync(1024, 700);
+        await page.SetViewportSizeAsync(1024, 640);
         await OpenPageAsync(page, s);
-        await AssertRightColumnFitsAsync(page, "1024×700");
+        await AssertRightColumnFitsAsync(page, "1024×640");
+        // In a short window the frame scales down inside its box: nothing of it runs under the legend.
+        var v = await page.EvaluateAsync<double[]>("""
+            () => [document.getElementById('stage').getBoundingClientRect().bottom, document.querySelector('.stage-box').getBoundingClientRect().bottom,
+                   document.querySelector('.legend-row').getBoundingClientRect().top, document.getElementById('stage').getBoundingClientRect().height]
+            """);
+        Assert.True(v[0] <= v[1] + 0.5 && v[1] <= v[2] + 0.5, $"the frame ends at {v[0]:F0} px, its box at {v[1]:F0} px, the legend starts at {v[2]:F0} px");
+        Assert.True(v[3] > 120, $"the frame is only {v[3]:F0} px tall");
+        await session.ScreenshotAsync("1024x640", fullPage: false);
 
         // A model's own class name can be longer than the column: the table scrolls inside its box, not the column.
         await page.EvaluateAsync("""
