@@ -37,6 +37,68 @@ public static class ReviewBench
             }
         }
         Timelines(runs);
+        ManifestWarnings(runs);
+    }
+
+    /// <summary>
+    /// What repeating each frame's warnings costs the manifest: report.json is read for its warnings field on every
+    /// frame line. A done batch of 12-region frames (one report in ten warns), the whole manifest against the reads alone.
+    /// </summary>
+    private static void ManifestWarnings(int runs)
+    {
+        Console.WriteLine();
+        Console.WriteLine("## Review: manifest lines with their reports' warnings (12 regions a frame, one report in ten warns)");
+        Console.WriteLine();
+        Console.WriteLine("| frames | whole manifest | of which reading warnings from report.json | share | report.json size |");
+        Console.WriteLine("|---|---|---|---|---|");
+        var inv = CultureInfo.InvariantCulture;
+        foreach (int frames in new[] { 1_000, 10_000 })
+        {
+            string folder = Directory.CreateTempSubdirectory("strayspot-reviewbench-").FullName;
+            try
+            {
+                string db = Path.Combine(folder, "batches.db");
+                Seed(db, frames);
+                using var database = Strayspot.Service.Store.BatchDatabase.OpenSqlite(db);
+                string batchFolder = Path.Combine(folder, "big");
+                var rng = new Random(11);
+                long size = 0;
+                for (int i = 1; i <= frames; i++)
+                {
+                    var regions = Enumerable.Range(1, RegionsPerFrame).Select(r => new RegionReport
+                    {
+                        Id = r, Box = new BoxReport(rng.Next(1800), rng.Next(1000), 40, 30), Area = 900, AreaShare = 0.0004, Centroid = [rng.Next(1920), rng.Next(1080)],
+                        MaxScore = 3 + (float)rng.NextDouble(), MeanScore = 2.5f, ClassBeneath = 0, ClassBeneathName = "pavement", ClassBeneathShare = 0.9, OnSurface = true,
+                    }).ToList();
+                    var report = new FrameReport
+                    {
+                        FrameId = $"cam/{i:D6}.png", Regions = regions, TimingsMs = new() { ["total"] = 40 },
+                        Warnings = i % 10 == 0 ? [new ReportWarning(ScoringWarnings.FrameSizeDiffers, "The frame is 1920×1080, but the calibration was measured on 1024×512 frames.")] : [],
+                    };
+                    string path = Path.Combine(batchFolder, "frames", $"{i:D5}", "report.json");
+                    Directory.CreateDirectory(Path.GetDirectoryName(path)!);
+                    File.WriteAllText(path, System.Text.Json.JsonSerializer.Serialize(report, FrameReport.JsonOptions));
+                    size += new FileInfo(path).Length;
+                }
+                var batch = database.Batches.Get("big")!;
+                var all = database.Batches.Frames("big");
+                var decisions = database.Decisions.Current("big");
+                int warned = 0;
+                double whole = Measure.MedianMs(runs, () => Manifest.WriteTo(Stream.Null, Manifest.Lines(batchFolder, batch, all, decisions)));
+                double reads = Measure.MedianMs(runs, () =>
+                {
+                    warned = 0;
+                    foreach (var f in all) if (Manifest.WarningsOf(Path.Combine(batchFolder, f.ReportPath!)) is not null) warned++;
+                });
+                if (warned != frames / 10) throw new InvalidOperationException($"read {warned} warned reports, wrote {frames / 10}");
+                Console.WriteLine(string.Create(inv, $"| {frames} | {whole:F0} ms | {reads:F0} ms | {reads / whole:P0} | {size / frames / 1024.0:F1} KB |"));
+            }
+            finally
+            {
+                SqliteConnection.ClearAllPools();
+                Directory.Delete(folder, recursive: true);
+            }
+        }
     }
 
     /// <summary>
