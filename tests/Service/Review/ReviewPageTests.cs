@@ -112,6 +112,12 @@ public sealed class ReviewPageTests(BrowserFixture browser, ITestOutputHelper ou
             .EnumerateArray().ToDictionary(r => r.GetProperty("id").GetInt32(),
                 r => r.TryGetProperty("decision", out var d) && d.ValueKind == JsonValueKind.Object ? d.GetProperty("verdict").GetString() : null);
         Assert.Equal(["label-it", "false-alarm", "unsure", null], order.Take(4).Select(id => regions[id]));
+        // Unsure's amber is a near shade of the selection's yellow: the two must differ in the line itself (its dashes).
+        async Task<string> Dashes(int id) => await page.Locator($"#layer-boxes rect.box[data-region='{id}']")
+            .EvaluateAsync<string>("b => getComputedStyle(b).strokeDasharray");
+        string unsure = await Dashes(order[2]), selected = await Dashes(order[3]), falseAlarm = await Dashes(order[1]);
+        Assert.NotEqual(selected, unsure);
+        Assert.NotEqual(falseAlarm, unsure);
         session.AssertNoConsoleErrors();
         session.AssertNoFailedRequests();
     }
