@@ -53,13 +53,25 @@ public sealed class FramePreprocessor
         {
             int side = size.ResizeSide == "longest" ? Math.Max(frameHeight, frameWidth) : Math.Min(frameHeight, frameWidth);
             double s = (double)size.SideLength!.Value / side;
-            ch = Math.Max(1, (int)Math.Round(frameHeight * s, MidpointRounding.AwayFromZero));
-            cw = Math.Max(1, (int)Math.Round(frameWidth * s, MidpointRounding.AwayFromZero));
+            double rh = Math.Round(frameHeight * s, MidpointRounding.AwayFromZero), rw = Math.Round(frameWidth * s, MidpointRounding.AwayFromZero);
+            // A thin strip scaled by its short side grows without bound: refuse it before the casts overflow.
+            if (rh * rw > SizePolicy.MaxInputPixels)
+                throw TooLargeForNetwork(frameHeight, frameWidth, rh, rw, size);
+            ch = Math.Max(1, (int)rh);
+            cw = Math.Max(1, (int)rw);
         }
-        int m = Math.Max(1, size.PadMultiple);
-        int ih = (ch + m - 1) / m * m, iw = (cw + m - 1) / m * m;
-        return new ContentBox(frameHeight, frameWidth, ch, cw, ih, iw);
+        long m = Math.Max(1, size.PadMultiple);
+        long ih = (ch + m - 1) / m * m, iw = (cw + m - 1) / m * m;
+        if (ih * iw > SizePolicy.MaxInputPixels)
+            throw TooLargeForNetwork(frameHeight, frameWidth, ih, iw, size);
+        return new ContentBox(frameHeight, frameWidth, ch, cw, (int)ih, (int)iw);
     }
+
+    private static FrameException TooLargeForNetwork(int frameHeight, int frameWidth, double inputHeight, double inputWidth, SizePolicy size) =>
+        new(FrameErrorCodes.TooLarge,
+            $"A {frameWidth}×{frameHeight} frame would become a network input of {inputWidth:0}×{inputHeight:0} (width×height) under the model's input.size " +
+            $"(mode {size.Mode}{(size.ResizeSide is null ? "" : $", resizeSide {size.ResizeSide} {size.SideLength}")}, padMultiple {size.PadMultiple}): " +
+            $"more than {SizePolicy.MaxInputPixels} pixels. Crop or resize the frame to a usual aspect ratio.");
 
     public PreparedInput Prepare(DecodedFrame frame)
     {
