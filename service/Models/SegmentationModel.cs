@@ -199,7 +199,34 @@ public sealed class SegmentationModel : IDisposable
     }
 
     /// <summary>Runs one prepared frame. Thread-safe. Dispose the lease after reading its view.</summary>
-    public LogitsLease Run(PreparedInput input, RunOptions? runOptions = null) => Run(input.Data, input.Shape, runOptions);
+    public LogitsLease Run(PreparedInput input, RunOptions? runOptions = null)
+    {
+        var lease = Run(input.Data, input.Shape, runOptions);
+        try
+        {
+            EnsureOutputFitsInput(lease.View, input.Box);
+            return lease;
+        }
+        catch
+        {
+            lease.Dispose();
+            throw;
+        }
+    }
+
+    /// <summary>
+    /// An output whose height and width are the input's swapped (a transpose left in the export) would be stretched
+    /// onto the frame without a word; refused. Only the swap is refused: an output resized inside the graph to a
+    /// size of its own still maps onto the whole input.
+    /// </summary>
+    private void EnsureOutputFitsInput(Strayspot.Scoring.Logits.LogitsView output, ContentBox box)
+    {
+        int h = output.Height, w = output.Width, ih = box.InputHeight, iw = box.InputWidth;
+        if (Strayspot.Scoring.Logits.LogitsAspect.Agrees(h, w, ih, iw) || !Strayspot.Scoring.Logits.LogitsAspect.Agrees(w, h, ih, iw)) return;
+        throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+            $"Output '{Descriptor.Output.Tensor}' is {w} wide × {h} high for an input {iw} wide × {ih} high: its height and width look swapped. " +
+            "Export the output as [1,C,h,w] with h along the input's height.");
+    }
 
     public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null)
     {
@@ -233,6 +260,8 @@ public sealed class SegmentationModel : IDisposable
             var lease = new LogitsLease(outputs, output, outShape);
             if (OutputsProbabilities)
                 lease.ConvertProbabilitiesToLogs();
+            else
+                EnsureNotProbabilities(lease.View);
             return lease;
         }
         catch
@@ -240,6 +269,32 @@ public sealed class SegmentationModel : IDisposable
             outputs.Dispose();
             throw;
         }
+    }
+
+    /// <summary>
+    /// An output declared logits whose sampled pixels all hold values in [0, 1] summing to 1 is a softmax: max logit,
+    /// energy and SML on it would score silently on the wrong scale. One class is left alone (its softmax is all 1).
+    /// </summary>
+    private void EnsureNotProbabilities(Strayspot.Scoring.Logits.LogitsView view)
+    {
+        int channels = view.Channels, plane = view.PlaneLength;
+        if (channels < 2 || plane < 1) return;
+        var data = view.Data.Span;
+        int step = Math.Max(1, plane / Strayspot.Scoring.Reduction.LogProbabilities.CheckedPixels);
+        for (int i = 0; i < plane; i += step)
+        {
+            double sum = 0;
+            for (int c = 0; c < channels; c++)
+            {
+                float v = data[c * plane + i];
+                if (!(v >= 0f && v <= 1f)) return;
+                sum += v;
+            }
+            if (Math.Abs(sum - 1) > Strayspot.Scoring.Reduction.LogProbabilities.SumTolerance) return;
+        }
+        throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+            $"output.kind is 'logits', but output '{Descriptor.Output.Tensor}' holds values between 0 and 1 whose classes sum to 1 at every pixel looked at: " +
+            "these are probabilities (the graph ends in a softmax). Set output.kind to 'probabilities' in descriptor.json, or export the model without its final Softmax.");
     }
 
     public void Dispose()

@@ -86,6 +86,26 @@ public class ModelShapeGuardsTests(ModelShapeService fixture) : IClassFixture<Mo
         // An ordinary frame on the same model still scores.
         Assert.Equal(HttpStatusCode.OK, (await PostFrame("strip", TestImages.Png(TestImages.Gradient(40, 24)))).Status);
     }
+
+    [Fact]
+    public async Task An_output_with_height_and_width_swapped_is_refused_not_stretched()
+    {
+        var (status, code, body) = await PostFrame("swapped", TestImages.Png(TestImages.Gradient(40, 24)));
+        Assert.True(status == HttpStatusCode.ServiceUnavailable, body);
+        Assert.Equal(ModelErrorCodes.ModelOutputMismatch, code);
+        Assert.Contains("swapped", body);
+        // A square frame cannot show the swap, and its output maps right: it scores.
+        Assert.Equal(HttpStatusCode.OK, (await PostFrame("swapped", TestImages.Png(TestImages.Gradient(32, 32)))).Status);
+    }
+
+    [Fact]
+    public async Task A_softmax_output_declared_as_logits_is_refused_naming_output_kind()
+    {
+        var (status, code, body) = await PostFrame("softmax", TestImages.Png(TestImages.Gradient(40, 24)));
+        Assert.True((int)status >= 400 && (int)status < 600 && status != HttpStatusCode.InternalServerError, body);
+        Assert.Equal(ModelErrorCodes.ModelOutputMismatch, code);
+        Assert.Contains("output.kind", body);
+    }
 }
 
 /// <summary>The command line refuses descriptors whose sizes would overflow the network input, and strip frames.</summary>
