@@ -242,6 +242,7 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         ["batches: plain text body"] = new("text/plain", () => Post(Batches, new StringContent("folder=x")), 415, "unsupported-media-type"),
         ["batches: limit not a number"] = new("?limit=abc", () => Get(Batches + "?limit=abc"), 400, "bad-request"),
         ["batches: encoded traversal id"] = new("/v1/batches/..%2F..%2Fetc", () => Get(Batches + "/..%2F..%2Fetc"), 404, "batch-not-found"),
+        ["batches: list by unknown state"] = new("?state=Done (states are lower case)", () => Get(Batches + "?state=Done"), 400, "validation-failed"),
         ["batches: manifest of unknown batch"] = new("?verdict=junk on 'nope'", () => Get(Batches + "/nope/manifest?verdict=junk"), 404, "batch-not-found"),
         ["batches: cancel unknown"] = new("POST /v1/batches/nope/cancel", () => Post(Batches + "/nope/cancel", Json("")), 404, "batch-not-found"),
 
