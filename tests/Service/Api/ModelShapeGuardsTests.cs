@@ -105,6 +105,13 @@ public class ModelShapeGuardsTests(ModelShapeService fixture) : IClassFixture<Mo
         Assert.True((int)status >= 400 && (int)status < 600 && status != HttpStatusCode.InternalServerError, body);
         Assert.Equal(ModelErrorCodes.ModelOutputMismatch, code);
         Assert.Contains("output.kind", body);
+        // The model list says so too, rather than calling it usable.
+        var listed = JsonDocument.Parse(await Client.GetStringAsync("/v1/models")).RootElement.GetProperty("models")
+            .EnumerateArray().Single(m => m.GetProperty("name").GetString() == "softmax");
+        Assert.False(listed.GetProperty("usable").GetBoolean());
+        Assert.Contains("output.kind", listed.GetProperty("error").GetString());
+        var details = JsonDocument.Parse(await Client.GetStringAsync("/v1/models/softmax")).RootElement;
+        Assert.False(details.GetProperty("usable").GetBoolean());
     }
 }
 
