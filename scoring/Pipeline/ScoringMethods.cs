@@ -5,10 +5,11 @@ using Strayspot.Scoring.Standardization;
 namespace Strayspot.Scoring.Pipeline;
 
 /// <summary>
-/// Makes one frame's anomaly score (higher = more anomalous) from the reduced maps; <paramref name="sml"/> is
-/// given exactly when the method needs class statistics.
+/// Makes the anomaly score (higher = more anomalous) of the pixels from <paramref name="start"/> on, as many as
+/// <paramref name="score"/> holds, from the reduced maps; <paramref name="sml"/> is given exactly when the method
+/// needs class statistics. Pixels are independent, so the pipeline scores each row as the reduction finishes it.
 /// </summary>
-public delegate void AnomalyScoreKernel(ReducedMaps maps, StandardizedMaxLogit? sml, Span<float> score);
+public delegate void AnomalyScoreKernel(ReducedMaps maps, StandardizedMaxLogit? sml, int start, Span<float> score);
 
 /// <summary>One scoring method: its names, what the reduction must compute for it, and how its score is made.</summary>
 /// <param name="Name">As the API, the JSON (reports, profiles) and the evaluation spell it.</param>
@@ -36,23 +37,20 @@ public static class ScoringMethods
     [
         new(ScoreMethod.Msp, "msp", [], ReductionOutputs.Msp, false,
             "max softmax probability; anomaly score = −MSP",
-            (maps, _, score) => TensorPrimitives.Negate(maps.Msp, score)),
+            (maps, _, at, score) => TensorPrimitives.Negate(maps.Msp.Slice(at, score.Length), score)),
         new(ScoreMethod.MaxLogit, "maxlogit", ["max-logit"], ReductionOutputs.None, false,
             "max logit; anomaly score = −max logit",
-            (maps, _, score) => TensorPrimitives.Negate(maps.MaxLogit, score)),
+            (maps, _, at, score) => TensorPrimitives.Negate(maps.MaxLogit.Slice(at, score.Length), score)),
         new(ScoreMethod.Entropy, "entropy", [], ReductionOutputs.Entropy, false,
             "softmax entropy in nats; anomaly score = entropy",
-            (maps, _, score) => maps.Entropy.CopyTo(score)),
+            (maps, _, at, score) => maps.Entropy.Slice(at, score.Length).CopyTo(score)),
         new(ScoreMethod.Energy, "energy", [], ReductionOutputs.Energy, false,
             "energy −T·logsumexp(l/T); anomaly score = energy",
-            (maps, _, score) => maps.Energy.CopyTo(score)),
+            (maps, _, at, score) => maps.Energy.Slice(at, score.Length).CopyTo(score)),
         new(ScoreMethod.Sml, "sml", [], ReductionOutputs.None, true,
             "standardized max logit with the calibration's class statistics; anomaly score = −SML",
-            (maps, sml, score) =>
-            {
-                sml!.Apply(maps.MaxLogit, maps.ClassIndex, score);
-                TensorPrimitives.Negate(score, score);
-            }),
+            (maps, sml, at, score) =>
+                sml!.ApplyNegated(maps.MaxLogit.Slice(at, score.Length), maps.ClassIndex.Slice(at, score.Length), score)),
     ];
 
     private static readonly ScoringMethod?[] ById = Index();

@@ -374,6 +374,7 @@ public sealed unsafe partial class PixelReduction
             new ReadOnlySpan<float>(o.Entropy + x0, n).CopyTo(new Span<float>(Ptr(maps.EntropyArray) + at, n));
         if ((outputs & ReductionOutputs.Energy) != 0)
             new ReadOnlySpan<float>(o.Energy + x0, n).CopyTo(new Span<float>(Ptr(maps.EnergyArray) + at, n));
+        job.Finished?.Take(maps, (int)at, n);
     }
 
     // Every array handed to this is allocated on the pinned object heap.

@@ -19,6 +19,8 @@ public sealed class StandardizedMaxLogit
 {
     private readonly float[] _mean;
     private readonly float[] _invStd;
+    /// <summary>−1/std: (x − mean)·(−1/std) is −((x − mean)/std) to the bit (IEEE products are sign-symmetric).</summary>
+    private readonly float[] _negInvStd;
     private readonly float[] _std;
 
     public StandardizedMaxLogit(ClassStatistics statistics)
@@ -51,6 +53,7 @@ public sealed class StandardizedMaxLogit
 
         _mean = new float[n];
         _invStd = new float[n];
+        _negInvStd = new float[n];
         _std = new float[n];
         var fallback = new List<int>();
         for (int i = 0; i < n; i++)
@@ -62,6 +65,7 @@ public sealed class StandardizedMaxLogit
             _mean[i] = ToFloat(mean);
             _std[i] = ToFloat(std);
             _invStd[i] = ToFloat(1.0 / std);
+            _negInvStd[i] = -_invStd[i];
         }
         FallbackClasses = fallback;
     }
@@ -87,17 +91,27 @@ public sealed class StandardizedMaxLogit
 
     private static float ToFloat(double v) => (float)Math.Clamp(v, float.MinValue, float.MaxValue);
 
-    public void Apply(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml)
+    public void Apply(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml) =>
+        Apply(maxLogit, classIndex, sml, _invStd);
+
+    /// <summary>
+    /// −SML, the anomaly score, in one pass: bit for bit what <see cref="Apply"/> followed by negation gives (the
+    /// clamp range is symmetric and the sign rides on the factor), without a second walk over the map.
+    /// </summary>
+    public void ApplyNegated(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> anomalyScore) =>
+        Apply(maxLogit, classIndex, anomalyScore, _negInvStd);
+
+    private void Apply(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml, float[] factor)
     {
         CheckSpans(maxLogit.Length, classIndex, sml.Length);
         int i = 0;
         if (Avx2.IsSupported)
-            i = ApplyAvx2(maxLogit, classIndex, sml);
+            i = ApplyAvx2(maxLogit, classIndex, sml, factor);
         // (x − mean)·(1/std) can exceed the float range for extreme inputs: clamping keeps the promise of finite output.
         for (; i < maxLogit.Length; i++)
         {
             int c = classIndex[i];
-            sml[i] = Math.Clamp((maxLogit[i] - _mean[c]) * _invStd[c], float.MinValue, float.MaxValue);
+            sml[i] = Math.Clamp((maxLogit[i] - _mean[c]) * factor[c], float.MinValue, float.MaxValue);
         }
     }
 
@@ -112,10 +126,10 @@ public sealed class StandardizedMaxLogit
         }
     }
 
-    private unsafe int ApplyAvx2(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml)
+    private unsafe int ApplyAvx2(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml, float[] factor)
     {
         int n = maxLogit.Length, blocks = n / 8;
-        fixed (float* x = maxLogit, mean = _mean, inv = _invStd, o = sml)
+        fixed (float* x = maxLogit, mean = _mean, inv = factor, o = sml)
         fixed (ushort* cls = classIndex)
         {
             // Frame-sized maps: a few spans of 8-pixel blocks per core (pixels are independent, results unchanged).

@@ -51,6 +51,7 @@ public static class Program
         {
             case "scoring": ScoringBench.Run(runs); return 0;
             case "chain": PostHocChainBench.Run(runs); return 0;
+            case "chain-profile": ChainProfile.Run(runs); return 0;
             case "load": LoadBench.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args), IntraOp(args)); return 0;
             case "issue-tables": IssueTables.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args), IntraOp(args)); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
