@@ -213,13 +213,13 @@ public sealed class MultiMethodScorer
             // The chain's steps are made below, each from the one before.
             if (EvaluatedMethods.BaseOf(m) == EvaluatedMethods.ChainBase) continue;
             var method = ScoringMethods.Of(EvaluatedMethods.BaseOf(m));
-            method.Kernel(_maps, method.NeedsStatistics ? _sml : null, 0, Buffer(m, n));
+            method.Kernel(_maps, method.NeedsStatistics ? _sml : null, Buffer(m, n));
         }
         if (_sml is null || !_chain) return;
 
         // Each SML step starts from the previous step's map, so the chain costs what the full method alone costs.
         var chain = ChainBuffer(EvaluatedMethod.Sml, n);
-        ScoringMethods.Of(EvaluatedMethods.ChainBase).Kernel(_maps, _sml, 0, chain);
+        ScoringMethods.Of(EvaluatedMethods.ChainBase).Kernel(_maps, _sml, chain);
         if (_boundary is null) return;
         var next = ChainBuffer(EvaluatedMethod.SmlBoundary, n);
         if (next != chain) { chain.CopyTo(next); chain = next; }

@@ -25,7 +25,6 @@ public sealed class FramePipeline
     private readonly ReducedMaps _maps = new();
     private readonly ReductionOutputs _outputs;
     private readonly RegionFilter _filter;
-    private readonly ScoreRows _rows;
     private float[] _score = [];
     private byte[] _mask = [];
 
@@ -48,7 +47,6 @@ public sealed class FramePipeline
         if (options.BoundarySuppression.Enabled) _boundary = new BoundarySuppression(options.BoundarySuppression);
         if (options.Smoothing.Enabled) _smoothing = new DilatedSmoothing(options.Smoothing);
         _filter = options.RegionFilter();
-        _rows = new ScoreRows(_method, _sml);
     }
 
     public ScoringOptions Options => _options;
@@ -66,19 +64,19 @@ public sealed class FramePipeline
         var timings = new StageTimings();
         long t0 = Stopwatch.GetTimestamp();
 
-        int n = frameWidth * frameHeight;
-        if (_score.Length < n) { _score = new float[n]; _mask = new byte[n]; }
         _maps.EnsureSize(frameWidth, frameHeight, _outputs);
-        // The anomaly score is made row by row inside the reduction's pass, while each row's class and max logit are
-        // still in cache: the standardization costs no walk of its own over the frame.
-        _rows.Score = _score;
-        _reduction.Reduce(logits, frameHeight, frameWidth, _maps, _rows);
-        // Non-finite logits are refused before any score is handed out; the frame-sized reduction has checked already.
+        _reduction.Reduce(logits, frameHeight, frameWidth, _maps);
+        // Non-finite logits are refused before any score comes of them; the frame-sized reduction has checked already.
         if (!_maps.LogitsCheckedFinite) LogitsValidation.EnsureFinite(logits);
         long t1 = Stopwatch.GetTimestamp();
         timings.Reduction = Stopwatch.GetElapsedTime(t0, t1);
+
+        int n = frameWidth * frameHeight;
+        if (_score.Length < n) { _score = new float[n]; _mask = new byte[n]; }
         var score = _score.AsSpan(0, n);
-        long t2 = t1;
+        AnomalyScore(score);
+        long t2 = Stopwatch.GetTimestamp();
+        timings.Standardization = Stopwatch.GetElapsedTime(t1, t2);
 
         _boundary?.Apply(score, _maps.ClassIndex, frameWidth, frameHeight);
         long t3 = Stopwatch.GetTimestamp();
@@ -103,20 +101,13 @@ public sealed class FramePipeline
         };
     }
 
-    /// <summary>The method's kernel on each stretch the reduction finishes.</summary>
-    private sealed class ScoreRows(ScoringMethod method, StandardizedMaxLogit? sml) : IReducedPixelsHandler
-    {
-        public float[] Score = [];
-
-        public void Take(ReducedMaps maps, int start, int length) => method.Kernel(maps, sml, start, Score.AsSpan(start, length));
-    }
+    private void AnomalyScore(Span<float> score) => _method.Kernel(_maps, _sml, score);
 }
 
 /// <summary>Wall time of each stage for one frame.</summary>
 public sealed class StageTimings
 {
     public TimeSpan Reduction { get; set; }
-    /// <summary>Zero: the anomaly score is made inside the reduction's pass, so its time is in <see cref="Reduction"/>.</summary>
     public TimeSpan Standardization { get; set; }
     public TimeSpan BoundarySuppression { get; set; }
     public TimeSpan Smoothing { get; set; }

@@ -5,11 +5,10 @@ using Strayspot.Scoring.Standardization;
 namespace Strayspot.Scoring.Pipeline;
 
 /// <summary>
-/// Makes the anomaly score (higher = more anomalous) of the pixels from <paramref name="start"/> on, as many as
-/// <paramref name="score"/> holds, from the reduced maps; <paramref name="sml"/> is given exactly when the method
-/// needs class statistics. Pixels are independent, so the pipeline scores each row as the reduction finishes it.
+/// Makes one frame's anomaly score (higher = more anomalous) from the reduced maps; <paramref name="sml"/> is
+/// given exactly when the method needs class statistics.
 /// </summary>
-public delegate void AnomalyScoreKernel(ReducedMaps maps, StandardizedMaxLogit? sml, int start, Span<float> score);
+public delegate void AnomalyScoreKernel(ReducedMaps maps, StandardizedMaxLogit? sml, Span<float> score);
 
 /// <summary>One scoring method: its names, what the reduction must compute for it, and how its score is made.</summary>
 /// <param name="Name">As the API, the JSON (reports, profiles) and the evaluation spell it.</param>
@@ -37,20 +36,19 @@ public static class ScoringMethods
     [
         new(ScoreMethod.Msp, "msp", [], ReductionOutputs.Msp, false,
             "max softmax probability; anomaly score = −MSP",
-            (maps, _, at, score) => TensorPrimitives.Negate(maps.Msp.Slice(at, score.Length), score)),
+            (maps, _, score) => TensorPrimitives.Negate(maps.Msp, score)),
         new(ScoreMethod.MaxLogit, "maxlogit", ["max-logit"], ReductionOutputs.None, false,
             "max logit; anomaly score = −max logit",
-            (maps, _, at, score) => TensorPrimitives.Negate(maps.MaxLogit.Slice(at, score.Length), score)),
+            (maps, _, score) => TensorPrimitives.Negate(maps.MaxLogit, score)),
         new(ScoreMethod.Entropy, "entropy", [], ReductionOutputs.Entropy, false,
             "softmax entropy in nats; anomaly score = entropy",
-            (maps, _, at, score) => maps.Entropy.Slice(at, score.Length).CopyTo(score)),
+            (maps, _, score) => maps.Entropy.CopyTo(score)),
         new(ScoreMethod.Energy, "energy", [], ReductionOutputs.Energy, false,
             "energy −T·logsumexp(l/T); anomaly score = energy",
-            (maps, _, at, score) => maps.Energy.Slice(at, score.Length).CopyTo(score)),
+            (maps, _, score) => maps.Energy.CopyTo(score)),
         new(ScoreMethod.Sml, "sml", [], ReductionOutputs.None, true,
             "standardized max logit with the calibration's class statistics; anomaly score = −SML",
-            (maps, sml, at, score) =>
-                sml!.ApplyNegated(maps.MaxLogit.Slice(at, score.Length), maps.ClassIndex.Slice(at, score.Length), score)),
+            (maps, sml, score) => sml!.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score)),
     ];
 
     private static readonly ScoringMethod?[] ById = Index();

@@ -52,8 +52,7 @@ public sealed unsafe partial class PixelReduction
 
     private readonly ParallelOptions _parallel = new();
 
-    /// <param name="finished">Told of each stretch of the maps as it is written (optional).</param>
-    public void Reduce(LogitsView logits, int frameHeight, int frameWidth, ReducedMaps into, IReducedPixelsHandler? finished = null)
+    public void Reduce(LogitsView logits, int frameHeight, int frameWidth, ReducedMaps into)
     {
         ArgumentNullException.ThrowIfNull(into);
         if (logits.Data.Length == 0)
@@ -67,7 +66,7 @@ public sealed unsafe partial class PixelReduction
 
         into.EnsureSize(frameWidth, frameHeight, Outputs);
         into.LogitsCheckedFinite = false;
-        var job = new Job(this, logits, frameHeight, frameWidth, into) { Finished = finished };
+        var job = new Job(this, logits, frameHeight, frameWidth, into);
         using var pin = logits.Data.Pin();
         job.Source = (float*)pin.Pointer;
         // Rows narrower than one vector go through the resampling path, whose tables then copy exactly.
@@ -135,7 +134,6 @@ public sealed unsafe partial class PixelReduction
         public readonly ReducedMaps Maps;
         public float* Source;
         public ResampleAxis? Xs, Ys;
-        public IReducedPixelsHandler? Finished;
         /// <summary>1 once a band has met a NaN or infinite logit (the frame-sized path checks every logit).</summary>
         public int NonFinite;
 

@@ -10,6 +10,27 @@ namespace Strayspot.Bench;
 
 public static class ChainProfile
 {
+    [System.Runtime.InteropServices.DllImport("libc")]
+    private static extern unsafe int clock_gettime(int clock, long* ts);
+
+    /// <summary>CPU time of the whole process in ms (every thread), nanosecond resolution.</summary>
+    private static unsafe double Cpu() { long* t = stackalloc long[2]; clock_gettime(2, t); return t[0] * 1e3 + t[1] / 1e6; }
+
+    /// <summary>Alternates the actions run by run; prints min and median of each (CPU ms of the process).</summary>
+    private static string Alt(int runs, params (string Name, Action Act)[] acts)
+    {
+        var times = acts.Select(_ => new List<double>()).ToArray();
+        for (int r = 0; r < runs + 2; r++)
+            for (int a = 0; a < acts.Length; a++)
+            {
+                double t = Cpu();
+                acts[a].Act();
+                double ms = Cpu() - t;
+                if (r >= 2) times[a].Add(ms);
+            }
+        return string.Join(", ", acts.Select((a, i) => $"{a.Name} {times[i].Min():0.00}/{Measure.Median(times[i]):0.00}"));
+    }
+
     public static unsafe void Run(int runs)
     {
         var stats = ScoringBench.Statistics(19);
@@ -29,27 +50,21 @@ public static class ChainProfile
             var bs = new BoundarySuppression(options.BoundarySuppression);
             var ds = new DilatedSmoothing(options.Smoothing);
             var rf = new RegionFinder();
-            var dist = new byte[n]; var rd = new byte[n]; var rm = new byte[fh];
             red.Reduce(logits, fh, fw, maps);
-            ScoringMethods.Of(ScoreMethod.Sml).Kernel(maps, sml, 0, s0);
+            sml.ApplyNegated(maps.MaxLogit, maps.ClassIndex, s0);
             s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); ds.Apply(score, fw, fh);
             var sorted = (float[])score.Clone(); Array.Sort(sorted); float thr = sorted[(int)(n * 0.95)];
             var filter = options.RegionFilter();
-            var t = new List<(string, double)>();
-            t.Add(("reduce", Measure.MedianMs(runs, () => red.Reduce(logits, fh, fw, maps))));
-            t.Add(("finite", Measure.MedianMs(runs, () => LogitsValidation.EnsureFinite(logits))));
-            t.Add(("smlApply", Measure.MedianMs(runs, () => sml.Apply(maps.MaxLogit, maps.ClassIndex, score))));
-            t.Add(("smlKernel", Measure.MedianMs(runs, () => ScoringMethods.Of(ScoreMethod.Sml).Kernel(maps, sml, 0, score))));
-            int bands = FrameBands.BandCount(fw, fh);
-            t.Add(("dist", Measure.MedianMs(runs, () => { fixed (ushort* c = maps.ClassIndex) fixed (byte* d = dist) fixed (byte* r = rm) fixed (byte* q = rd) DistanceToEdges.Compute(c, d, fw, fh, 4, bands, r, q); })));
-            t.Add(("dist1", Measure.MedianMs(runs, () => { fixed (ushort* c = maps.ClassIndex) fixed (byte* d = dist) fixed (byte* r = rm) fixed (byte* q = rd) DistanceToEdges.Compute(c, d, fw, fh, 4, 1, r, q); })));
-            t.Add(("bs", Measure.MedianMs(runs, () => { s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); })));
-            t.Add(("copy", Measure.MedianMs(runs, () => s0.CopyTo(score))));
-            t.Add(("ds", Measure.MedianMs(runs, () => ds.Apply(score, fw, fh))));
-            t.Add(("thr", Measure.MedianMs(runs, () => AnomalyMask.Threshold(score, thr, mask))));
-            t.Add(("regions", Measure.MedianMs(runs, () => rf.Find(mask, fw, fh, score, maps.ClassIndex, 19, filter))));
-            t.Add(("fscore", Measure.MedianMs(runs, () => FrameScore.Compute(score))));
-            if (pass == 1) Console.WriteLine($"{label} {kind}: " + string.Join(", ", t.Select(x => $"{x.Item1} {x.Item2:0.00}")));
+            string line = Alt(runs,
+                ("reduce256", () => { PixelReduction.WideKernels = false; red.Reduce(logits, fh, fw, maps); PixelReduction.WideKernels = true; }),
+                ("sml256+negate", () => { StandardizedMaxLogit.WideKernels = false; sml.Apply(maps.MaxLogit, maps.ClassIndex, score); System.Numerics.Tensors.TensorPrimitives.Negate(score, score); StandardizedMaxLogit.WideKernels = true; }),
+                ("smlNeg512", () => sml.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score)),
+                ("reduce+negated", () => { red.Reduce(logits, fh, fw, maps); if (fh != h) LogitsValidation.EnsureFinite(logits); sml.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score); }),
+                ("reduce", () => red.Reduce(logits, fh, fw, maps)),
+                ("bs", () => { s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); }),
+                ("ds", () => ds.Apply(score, fw, fh)),
+                ("regions", () => { AnomalyMask.Threshold(score, thr, mask); rf.Find(mask, fw, fh, score, maps.ClassIndex, 19, filter); FrameScore.Compute(score); }));
+            if (pass == 1) Console.WriteLine($"{label} {kind} (V512 {System.Runtime.Intrinsics.Vector512.IsHardwareAccelerated}): {line}");
         }
     }
 }

@@ -153,15 +153,15 @@ public class FramePipelineTests
     }
 
     /// <summary>
-    /// The pipeline makes the anomaly score row by row inside the reduction's pass; the reference reduces the whole
-    /// frame first and then applies each method's plain formula to the whole maps. Bit-equal for every method, on
-    /// the resized and the frame-sized path, with smooth and noisy logits.
+    /// Each method's score against its plain formula on the reduced maps (for SML: standardize, then negate, the
+    /// two-step form the one-pass kernel replaces). Bit-equal for every method, on the resized and the frame-sized
+    /// path, with smooth and noisy logits.
     /// </summary>
     [Theory]
     [InlineData(17, 29, 40, 70, 1)]
     [InlineData(64, 96, 64, 96, 2)]
     [InlineData(33, 50, 33, 50, 3)]
-    public void Score_made_inside_the_reduction_is_bit_equal_to_scoring_the_reduced_maps(int h, int w, int fh, int fw, int seed)
+    public void Score_is_bit_equal_to_each_methods_formula_on_the_reduced_maps(int h, int w, int fh, int fw, int seed)
     {
         const int c = 5;
         var rng = new Random(seed);

@@ -117,7 +117,7 @@ public class StandardizedMaxLogitTests
     /// The one-pass anomaly score against the straightforward two-step reference (standardize, then negate) to the
     /// bit, signed zeros included: random values, values equal to a class mean (±0), values far beyond the float
     /// range after scaling (the clamp), fallback classes, and lengths on and off the vector width and past the
-    /// parallel threshold.
+    /// parallel threshold; five classes, so the tables sit in registers.
     /// </summary>
     [Theory]
     [InlineData(1, 1)]
@@ -147,5 +147,15 @@ public class StandardizedMaxLogitTests
             Assert.True(BitConverter.SingleToInt32Bits(reference[i]) == BitConverter.SingleToInt32Bits(once[i]),
                 $"pixel {i}: class {c[i]}, max logit {x[i]}: {reference[i]} vs {once[i]}");
         Assert.Contains(once, v => v == 0f && float.IsNegative(v));
+
+        // The 16-pixel permute kernel against the 8-pixel gather kernel (both give the same bits, so flipping the
+        // switch cannot disturb a test running beside this one).
+        var gathered = new float[n];
+        StandardizedMaxLogit.WideKernels = false;
+        try { sml.Apply(x, c, gathered); }
+        finally { StandardizedMaxLogit.WideKernels = true; }
+        var permuted = Apply(sml, x, c);
+        for (int i = 0; i < n; i++)
+            Assert.True(BitConverter.SingleToInt32Bits(gathered[i]) == BitConverter.SingleToInt32Bits(permuted[i]), $"pixel {i}");
     }
 }
