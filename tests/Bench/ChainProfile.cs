@@ -61,6 +61,7 @@ public static class ChainProfile
                 ("smlNeg512", () => sml.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score)),
                 ("reduce+negated", () => { red.Reduce(logits, fh, fw, maps); if (fh != h) LogitsValidation.EnsureFinite(logits); sml.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score); }),
                 ("reduce", () => red.Reduce(logits, fh, fw, maps)),
+                ("bs256", () => { BoundarySuppression.WideKernels = false; s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); BoundarySuppression.WideKernels = true; }),
                 ("bs", () => { s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); }),
                 ("ds", () => ds.Apply(score, fw, fh)),
                 ("regions", () => { AnomalyMask.Threshold(score, thr, mask); rf.Find(mask, fw, fh, score, maps.ClassIndex, 19, filter); FrameScore.Compute(score); }));
