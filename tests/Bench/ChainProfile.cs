@@ -63,6 +63,7 @@ public static class ChainProfile
                 ("reduce", () => red.Reduce(logits, fh, fw, maps)),
                 ("bs256", () => { BoundarySuppression.WideKernels = false; s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); BoundarySuppression.WideKernels = true; }),
                 ("bs", () => { s0.CopyTo(score); bs.Apply(score, maps.ClassIndex, fw, fh); }),
+                ("ds256", () => { DilatedSmoothing.WideKernels = false; ds.Apply(score, fw, fh); DilatedSmoothing.WideKernels = true; }),
                 ("ds", () => ds.Apply(score, fw, fh)),
                 ("regions", () => { AnomalyMask.Threshold(score, thr, mask); rf.Find(mask, fw, fh, score, maps.ClassIndex, 19, filter); FrameScore.Compute(score); }));
             if (pass == 1) Console.WriteLine($"{label} {kind} (V512 {System.Runtime.Intrinsics.Vector512.IsHardwareAccelerated}): {line}");
