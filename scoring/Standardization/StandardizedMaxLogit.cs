@@ -122,9 +122,9 @@ public sealed class StandardizedMaxLogit
         CheckSpans(maxLogit.Length, classIndex, sml.Length);
         int i = 0;
         if (Avx512F.IsSupported && factorWide is not null && WideKernels)
-            i = ApplyAvx512(maxLogit, classIndex, sml, factorWide);
+            i = ApplyVectors(maxLogit, classIndex, sml, _meanWide!, factorWide, 16);
         else if (Avx2.IsSupported)
-            i = ApplyAvx2(maxLogit, classIndex, sml, factor);
+            i = ApplyVectors(maxLogit, classIndex, sml, _mean, factor, 8);
         // (x − mean)·(1/std) can exceed the float range for extreme inputs: clamping keeps the promise of finite output.
         for (; i < maxLogit.Length; i++)
         {
@@ -144,45 +144,30 @@ public sealed class StandardizedMaxLogit
         }
     }
 
-    private unsafe int ApplyAvx2(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml, float[] factor)
-    {
-        int n = maxLogit.Length, blocks = n / 8;
-        fixed (float* x = maxLogit, mean = _mean, inv = factor, o = sml)
-        fixed (ushort* cls = classIndex)
-        {
-            // Frame-sized maps: a few spans of 8-pixel blocks per core (pixels are independent, results unchanged).
-            int spans = n >= ParallelPixels ? Environment.ProcessorCount * 4 : 1;
-            if (spans == 1) ApplyBlocks(x, cls, mean, inv, o, 0, blocks);
-            else
-            {
-                nint xp = (nint)x, cp = (nint)cls, mp = (nint)mean, ip = (nint)inv, op = (nint)o;
-                Parallel.For(0, spans, s => ApplyBlocks((float*)xp, (ushort*)cp, (float*)mp, (float*)ip, (float*)op,
-                    (int)((long)blocks * s / spans), (int)((long)blocks * (s + 1) / spans)));
-            }
-        }
-        return blocks * 8;
-    }
-
     /// <summary>
-    /// Sixteen pixels a step with both tables in registers (at most 32 classes): the same subtraction, product and
-    /// clamp per pixel as <see cref="ApplyBlocks"/>, so the same bits.
+    /// Vector blocks of <paramref name="step"/> pixels (8: gathers; 16: both tables in registers, at most 32 classes,
+    /// the same subtraction, product and clamp per pixel, so the same bits). Returns how many pixels it did.
     /// </summary>
-    private unsafe int ApplyAvx512(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml, float[] factor)
+    private unsafe int ApplyVectors(ReadOnlySpan<float> maxLogit, ReadOnlySpan<ushort> classIndex, Span<float> sml,
+        float[] mean, float[] factor, int step)
     {
-        int n = maxLogit.Length, blocks = n / 16;
-        fixed (float* x = maxLogit, mean = _meanWide, inv = factor, o = sml)
+        int n = maxLogit.Length, blocks = n / step;
+        fixed (float* x = maxLogit, m = mean, inv = factor, o = sml)
         fixed (ushort* cls = classIndex)
         {
+            // Frame-sized maps: a few spans of blocks per core (pixels are independent, results unchanged).
             int spans = n >= ParallelPixels ? Environment.ProcessorCount * 4 : 1;
-            if (spans == 1) ApplyBlocksWide(x, cls, mean, inv, o, 0, blocks);
-            else
+            nint xp = (nint)x, cp = (nint)cls, mp = (nint)m, ip = (nint)inv, op = (nint)o;
+            void RunSpan(int s)
             {
-                nint xp = (nint)x, cp = (nint)cls, mp = (nint)mean, ip = (nint)inv, op = (nint)o;
-                Parallel.For(0, spans, s => ApplyBlocksWide((float*)xp, (ushort*)cp, (float*)mp, (float*)ip, (float*)op,
-                    (int)((long)blocks * s / spans), (int)((long)blocks * (s + 1) / spans)));
+                int b0 = (int)((long)blocks * s / spans), b1 = (int)((long)blocks * (s + 1) / spans);
+                if (step == 16) ApplyBlocksWide((float*)xp, (ushort*)cp, (float*)mp, (float*)ip, (float*)op, b0, b1);
+                else ApplyBlocks((float*)xp, (ushort*)cp, (float*)mp, (float*)ip, (float*)op, b0, b1);
             }
+            if (spans == 1) RunSpan(0);
+            else Parallel.For(0, spans, RunSpan);
         }
-        return blocks * 16;
+        return blocks * step;
     }
 
     // Called once per frame with a long loop: compile fully optimized at once rather than after 30 frames.
