@@ -44,7 +44,7 @@ public static class DecodeBench
         Console.WriteLine($"| ratio | {b / n:0.0}× |");
         Console.WriteLine($"| of which: ImageSharp's header read (identify) | {identify:0.0} |");
         Console.WriteLine($"| of which: libpng decode and RGBA → RGB copy | {skia:0.0} |");
-        Parts(png, runs);
+        PixelLoops(runs, png);
     }
 
     /// <summary>
@@ -52,8 +52,9 @@ public static class DecodeBench
     /// alternating run by run on the same data: RGBA → RGB after libpng, and RGB bytes → the model's normalized
     /// planes for a frame already at the network's size. Both must give the same bytes and floats.
     /// </summary>
-    private static void Parts(byte[] png, int runs)
+    public static void PixelLoops(int runs, byte[]? png = null)
     {
+        png ??= DemoPng.Encode(new ApronSceneGenerator(1024, 512).Render(70));
         int w = 1024, h = 512;
         using var frame = new FrameDecoder().Decode(png);
         var rgba = new byte[w * h * 4];

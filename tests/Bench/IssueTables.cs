@@ -14,6 +14,7 @@ public static class IssueTables
         string loadBefore = LoadAverage();
         var chain = PostHocChainBench.Run(runs);
         var load = LoadBench.Run(runs, framesAtOnce, memoryPattern, networkRuns, intraOp);
+        DecodeBench.PixelLoops(runs);
 
         Console.WriteLine();
         Console.WriteLine("| goal | target | this run | met |");
@@ -34,6 +35,17 @@ public static class IssueTables
         Console.WriteLine($"| p99 / p50 at 4 clients | ≤ 2.5 | {spread:0.0} | {(spread <= 2.5 ? "yes" : "no")} |");
         double above = (load.PeakBytes - load.IdleBytes) / 1e6;
         Console.WriteLine($"| resident memory above idle, 16 clients, 1024×512 | ≤ 400 MB | {above:0} MB | {(above <= 400 ? "yes" : "no")} |");
+        if (load.LoneRun.Count > 0)
+        {
+            var one = load.LoneRun[0];
+            bool helps = one.Lone - one.Default > one.Spread;
+            bool hurts = load.LoneRun.Skip(1).Any(r => r.Default - r.Lone > r.Spread);
+            Console.WriteLine();
+            Console.WriteLine($"Lone-run session (Service:LoneRunThreads), lone / as set at {string.Join(", ", load.LoneRun.Select(r => $"{r.Clients} client(s) {r.Lone / r.Default:0.00}× (±{r.Spread:0.0} frames/s)"))}: " +
+                (helps && !hurts ? "helps one client beyond the spread and hurts no other count: worth the default." :
+                 helps ? "helps one client beyond the spread but hurts another count: keep it opt-in." :
+                 "no gain beyond the spread at one client: keep it opt-in."));
+        }
         Console.WriteLine();
         Console.WriteLine($"One `issue-tables --runs {runs}` run took {clock.Elapsed.TotalMinutes:0.0} min on {Environment.ProcessorCount} cores; " +
             $"load average before {loadBefore}, after {LoadAverage()} (1, 5, 15 min). Only ratios within one run compare.");

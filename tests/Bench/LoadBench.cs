@@ -25,6 +25,8 @@ public static class LoadBench
         /// <summary>Per client count: throughput of every round, CPU per frame and the sink's share.</summary>
         public List<ClientRow> Rows { get; init; } = [];
         public double Cpus { get; init; }
+        /// <summary>Per client count: median frames/s of the service as set and of the same with a lone-run session, alternating.</summary>
+        public List<(int Clients, double Default, double Lone, double Spread)> LoneRun { get; init; } = [];
     }
 
     /// <param name="framesAtOnce">Service:MaxConcurrentFrames for the service part; null keeps the service's default.</param>
@@ -402,7 +404,8 @@ public static class LoadBench
             }
             Console.WriteLine($"| of the rest: the sink's p50 at 1 client (clients and loopback HTTP, same bodies, {sinkAnswer.Length}-byte answer) | {SinkP50(http, frames):0.0} | |");
             Console.WriteLine($"| of the rest: the drift watch on one 1024×512 frame's maps (measured apart) | {DriftMs(models, runs):0.0} | |");
-            return new Result(netFps, reference, rows.Select(r => (r.Clients, r.P50, r.P99, r.MedianFps)).ToList(), idle, peak) { Rows = rows, Cpus = cpus };
+            var lone = LoneRunComparison(models, frames, http, runs, slots, threads, memoryPattern, runsAtOnce);
+            return new Result(netFps, reference, rows.Select(r => (r.Clients, r.P50, r.P99, r.MedianFps)).ToList(), idle, peak) { Rows = rows, Cpus = cpus, LoneRun = lone };
         }
         finally
         {
@@ -423,6 +426,82 @@ public static class LoadBench
         var classIndex = new ushort[n];
         for (int i = 0; i < n; i++) { maxLogit[i] = (float)rng.NextDouble() * 10; classIndex[i] = (ushort)(i / 4096 % classes); }
         return Measure.MedianMs(runs, () => drift.Observe(maxLogit, classIndex));
+    }
+
+    /// <summary>
+    /// A lone frame on every thread: a second service in this process, the same settings plus Service:LoneRunThreads
+    /// = the budget's threads, measured in rounds alternating with the service above at 1, 2, 4 and 16 clients
+    /// (after the memory figures, which it would otherwise disturb).
+    /// </summary>
+    private static List<(int Clients, double Default, double Lone, double Spread)> LoneRunComparison(string models, byte[][] frames, HttpClient main,
+        int runs, int slots, int threads, bool memoryPattern, int runsAtOnce)
+    {
+        int wide = CpuBudget.Current.Threads;
+        var result = new List<(int, double, double, double)>();
+        if (wide <= threads) return result;
+        long before = Resident();
+        int port = ServiceBench.FreePort();
+        var app = ServiceHost.Build(new ServiceHostSettings
+        {
+            ModelsRoot = models,
+            DataRoot = Path.Combine(Path.GetDirectoryName(models)!, "data-lone"),
+            Urls = [$"http://127.0.0.1:{port}"],
+            ConsoleLog = false,
+            Configuration = new Dictionary<string, string?>
+            {
+                ["Service:MaxQueuedFrames"] = "64",
+                ["Service:MaxConcurrentFrames"] = slots.ToString(),
+                ["Service:OnnxMemoryPattern"] = memoryPattern ? "true" : "false",
+                ["Service:NetworkRunsAtOnce"] = runsAtOnce.ToString(),
+                ["Service:IntraOpThreads"] = threads.ToString(),
+                ["Service:LoneRunThreads"] = wide.ToString(),
+            },
+        });
+        app.StartAsync().GetAwaiter().GetResult();
+        try
+        {
+            using var http = new HttpClient { BaseAddress = new Uri($"http://127.0.0.1:{port}"), Timeout = TimeSpan.FromMinutes(5) };
+            for (int i = 0; i < 300 && !http.GetAsync("/readyz").Result.IsSuccessStatusCode; i++) Thread.Sleep(100);
+            for (int i = 0; i < 4; i++) ServiceBench.Post(http, frames[i % frames.Length]);
+            int rounds = Math.Max(3, runs / 5);
+            int[] counts = [1, 2, 4, 16];
+            var fps = new Dictionary<(int, bool), List<double>>();
+            var p50 = new Dictionary<(int, bool), List<double>>();
+            for (int r = 0; r < rounds; r++)
+                foreach (int clients in counts)
+                    foreach (bool lone in r % 2 == 0 ? new[] { false, true } : [true, false])
+                    {
+                        int perClient = clients == 16 ? 2 : Math.Max(3, 16 / clients);
+                        var (lat, _, seconds) = ServiceBench.ClientLatencies(lone ? http : main, frames, clients, perClient);
+                        if (!fps.TryGetValue((clients, lone), out var list)) { fps[(clients, lone)] = list = []; p50[(clients, lone)] = []; }
+                        list.Add(lat.Count / seconds);
+                        p50[(clients, lone)].Add(Measure.Median(lat));
+                    }
+            long added = Resident() - before;
+            Console.WriteLine();
+            Console.WriteLine($"A lone frame's network on {wide} threads (Service:LoneRunThreads {wide}: a second ONNX Runtime session of the model, taken by a run that starts while no other is in flight) " +
+                $"against the service as set above, {rounds} alternating rounds, median frames/s (min–max) and median p50:");
+            Console.WriteLine();
+            Console.WriteLine("| clients | as set above | with the lone-run session | lone / as set |");
+            Console.WriteLine("|---|---|---|---|");
+            foreach (int c in counts)
+            {
+                var d = fps[(c, false)];
+                var l = fps[(c, true)];
+                double md = Measure.Median(d), ml = Measure.Median(l);
+                double spread = Math.Max(d.Max() - d.Min(), l.Max() - l.Min()) / 2;
+                result.Add((c, md, ml, spread));
+                Console.WriteLine($"| {c} | {md:0.0} ({d.Min():0.0}–{d.Max():0.0}), p50 {Measure.Median(p50[(c, false)]):0} ms | {ml:0.0} ({l.Min():0.0}–{l.Max():0.0}), p50 {Measure.Median(p50[(c, true)]):0} ms | {ml / md:0.00} |");
+            }
+            Console.WriteLine();
+            Console.WriteLine($"Resident memory added by the second service (its two sessions, their arenas, its pools) and its rounds: {added / 1e6:0} MB.");
+        }
+        finally
+        {
+            app.StopAsync().GetAwaiter().GetResult();
+            ((IDisposable)app).Dispose();
+        }
+        return result;
     }
 
     private static double SinkP50(HttpClient http, byte[][] frames)
