@@ -23,19 +23,7 @@ public static class DecodeBench
         void Now() { using var f = decoder.Decode(png); }
         double identify = Measure.MedianMs(runs, () => Image.Identify(png));
         double skia = Measure.MedianMs(runs, () => { using var i = PngFastDecoder.TryDecode(png, Configuration.Default); });
-        for (int i = 0; i < 3; i++) { Before(); Now(); }
-        var before = new List<double>();
-        var now = new List<double>();
-        for (int i = 0; i < Math.Max(runs, 15); i++)
-        {
-            long t = Stopwatch.GetTimestamp();
-            Before();
-            before.Add(Stopwatch.GetElapsedTime(t).TotalMilliseconds);
-            t = Stopwatch.GetTimestamp();
-            Now();
-            now.Add(Stopwatch.GetElapsedTime(t).TotalMilliseconds);
-        }
-        double b = Measure.Median(before), n = Measure.Median(now);
+        var (b, n) = Alternate(runs, Before, Now);
         Console.WriteLine();
         Console.WriteLine($"| decode, 1024×512 PNG ({png.Length / 1e3:0} KB) to RGB | median ms |");
         Console.WriteLine("|---|---|");

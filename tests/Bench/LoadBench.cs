@@ -205,22 +205,7 @@ public static class LoadBench
         int threads = intraOp ?? CpuBudget.Current.IntraOpThreads;
         int runsAtOnce = networkRuns ?? new ServiceOptions().NetworkRunsAtOnce;
         int slots = framesAtOnce ?? new ServiceOptions().MaxConcurrentFrames;
-        int port = ServiceBench.FreePort();
-        var app = ServiceHost.Build(new ServiceHostSettings
-        {
-            ModelsRoot = models,
-            DataRoot = Path.Combine(Path.GetDirectoryName(models)!, "data"),
-            Urls = [$"http://127.0.0.1:{port}"],
-            ConsoleLog = false,
-            Configuration = new Dictionary<string, string?>
-            {
-                ["Service:MaxQueuedFrames"] = "64",
-                ["Service:MaxConcurrentFrames"] = slots.ToString(),
-                ["Service:OnnxMemoryPattern"] = memoryPattern ? "true" : "false",
-                ["Service:NetworkRunsAtOnce"] = runsAtOnce.ToString(),
-                ["Service:IntraOpThreads"] = threads.ToString(),
-            },
-        });
+        var (app, port) = BuildService(models, "data", slots, threads, memoryPattern, runsAtOnce, loneThreads: 0);
         // The load clients' own cost: the same multipart bodies to an endpoint that only drains them and answers
         // with as many JSON bytes as the frames endpoint does (both ends of loopback HTTP included).
         byte[] sinkAnswer = [];
@@ -440,23 +425,7 @@ public static class LoadBench
         var result = new List<(int, double, double, double)>();
         if (wide <= threads) return result;
         long before = Resident();
-        int port = ServiceBench.FreePort();
-        var app = ServiceHost.Build(new ServiceHostSettings
-        {
-            ModelsRoot = models,
-            DataRoot = Path.Combine(Path.GetDirectoryName(models)!, "data-lone"),
-            Urls = [$"http://127.0.0.1:{port}"],
-            ConsoleLog = false,
-            Configuration = new Dictionary<string, string?>
-            {
-                ["Service:MaxQueuedFrames"] = "64",
-                ["Service:MaxConcurrentFrames"] = slots.ToString(),
-                ["Service:OnnxMemoryPattern"] = memoryPattern ? "true" : "false",
-                ["Service:NetworkRunsAtOnce"] = runsAtOnce.ToString(),
-                ["Service:IntraOpThreads"] = threads.ToString(),
-                ["Service:LoneRunThreads"] = wide.ToString(),
-            },
-        });
+        var (app, port) = BuildService(models, "data-lone", slots, threads, memoryPattern, runsAtOnce, wide);
         app.StartAsync().GetAwaiter().GetResult();
         try
         {
@@ -504,6 +473,30 @@ public static class LoadBench
         return result;
     }
 
+    /// <summary>A service on a free loopback port with the load suite's settings (not started).</summary>
+    private static (Microsoft.AspNetCore.Builder.WebApplication App, int Port) BuildService(string models, string data, int slots, int threads,
+        bool memoryPattern, int runsAtOnce, int loneThreads)
+    {
+        int port = ServiceBench.FreePort();
+        var app = ServiceHost.Build(new ServiceHostSettings
+        {
+            ModelsRoot = models,
+            DataRoot = Path.Combine(Path.GetDirectoryName(models)!, data),
+            Urls = [$"http://127.0.0.1:{port}"],
+            ConsoleLog = false,
+            Configuration = new Dictionary<string, string?>
+            {
+                ["Service:MaxQueuedFrames"] = "64",
+                ["Service:MaxConcurrentFrames"] = slots.ToString(),
+                ["Service:OnnxMemoryPattern"] = memoryPattern ? "true" : "false",
+                ["Service:NetworkRunsAtOnce"] = runsAtOnce.ToString(),
+                ["Service:IntraOpThreads"] = threads.ToString(),
+                ["Service:LoneRunThreads"] = loneThreads.ToString(),
+            },
+        });
+        return (app, port);
+    }
+
     private static double SinkP50(HttpClient http, byte[][] frames)
     {
         var (lat, _, _) = ServiceBench.ClientLatencies(http, frames, 1, 24, "/bench/sink");
@@ -513,12 +506,7 @@ public static class LoadBench
     /// <summary>The frames endpoint's JSON answer for one frame, for the sink to answer as many bytes.</summary>
     private static string AnswerJson(HttpClient http, byte[] png)
     {
-        using var form = new MultipartFormDataContent();
-        var part = new ByteArrayContent(png);
-        part.Headers.ContentType = new("image/png");
-        form.Add(part, "frame", "frame.png");
-        form.Add(new StringContent("none"), "artifacts");
-        using var response = http.PostAsync(ServiceBench.FramesPath, form).GetAwaiter().GetResult();
+        using var response = ServiceBench.PostForAnswer(http, png);
         return response.Content.ReadAsStringAsync().GetAwaiter().GetResult();
     }
 

@@ -121,13 +121,19 @@ public static class ServiceBench
 
     internal static HttpStatusCode Post(HttpClient http, byte[] png, string path = FramesPath)
     {
+        using var response = PostForAnswer(http, png, path);
+        return response.StatusCode;
+    }
+
+    /// <summary>One frame as the load clients send it (PNG part, no artifacts); the caller disposes the answer.</summary>
+    internal static HttpResponseMessage PostForAnswer(HttpClient http, byte[] png, string path = FramesPath)
+    {
         using var form = new MultipartFormDataContent();
         var part = new ByteArrayContent(png);
         part.Headers.ContentType = new("image/png");
         form.Add(part, "frame", "frame.png");
         form.Add(new StringContent("none"), "artifacts");
-        using var response = http.PostAsync(path, form).GetAwaiter().GetResult();
-        return response.StatusCode;
+        return http.PostAsync(path, form).GetAwaiter().GetResult();
     }
 
 
