@@ -18,6 +18,8 @@ public sealed record ParallelSettings
     public bool MemoryPattern { get; init; }
     /// <summary>Inferences per session at once (<see cref="ModelRuntimeOptions.RunsAtOnce"/>; 0: no limit).</summary>
     public int NetworkRunsAtOnce { get; init; }
+    /// <summary>Threads of a network run that starts alone (<see cref="ModelRuntimeOptions.LoneRunThreads"/>; 0: none).</summary>
+    public int LoneRunThreads { get; init; }
 
     public static ParallelSettings Default { get; } = new();
 
@@ -38,5 +40,5 @@ public sealed record ParallelSettings
         };
     }
 
-    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern, RunsAtOnce = NetworkRunsAtOnce };
+    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern, RunsAtOnce = NetworkRunsAtOnce, LoneRunThreads = LoneRunThreads };
 }

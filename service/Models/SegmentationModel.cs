@@ -9,7 +9,8 @@ namespace Strayspot.Service.Models;
 
 /// <summary>
 /// A user's segmentation model on the CPU: one ONNX Runtime session for the process lifetime, shared by all threads
-/// (the session's Run is thread-safe). Outputs are always read as channel-first, [1,C,h,w] or [C,h,w];
+/// (the session's Run is thread-safe), and optionally a second one of the same weights on more threads for runs that
+/// start alone (<see cref="ModelRuntimeOptions.LoneRunThreads"/>). Outputs are always read as channel-first, [1,C,h,w] or [C,h,w];
 /// a channels-last output is refused with a hint.
 /// </summary>
 public sealed class SegmentationModel : IDisposable
@@ -17,6 +18,9 @@ public sealed class SegmentationModel : IDisposable
     public const string ModelFileName = "model.onnx";
 
     private readonly InferenceSession _session;
+    /// <summary>The same weights on more threads, for a run that starts while no other is in flight; null when not configured.</summary>
+    private InferenceSession? _lone;
+    private int _inFlight;
     private readonly string[] _inputNames;
     private readonly string[] _outputNames;
     // Never terminated, so sharing it across threads is safe; callers who cancel pass their own.
@@ -39,9 +43,14 @@ public sealed class SegmentationModel : IDisposable
         LiveByPath.AddOrUpdate(Path.GetFullPath(modelPath), 1, (_, n) => n + 1);
     }
 
-    /// <summary>ONNX Runtime sessions of the model file at <paramref name="modelPath"/> alive in this process now.</summary>
+    /// <summary>
+    /// Models loaded from the file at <paramref name="modelPath"/> alive in this process now (each holds
+    /// <see cref="OnnxSessions"/> ONNX Runtime sessions of it).
+    /// </summary>
     public static int LiveSessions(string modelPath) => LiveByPath.GetValueOrDefault(Path.GetFullPath(modelPath));
 
+    /// <summary>ONNX Runtime sessions this model holds: 1, or 2 with a lone-run session.</summary>
+    public int OnnxSessions => _lone is null ? 1 : 2;
     public ModelDescriptor Descriptor { get; }
     public string ModelPath { get; }
     /// <summary>Lower-case hex SHA-256 of model.onnx: ties calibrations and results to the exact weights.</summary>
@@ -92,29 +101,12 @@ public sealed class SegmentationModel : IDisposable
         var facts = OnnxGraphFacts.Parse(bytes, modelPath);
         facts.EnsureExternalDataInside(Path.GetDirectoryName(Path.GetFullPath(modelPath))!, modelPath);
 
-        using var so = new SessionOptions
-        {
-            IntraOpNumThreads = options.IntraOpThreads,
-            InterOpNumThreads = 1,
-            GraphOptimizationLevel = options.OptimizationLevel,
-            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
-            EnableMemoryPattern = options.MemoryPattern,
-        };
-        so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
-        InferenceSession session;
-        try
-        {
-            // From the path, so external data resolves against the model's own folder.
-            session = new InferenceSession(modelPath, so);
-        }
-        catch (OnnxRuntimeException e)
-        {
-            throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
-        }
+        InferenceSession session = OpenSession(modelPath, options, options.IntraOpThreads);
         var model = new SegmentationModel(session, descriptor, modelPath, sha, facts);
         if (options.RunsAtOnce > 0) model._runs = new SemaphoreSlim(options.RunsAtOnce, options.RunsAtOnce);
         try
         {
+            if (options.LoneRunThreads > options.IntraOpThreads) model._lone = OpenSession(modelPath, options, options.LoneRunThreads);
             model.CheckSignature();
             if (options.WarmUp) model.WarmUpRun();
         }
@@ -125,6 +117,28 @@ public sealed class SegmentationModel : IDisposable
         }
         model.LoadTime = clock.Elapsed;
         return model;
+    }
+
+    private static InferenceSession OpenSession(string modelPath, ModelRuntimeOptions options, int threads)
+    {
+        using var so = new SessionOptions
+        {
+            IntraOpNumThreads = threads,
+            InterOpNumThreads = 1,
+            GraphOptimizationLevel = options.OptimizationLevel,
+            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            EnableMemoryPattern = options.MemoryPattern,
+        };
+        so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
+        try
+        {
+            // From the path, so external data resolves against the model's own folder.
+            return new InferenceSession(modelPath, so);
+        }
+        catch (OnnxRuntimeException e)
+        {
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
+        }
     }
 
     private void CheckSignature()
@@ -195,7 +209,9 @@ public sealed class SegmentationModel : IDisposable
         }
         long[] shape = Descriptor.Input.Layout == "nhwc" ? [1, h, w, 3] : [1, 3, h, w];
         var data = new float[3 * h * w];
-        using var lease = Run(data, shape);
+        using (Run(data, shape)) { }
+        // The first run took the lone-run session when there is one: the shared one needs its own warm-up.
+        if (_lone is not null) using (Run(data, shape, null, _session)) { }
     }
 
     /// <summary>Runs one prepared frame. Thread-safe. Dispose the lease after reading its view.</summary>
@@ -228,14 +244,19 @@ public sealed class SegmentationModel : IDisposable
             "Export the output as [1,C,h,w] with h along the input's height.");
     }
 
-    public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null)
+    public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null) => Run(data, shape, runOptions, null);
+
+    private LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions, InferenceSession? only)
     {
         using var value = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data, shape);
         IDisposableReadOnlyCollection<OrtValue> outputs;
         _runs?.Wait();
+        // A run that finds no other in flight takes the wider session; one that starts beside it takes the shared one.
+        bool counted = _lone is not null;
+        var session = only ?? (counted && Interlocked.Increment(ref _inFlight) == 1 ? _lone! : _session);
         try
         {
-            outputs = _session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
+            outputs = session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
         }
         catch (OnnxRuntimeException e)
         {
@@ -244,6 +265,7 @@ public sealed class SegmentationModel : IDisposable
         }
         finally
         {
+            if (counted && only is null) Interlocked.Decrement(ref _inFlight);
             _runs?.Release();
         }
         try
@@ -302,6 +324,7 @@ public sealed class SegmentationModel : IDisposable
         if (Interlocked.Exchange(ref _disposed, 1) != 0) return;
         LiveByPath.AddOrUpdate(Path.GetFullPath(ModelPath), 0, (_, n) => n - 1);
         _session.Dispose();
+        _lone?.Dispose();
         _defaultRunOptions.Dispose();
         _runs?.Dispose();
     }
