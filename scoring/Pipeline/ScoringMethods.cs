@@ -48,11 +48,7 @@ public static class ScoringMethods
             (maps, _, score) => maps.Energy.CopyTo(score)),
         new(ScoreMethod.Sml, "sml", [], ReductionOutputs.None, true,
             "standardized max logit with the calibration's class statistics; anomaly score = −SML",
-            (maps, sml, score) =>
-            {
-                sml!.Apply(maps.MaxLogit, maps.ClassIndex, score);
-                TensorPrimitives.Negate(score, score);
-            }),
+            (maps, sml, score) => sml!.ApplyNegated(maps.MaxLogit, maps.ClassIndex, score)),
     ];
 
     private static readonly ScoringMethod?[] ById = Index();

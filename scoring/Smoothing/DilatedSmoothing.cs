@@ -14,6 +14,9 @@ namespace Strayspot.Scoring.Smoothing;
 /// </summary>
 public sealed class DilatedSmoothing
 {
+    /// <summary>Off: 256-bit kernels only (the tests compare both; the bench measures both in one process).</summary>
+    internal static bool WideKernels = true;
+
     private readonly float[] _kernel;
     private readonly int _dilation;
     private readonly int _half;
@@ -88,6 +91,16 @@ public sealed class DilatedSmoothing
         int start = Math.Min(reach, w), end = Math.Max(w - reach, start);
         for (int x = 0; x < start; x++) output[x] = ClampedTap(input, w, x, k, taps, half, dil);
         int xv = start;
+        if (Vector512.IsHardwareAccelerated && WideKernels)
+            for (; xv <= end - 16; xv += 16)
+            {
+                float* p = input + xv;
+                var acc = Vector512.Create(k[half]) * Vector512.Load(p);
+                for (int j = 1; j <= half; j++)
+                    acc = Vector512.FusedMultiplyAdd(Vector512.Create(k[half + j]),
+                        Vector512.Load(p - j * dil) + Vector512.Load(p + j * dil), acc);
+                Vector512.Store(acc, output + xv);
+            }
         for (; xv <= end - 8; xv += 8)
         {
             // The kernel is symmetric: add the mirrored taps first, then one multiply-add per pair.
@@ -118,6 +131,15 @@ public sealed class DilatedSmoothing
         float** rows = stackalloc float*[taps];
         for (int i = 0; i < taps; i++) rows[i] = input + (long)Math.Clamp(y + (i - half) * dil, 0, h - 1) * w;
         int x = 0;
+        if (Vector512.IsHardwareAccelerated && WideKernels)
+            for (; x <= w - 16; x += 16)
+            {
+                var acc = Vector512.Create(k[half]) * Vector512.Load(rows[half] + x);
+                for (int j = 1; j <= half; j++)
+                    acc = Vector512.FusedMultiplyAdd(Vector512.Create(k[half + j]),
+                        Vector512.Load(rows[half - j] + x) + Vector512.Load(rows[half + j] + x), acc);
+                Vector512.Store(acc, output + x);
+            }
         for (; x <= w - 8; x += 8)
         {
             var acc = Vector256.Create(k[half]) * Vector256.Load(rows[half] + x);

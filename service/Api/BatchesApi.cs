@@ -27,6 +27,9 @@ public sealed record BatchFrameList([property: JsonPropertyName("frames")] IRead
 /// <summary>Durable batches: submit a folder or an archive of frames, follow progress, fetch the ranked manifest, cancel.</summary>
 public static class BatchesApi
 {
+    private static readonly string[] ListableStates =
+        [BatchStates.Queued, BatchStates.Running, BatchStates.Done, BatchStates.Cancelled, BatchStates.Failed];
+
     private static readonly JsonSerializerOptions RequestJson = new(JsonSerializerDefaults.Web);
     public const string ArchivePart = "file";
     private static readonly string[] ArchiveFields = ["model", "batchId", "callbackUrl", "artifacts"];
@@ -59,8 +62,13 @@ public static class BatchesApi
             .Accepts<BatchRequest>("application/json", "multipart/form-data")
             .ProducesProblem(400).ProducesProblem(404).ProducesProblem(409).ProducesProblem(413).ProducesProblem(415);
 
-        group.MapGet("", (BatchService batches, string? state, int? limit) =>
-                TypedResults.Ok(new BatchList(batches.Store.List(Math.Clamp(limit ?? 100, 1, 1000), state).Select(BatchView.From).ToList())))
+        group.MapGet("", Results<Ok<BatchList>, ProblemHttpResult> (BatchService batches, string? state, int? limit) =>
+            {
+                // A misspelt state would otherwise list nothing, as if no batch were in it.
+                if (state is not null && !ListableStates.Contains(state))
+                    return ApiProblems.Create(ErrorCodes.ValidationFailed, $"'state' must be one of {string.Join(", ", ListableStates)}; got '{state}'.");
+                return TypedResults.Ok(new BatchList(batches.Store.List(Math.Clamp(limit ?? 100, 1, 1000), state).Select(BatchView.From).ToList()));
+            })
             .WithName("ListBatches")
             .WithSummary("Lists batches, newest first (optional ?state=queued|running|done|cancelled|failed&limit=N).");
 

@@ -59,6 +59,7 @@ public static class ImageFramesApi
         using var lease = sessions.TryBorrow(entry);
         if (lease is null)
             return ApiProblems.Create(ErrorCodes.NotReady, $"Model '{model}' is still loading; retry shortly (GET /readyz tells when).");
+        long uploadStart = System.Diagnostics.Stopwatch.GetTimestamp();
         var (form, problem) = await UploadForm.ReadAsync(request, FramePart, "camera image (PNG, JPEG or WebP)", ScoringForm.FieldsFor(FramePart), ct);
         if (form is null) return problem!;
         var (req, errors) = ScoringForm.Parse(form, entry.Profile.Effective, options.Value.MaxPixels, null, FramePart, "camera image");
@@ -81,9 +82,12 @@ public static class ImageFramesApi
                 await upload.ReadExactlyAsync(bytes.AsMemory(0, length), ct);
             (frameId, folder) = req.Artifacts.Count > 0 ? store.CreateFrameFolder() : (ArtifactStore.NewFrameId(), null);
             var writer = new FrameFolderWriter(lease.Version);
+            long queued = System.Diagnostics.Stopwatch.GetTimestamp();
+            metrics.Stage("upload", System.Diagnostics.Stopwatch.GetElapsedTime(uploadStart, queued));
             report = await lane.RunAsync(token =>
             {
                 long t0 = System.Diagnostics.Stopwatch.GetTimestamp();
+                metrics.Stage("wait", System.Diagnostics.Stopwatch.GetElapsedTime(queued, t0));
                 using var frame = decoder.Decode(new MemoryStream(bytes, 0, length, writable: false, publiclyVisible: true), FramePart);
                 metrics.Stage("decode", System.Diagnostics.Stopwatch.GetElapsedTime(t0));
                 return runner.Score(lease, frame, req.Options, (scored, timings) =>

@@ -39,15 +39,16 @@ public static class ModelsApi
     {
         var models = v1.MapGroup("/models").WithTags("Models");
 
-        models.MapGet("", (ModelCatalog catalog) => TypedResults.Ok(new ModelList(catalog.Models.Select(Summarize).ToList())))
+        models.MapGet("", (ModelCatalog catalog, ModelSessions sessions) =>
+                TypedResults.Ok(new ModelList(catalog.Models.Select(e => Summarize(e, sessions)).ToList())))
             .WithName("ListModels")
             .WithSummary("Lists the installed models.")
             .WithDescription("Each subfolder of ModelsRoot holding a descriptor.json is a model named after the folder. " +
                              "Unusable folders are listed with the reason.");
 
-        models.MapGet("/{model}", Results<Ok<ModelDetails>, ProblemHttpResult> (string model, ModelCatalog catalog) =>
+        models.MapGet("/{model}", Results<Ok<ModelDetails>, ProblemHttpResult> (string model, ModelCatalog catalog, ModelSessions sessions) =>
                 catalog.TryGet(model, out var e)
-                    ? TypedResults.Ok(new ModelDetails(e.Name, e.IsUsable, e.Error, e.Descriptor, e.Calibration, e.Profile))
+                    ? TypedResults.Ok(new ModelDetails(e.Name, IsUsable(e, sessions), Error(e, sessions), e.Descriptor, e.Calibration, e.Profile))
                     : ApiProblems.ModelNotFound(model))
             .WithName("GetModel")
             .WithSummary("Describes one model: descriptor, class statistics summary and scoring profile.")
@@ -80,7 +81,7 @@ public static class ModelsApi
             {
                 catalog.Reload();
                 sessions.Sync();
-                return TypedResults.Ok(new ModelList(catalog.Models.Select(Summarize).ToList()));
+                return TypedResults.Ok(new ModelList(catalog.Models.Select(e => Summarize(e, sessions)).ToList()));
             })
             .RequireAuthorization(ApiPolicies.Admin)
             .WithName("ReloadModels")
@@ -119,11 +120,19 @@ public static class ModelsApi
         return TypedResults.Ok(catalog.TryGet(model, out var updated) ? updated.Profile : profile.Normalized());
     }
 
-    private static ModelSummary Summarize(CatalogEntry e) => new(
+    // A folder whose files read well can still fail when ONNX Runtime loads or warms the network: that is unusable too.
+    private static string? LoadError(CatalogEntry e, ModelSessions sessions) =>
+        e.IsUsable && e.Version is { } v ? sessions.Registry.LoadError(v) : null;
+
+    private static bool IsUsable(CatalogEntry e, ModelSessions sessions) => e.IsUsable && LoadError(e, sessions) is null;
+
+    private static string? Error(CatalogEntry e, ModelSessions sessions) => e.Error ?? LoadError(e, sessions);
+
+    private static ModelSummary Summarize(CatalogEntry e, ModelSessions sessions) => new(
         e.Name,
         e.Descriptor?.Description,
-        e.IsUsable,
-        e.Error,
+        IsUsable(e, sessions),
+        Error(e, sessions),
         e.Descriptor?.Classes.Count ?? 0,
         e.Statistics is not null,
         e.Profile.Version,

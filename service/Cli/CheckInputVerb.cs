@@ -30,7 +30,7 @@ public static class CheckInputVerb
             int n = p.GetValue(count);
             if (n < 1) throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options, $"--frames must be at least 1; got {n}.");
             var files = ScoreVerb.ExpandFrames(p.GetValue(frames)!).Select(f => f.Path!).ToList();
-            var runtime = new ModelRuntimeOptions { IntraOpThreads = p.GetValue(threads) ?? Math.Max(1, Environment.ProcessorCount), WarmUp = false };
+            var runtime = new ModelRuntimeOptions { IntraOpThreads = Inference.ParallelSettings.FromThreads(p.GetValue(threads)).IntraOpThreads, WarmUp = false };
             using var segmentation = SegmentationModel.LoadFolder(p.GetValue(model)!.FullName, runtime);
             var decoder = new FrameDecoder();
             var chosen = Spread(files, n);

@@ -35,19 +35,26 @@ public sealed class RecordingOptionsBinding
     {
         if (p.GetValue(Every) is not null && p.GetValue(PerSecond) is not null)
             throw new Models.ModelException(RecordingErrorCodes.RecordingFormat, "Choose one of --every and --per-second.");
+        if (p.GetValue(Every) is < 1) throw Invalid($"--every must be at least 1; got {p.GetValue(Every)}.");
+        if (p.GetValue(PerSecond) is { } ps && !(ps > 0 && double.IsFinite(ps))) throw Invalid($"--per-second must be a positive number; got {ps}.");
+        if (p.GetValue(SequenceRate) is { } sr && !(sr > 0 && double.IsFinite(sr))) throw Invalid($"--sequence-rate must be a positive number; got {sr}.");
         var sampling = p.GetValue(Every) is { } n ? RecordingSampling.Every(n)
             : p.GetValue(PerSecond) is { } r ? RecordingSampling.Rate(r) : RecordingSampling.EveryFrame;
         var o = new RecordingOptions { Sampling = sampling };
         return p.GetValue(SequenceRate) is { } rate ? o with { SequenceFrameRate = rate } : o;
     }
 
+    private static Strayspot.Scoring.Logits.ScoringInputException Invalid(string message) =>
+        new(Strayspot.Scoring.Logits.ScoringErrorCodes.Options, message);
+
     public TrackingSettings Tracking(ParseResult p)
     {
+        if (p.GetValue(MinFrames) is < 1) throw Invalid($"--min-frames must be at least 1; got {p.GetValue(MinFrames)}.");
+        if (p.GetValue(MissedFrames) is < 0) throw Invalid($"--missed-frames must be 0 or more; got {p.GetValue(MissedFrames)}.");
         var t = new TrackingSettings();
         if (p.GetValue(MinFrames) is { } k) t = t with { MinimumFramesSeen = k };
         if (p.GetValue(MissedFrames) is { } m) t = t with { Linking = t.Linking with { MissedFrames = m } };
         t.Linking.Validate();
-        if (t.MinimumFramesSeen < 1) throw new ArgumentOutOfRangeException(nameof(MinFrames), "--min-frames must be at least 1.");
         return t;
     }
 }

@@ -100,6 +100,10 @@ public sealed class FrameDecoder
         stream.Position = start;
         if (format.Name == "JPEG" && memory.TryGetBuffer(out var all))
             EnsureJpegComplete(all.AsSpan((int)start), source);
+        if (format.Name.Equals("WEBP", StringComparison.OrdinalIgnoreCase) && memory.TryGetBuffer(out var webp)
+            && !WebpStructure.IsComplete(webp.AsSpan((int)start)))
+            throw new FrameException(FrameErrorCodes.Corrupt,
+                $"{source} is a truncated or damaged WebP: it holds fewer bytes than its RIFF header or one of its chunks declares.");
         if (format.Name == "PNG" && memory.TryGetBuffer(out var pngBytes))
         {
             Image<Rgb24>? fast;

@@ -1,5 +1,7 @@
 using System.Buffers.Binary;
+using System.Runtime.CompilerServices;
 using System.Runtime.InteropServices;
+using System.Runtime.Intrinsics;
 using SixLabors.ImageSharp;
 using SixLabors.ImageSharp.Advanced;
 using SixLabors.ImageSharp.PixelFormats;
@@ -45,17 +47,7 @@ internal static class PngFastDecoder
                     image = new Image<Rgb24>(configuration, width, height);
                     var source = rgba.AsSpan(0, width * height * 4);
                     for (int y = 0; y < height; y++)
-                    {
-                        var row = MemoryMarshal.AsBytes(image.DangerousGetPixelRowMemory(y).Span);
-                        var from = source.Slice(y * width * 4, width * 4);
-                        // Alpha is dropped, as ImageSharp's decode to Rgb24 does.
-                        for (int x = 0, o = 0; x < from.Length; x += 4, o += 3)
-                        {
-                            row[o] = from[x];
-                            row[o + 1] = from[x + 1];
-                            row[o + 2] = from[x + 2];
-                        }
-                    }
+                        DropAlpha(source.Slice(y * width * 4, width * 4), MemoryMarshal.AsBytes(image.DangerousGetPixelRowMemory(y).Span));
                     var done = image;
                     image = null;
                     return done;
@@ -66,6 +58,30 @@ internal static class PngFastDecoder
                     System.Buffers.ArrayPool<byte>.Shared.Return(rgba);
                 }
             }
+        }
+    }
+
+    // Four RGBA pixels to four RGB pixels in the low 12 bytes (index 0x80: zero).
+    private static readonly Vector128<byte> RgbOfRgba = Vector128.Create((byte)0, 1, 2, 4, 5, 6, 8, 9, 10, 12, 13, 14, 0x80, 0x80, 0x80, 0x80);
+
+    /// <summary>One row of RGBA into RGB: alpha is dropped, as ImageSharp's decode to Rgb24 does.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    internal static void DropAlpha(ReadOnlySpan<byte> rgba, Span<byte> rgb)
+    {
+        int x = 0, o = 0;
+        if (Vector128.IsHardwareAccelerated)
+        {
+            ref byte from = ref MemoryMarshal.GetReference(rgba);
+            ref byte to = ref MemoryMarshal.GetReference(rgb);
+            // Each store writes 16 bytes of which the next pass overwrites the last 4: stop while 16 still fit.
+            for (; o + 16 <= rgb.Length && x + 16 <= rgba.Length; x += 16, o += 12)
+                Vector128.ShuffleNative(Vector128.LoadUnsafe(ref from, (nuint)x), RgbOfRgba).StoreUnsafe(ref to, (nuint)o);
+        }
+        for (; x + 4 <= rgba.Length; x += 4, o += 3)
+        {
+            rgb[o] = rgba[x];
+            rgb[o + 1] = rgba[x + 1];
+            rgb[o + 2] = rgba[x + 2];
         }
     }
 

@@ -128,7 +128,7 @@ public static class ServiceHost
         {
             var o = sp.GetRequiredService<IOptions<ServiceOptions>>().Value;
             return Inference.ParallelSettings.FromThreads(o.IntraOpThreads > 0 ? o.IntraOpThreads : CpuBudget.Current.IntraOpThreads)
-                with { MemoryPattern = o.OnnxMemoryPattern, NetworkRunsAtOnce = o.NetworkRunsAtOnce };
+                with { MemoryPattern = o.OnnxMemoryPattern, NetworkRunsAtOnce = o.NetworkRunsAtOnce, LoneRunThreads = o.LoneRunThreads };
         });
         services.AddSingleton(sp => new Inference.ModelRegistry(sp.GetRequiredService<Inference.ParallelSettings>()));
         services.AddSingleton<ModelSessions>();

@@ -46,6 +46,11 @@ public sealed class ServiceOptions
     /// the other frames decode, preprocess and score while the network runs.
     /// </summary>
     public int NetworkRunsAtOnce { get; set; }
+    /// <summary>
+    /// Intra-op threads of a network run that starts while no other runs on its model (0: off). Above the intra-op
+    /// threads, each model keeps a second ONNX Runtime session with this many threads for such runs (its own arena).
+    /// </summary>
+    public int LoneRunThreads { get; set; }
     /// <summary>Frames after which a frame's weight in the drift statistics has halved.</summary>
     public double DriftHalfLifeFrames { get; set; } = 500;
     /// <summary>Overall drift, in calibrated standard deviations, that raises the drift warning (our default; tune per fleet).</summary>
@@ -84,6 +89,7 @@ public sealed class ServiceOptionsValidator(ListenAddresses listen) : IValidateO
         Check(o.MaxQueuedFrames is >= 0 and <= 100_000, $"Service:MaxQueuedFrames must be 0..100000; got {o.MaxQueuedFrames}.");
         Check(o.RequestTimeout > TimeSpan.Zero, $"Service:RequestTimeout must be positive; got {o.RequestTimeout}.");
         Check(o.NetworkRunsAtOnce is >= 0 and <= 1024, $"Service:NetworkRunsAtOnce must be 0..1024; got {o.NetworkRunsAtOnce}.");
+        Check(o.LoneRunThreads is >= 0 and <= 1024, $"Service:LoneRunThreads must be 0..1024; got {o.LoneRunThreads}.");
         Check(o.IntraOpThreads is >= 0 and <= 1024, $"Service:IntraOpThreads must be 0..1024; got {o.IntraOpThreads}.");
 
         for (int i = 0; i < o.ApiKeys.Count; i++)

@@ -18,14 +18,21 @@ public sealed record ParallelSettings
     public bool MemoryPattern { get; init; }
     /// <summary>Inferences per session at once (<see cref="ModelRuntimeOptions.RunsAtOnce"/>; 0: no limit).</summary>
     public int NetworkRunsAtOnce { get; init; }
+    /// <summary>Threads of a network run that starts alone (<see cref="ModelRuntimeOptions.LoneRunThreads"/>; 0: none).</summary>
+    public int LoneRunThreads { get; init; }
 
     public static ParallelSettings Default { get; } = new();
+
+    /// <summary>The most intra-op threads asked for, as Service:IntraOpThreads allows.</summary>
+    public const int MaxThreads = 1024;
 
     /// <summary>A configured thread count where 0 (or null) means every core.</summary>
     public static ParallelSettings FromThreads(int? threads, bool warmUp = true)
     {
-        if (threads is < 0)
-            throw new ArgumentOutOfRangeException(nameof(threads), $"Thread count must be 0 (every core) or more; got {threads}.");
+        // Refused with a code (the command line's exit 2): ten thousand threads would only stall the start.
+        if (threads is < 0 or > MaxThreads)
+            throw new Strayspot.Scoring.Logits.ScoringInputException(Strayspot.Scoring.Logits.ScoringErrorCodes.Options,
+                $"--threads must be 0 (every core) to {MaxThreads}; got {threads}.");
         return new ParallelSettings
         {
             IntraOpThreads = threads is > 0 ? threads.Value : Environment.ProcessorCount,
@@ -33,5 +40,5 @@ public sealed record ParallelSettings
         };
     }
 
-    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern, RunsAtOnce = NetworkRunsAtOnce };
+    public ModelRuntimeOptions Runtime() => new() { IntraOpThreads = IntraOpThreads, WarmUp = WarmUp, MemoryPattern = MemoryPattern, RunsAtOnce = NetworkRunsAtOnce, LoneRunThreads = LoneRunThreads };
 }

@@ -40,6 +40,15 @@ public sealed record InputDescriptor
 
 public sealed record SizePolicy
 {
+    /// <summary>
+    /// Largest network input (height × width) a frame may become: 8192² pixels, 805 MB of float32 planes before the
+    /// network's own activations. Above it a descriptor is refused at load and a frame (a 20000×1 strip under
+    /// <c>resizeSide: shortest</c>) is refused before any tensor is allocated, rather than overflowing.
+    /// </summary>
+    public const long MaxInputPixels = 8192L * 8192;
+    /// <summary>No network's total stride comes near this; a larger multiple only pads frames into huge tensors.</summary>
+    public const int MaxPadMultiple = 1024;
+
     /// <summary>"fixed" (resize to height×width) or "dynamic" (resize to a side length, pad to a multiple).</summary>
     [JsonPropertyName("mode")] public string Mode { get; init; } = "fixed";
     [JsonPropertyName("height")] public int? Height { get; init; }

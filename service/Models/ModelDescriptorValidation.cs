@@ -125,17 +125,22 @@ public sealed partial record ModelDescriptor
         var s = input.Size;
         if (s is null) { p.Add("input.size: missing."); return; }
         if (s.PadMultiple < 1) p.Add($"input.size.padMultiple: {s.PadMultiple} must be at least 1.");
+        else if (s.PadMultiple > SizePolicy.MaxPadMultiple) p.Add($"input.size.padMultiple: {s.PadMultiple} is above {SizePolicy.MaxPadMultiple}; use the network's total stride.");
         switch (s.Mode)
         {
             case "fixed":
                 if (s.Height is not > 0) p.Add($"input.size.height: fixed mode needs a height > 0; got {s.Height?.ToString(CultureInfo.InvariantCulture) ?? "none"}.");
                 if (s.Width is not > 0) p.Add($"input.size.width: fixed mode needs a width > 0; got {s.Width?.ToString(CultureInfo.InvariantCulture) ?? "none"}.");
+                if (s.Height is > 0 && s.Width is > 0 && (long)s.Height.Value * s.Width.Value > SizePolicy.MaxInputPixels)
+                    p.Add($"input.size: {s.Width}×{s.Height} (width×height) is more than {SizePolicy.MaxInputPixels} pixels, the largest network input taken.");
                 break;
             case "dynamic":
                 if (s.ResizeSide is not null and not ("longest" or "shortest"))
                     p.Add($"input.size.resizeSide: '{s.ResizeSide}' must be 'longest' or 'shortest' (or absent to keep the frame's size).");
                 if (s.ResizeSide is not null && s.SideLength is not > 0)
                     p.Add($"input.size.sideLength: resizeSide '{s.ResizeSide}' needs a sideLength > 0; got {s.SideLength?.ToString(CultureInfo.InvariantCulture) ?? "none"}.");
+                if (s.SideLength is > 0 && (long)s.SideLength.Value * s.SideLength.Value > SizePolicy.MaxInputPixels)
+                    p.Add($"input.size.sideLength: {s.SideLength} is above {(int)Math.Sqrt(SizePolicy.MaxInputPixels)}, the side of the largest network input taken.");
                 break;
             default:
                 p.Add($"input.size.mode: '{s.Mode}' must be 'fixed' or 'dynamic'.");

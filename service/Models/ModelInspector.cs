@@ -22,6 +22,9 @@ public static class ModelInspector
 {
     public static ModelFacts Inspect(string modelPath)
     {
+        if (Directory.Exists(modelPath))
+            throw new ModelException(ModelErrorCodes.ModelInvalid,
+                $"'{modelPath}' is a folder; inspect reads the .onnx file itself: {Path.Combine(modelPath, SegmentationModel.ModelFileName)}");
         if (!File.Exists(modelPath))
             throw new ModelException(ModelErrorCodes.ModelInvalid, $"Model file '{modelPath}' does not exist.");
         byte[] bytes = File.ReadAllBytes(modelPath);

@@ -22,4 +22,11 @@ public sealed record ModelRuntimeOptions
     /// preprocess and score while the network runs, and the arena grows for this many runs only.
     /// </summary>
     public int RunsAtOnce { get; init; }
+    /// <summary>
+    /// Intra-op threads for an inference that starts while no other runs on this model (0: no such session). Above
+    /// <see cref="IntraOpThreads"/>, the model keeps a second session of the same weights with this many threads, so a
+    /// lone frame's network uses the cores that several frames in flight would otherwise share; it costs that
+    /// session's arena.
+    /// </summary>
+    public int LoneRunThreads { get; init; }
 }

@@ -9,7 +9,8 @@ namespace Strayspot.Service.Models;
 
 /// <summary>
 /// A user's segmentation model on the CPU: one ONNX Runtime session for the process lifetime, shared by all threads
-/// (the session's Run is thread-safe). Outputs are always read as channel-first, [1,C,h,w] or [C,h,w];
+/// (the session's Run is thread-safe), and optionally a second one of the same weights on more threads for runs that
+/// start alone (<see cref="ModelRuntimeOptions.LoneRunThreads"/>). Outputs are always read as channel-first, [1,C,h,w] or [C,h,w];
 /// a channels-last output is refused with a hint.
 /// </summary>
 public sealed class SegmentationModel : IDisposable
@@ -17,6 +18,9 @@ public sealed class SegmentationModel : IDisposable
     public const string ModelFileName = "model.onnx";
 
     private readonly InferenceSession _session;
+    /// <summary>The same weights on more threads, for a run that starts while no other is in flight; null when not configured.</summary>
+    private InferenceSession? _lone;
+    private int _inFlight;
     private readonly string[] _inputNames;
     private readonly string[] _outputNames;
     // Never terminated, so sharing it across threads is safe; callers who cancel pass their own.
@@ -39,9 +43,14 @@ public sealed class SegmentationModel : IDisposable
         LiveByPath.AddOrUpdate(Path.GetFullPath(modelPath), 1, (_, n) => n + 1);
     }
 
-    /// <summary>ONNX Runtime sessions of the model file at <paramref name="modelPath"/> alive in this process now.</summary>
+    /// <summary>
+    /// Models loaded from the file at <paramref name="modelPath"/> alive in this process now (each holds
+    /// <see cref="OnnxSessions"/> ONNX Runtime sessions of it).
+    /// </summary>
     public static int LiveSessions(string modelPath) => LiveByPath.GetValueOrDefault(Path.GetFullPath(modelPath));
 
+    /// <summary>ONNX Runtime sessions this model holds: 1, or 2 with a lone-run session.</summary>
+    public int OnnxSessions => _lone is null ? 1 : 2;
     public ModelDescriptor Descriptor { get; }
     public string ModelPath { get; }
     /// <summary>Lower-case hex SHA-256 of model.onnx: ties calibrations and results to the exact weights.</summary>
@@ -92,29 +101,12 @@ public sealed class SegmentationModel : IDisposable
         var facts = OnnxGraphFacts.Parse(bytes, modelPath);
         facts.EnsureExternalDataInside(Path.GetDirectoryName(Path.GetFullPath(modelPath))!, modelPath);
 
-        using var so = new SessionOptions
-        {
-            IntraOpNumThreads = options.IntraOpThreads,
-            InterOpNumThreads = 1,
-            GraphOptimizationLevel = options.OptimizationLevel,
-            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
-            EnableMemoryPattern = options.MemoryPattern,
-        };
-        so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
-        InferenceSession session;
-        try
-        {
-            // From the path, so external data resolves against the model's own folder.
-            session = new InferenceSession(modelPath, so);
-        }
-        catch (OnnxRuntimeException e)
-        {
-            throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
-        }
+        InferenceSession session = OpenSession(modelPath, options, options.IntraOpThreads);
         var model = new SegmentationModel(session, descriptor, modelPath, sha, facts);
         if (options.RunsAtOnce > 0) model._runs = new SemaphoreSlim(options.RunsAtOnce, options.RunsAtOnce);
         try
         {
+            if (options.LoneRunThreads > options.IntraOpThreads) model._lone = OpenSession(modelPath, options, options.LoneRunThreads);
             model.CheckSignature();
             if (options.WarmUp) model.WarmUpRun();
         }
@@ -125,6 +117,28 @@ public sealed class SegmentationModel : IDisposable
         }
         model.LoadTime = clock.Elapsed;
         return model;
+    }
+
+    private static InferenceSession OpenSession(string modelPath, ModelRuntimeOptions options, int threads)
+    {
+        using var so = new SessionOptions
+        {
+            IntraOpNumThreads = threads,
+            InterOpNumThreads = 1,
+            GraphOptimizationLevel = options.OptimizationLevel,
+            ExecutionMode = ExecutionMode.ORT_SEQUENTIAL,
+            EnableMemoryPattern = options.MemoryPattern,
+        };
+        so.AddSessionConfigEntry("session.intra_op.allow_spinning", options.AllowSpinning ? "1" : "0");
+        try
+        {
+            // From the path, so external data resolves against the model's own folder.
+            return new InferenceSession(modelPath, so);
+        }
+        catch (OnnxRuntimeException e)
+        {
+            throw new ModelException(ModelErrorCodes.ModelInvalid, $"ONNX Runtime cannot load '{modelPath}': {e.Message}", e);
+        }
     }
 
     private void CheckSignature()
@@ -195,20 +209,54 @@ public sealed class SegmentationModel : IDisposable
         }
         long[] shape = Descriptor.Input.Layout == "nhwc" ? [1, h, w, 3] : [1, 3, h, w];
         var data = new float[3 * h * w];
-        using var lease = Run(data, shape);
+        using (Run(data, shape)) { }
+        // The first run took the lone-run session when there is one: the shared one needs its own warm-up.
+        if (_lone is not null) using (Run(data, shape, null, _session)) { }
     }
 
     /// <summary>Runs one prepared frame. Thread-safe. Dispose the lease after reading its view.</summary>
-    public LogitsLease Run(PreparedInput input, RunOptions? runOptions = null) => Run(input.Data, input.Shape, runOptions);
+    public LogitsLease Run(PreparedInput input, RunOptions? runOptions = null)
+    {
+        var lease = Run(input.Data, input.Shape, runOptions);
+        try
+        {
+            EnsureOutputFitsInput(lease.View, input.Box);
+            return lease;
+        }
+        catch
+        {
+            lease.Dispose();
+            throw;
+        }
+    }
 
-    public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null)
+    /// <summary>
+    /// An output whose height and width are the input's swapped (a transpose left in the export) would be stretched
+    /// onto the frame without a word; refused. Only the swap is refused: an output resized inside the graph to a
+    /// size of its own still maps onto the whole input.
+    /// </summary>
+    private void EnsureOutputFitsInput(Strayspot.Scoring.Logits.LogitsView output, ContentBox box)
+    {
+        int h = output.Height, w = output.Width, ih = box.InputHeight, iw = box.InputWidth;
+        if (Strayspot.Scoring.Logits.LogitsAspect.Agrees(h, w, ih, iw) || !Strayspot.Scoring.Logits.LogitsAspect.Agrees(w, h, ih, iw)) return;
+        throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+            $"Output '{Descriptor.Output.Tensor}' is {w} wide × {h} high for an input {iw} wide × {ih} high: its height and width look swapped. " +
+            "Export the output as [1,C,h,w] with h along the input's height.");
+    }
+
+    public LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions = null) => Run(data, shape, runOptions, null);
+
+    private LogitsLease Run(Memory<float> data, long[] shape, RunOptions? runOptions, InferenceSession? only)
     {
         using var value = OrtValue.CreateTensorValueFromMemory(OrtMemoryInfo.DefaultInstance, data, shape);
         IDisposableReadOnlyCollection<OrtValue> outputs;
         _runs?.Wait();
+        // A run that finds no other in flight takes the wider session; one that starts beside it takes the shared one.
+        bool counted = _lone is not null;
+        var session = only ?? (counted && Interlocked.Increment(ref _inFlight) == 1 ? _lone! : _session);
         try
         {
-            outputs = _session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
+            outputs = session.Run(runOptions ?? _defaultRunOptions, _inputNames, [value], _outputNames);
         }
         catch (OnnxRuntimeException e)
         {
@@ -217,6 +265,7 @@ public sealed class SegmentationModel : IDisposable
         }
         finally
         {
+            if (counted && only is null) Interlocked.Decrement(ref _inFlight);
             _runs?.Release();
         }
         try
@@ -233,6 +282,8 @@ public sealed class SegmentationModel : IDisposable
             var lease = new LogitsLease(outputs, output, outShape);
             if (OutputsProbabilities)
                 lease.ConvertProbabilitiesToLogs();
+            else
+                EnsureNotProbabilities(lease.View);
             return lease;
         }
         catch
@@ -242,11 +293,38 @@ public sealed class SegmentationModel : IDisposable
         }
     }
 
+    /// <summary>
+    /// An output declared logits whose sampled pixels all hold values in [0, 1] summing to 1 is a softmax: max logit,
+    /// energy and SML on it would score silently on the wrong scale. One class is left alone (its softmax is all 1).
+    /// </summary>
+    private void EnsureNotProbabilities(Strayspot.Scoring.Logits.LogitsView view)
+    {
+        int channels = view.Channels, plane = view.PlaneLength;
+        if (channels < 2 || plane < 1) return;
+        var data = view.Data.Span;
+        int step = Math.Max(1, plane / Strayspot.Scoring.Reduction.LogProbabilities.CheckedPixels);
+        for (int i = 0; i < plane; i += step)
+        {
+            double sum = 0;
+            for (int c = 0; c < channels; c++)
+            {
+                float v = data[c * plane + i];
+                if (!(v >= 0f && v <= 1f)) return;
+                sum += v;
+            }
+            if (Math.Abs(sum - 1) > Strayspot.Scoring.Reduction.LogProbabilities.SumTolerance) return;
+        }
+        throw new ModelException(ModelErrorCodes.ModelOutputMismatch,
+            $"output.kind is 'logits', but output '{Descriptor.Output.Tensor}' holds values between 0 and 1 whose classes sum to 1 at every pixel looked at: " +
+            "these are probabilities (the graph ends in a softmax). Set output.kind to 'probabilities' in descriptor.json, or export the model without its final Softmax.");
+    }
+
     public void Dispose()
     {
         if (Interlocked.Exchange(ref _disposed, 1) != 0) return;
         LiveByPath.AddOrUpdate(Path.GetFullPath(ModelPath), 0, (_, n) => n - 1);
         _session.Dispose();
+        _lone?.Dispose();
         _defaultRunOptions.Dispose();
         _runs?.Dispose();
     }

@@ -148,6 +148,9 @@ public sealed partial class VideoRecording : IRecording
 
         public long Decoded { get; private set; }
         public bool Damaged { get; private set; }
+        // The size summary ffmpeg prints last would stand in for the complaint otherwise.
+        private string? _firstDamage;
+
 
         public void Read(StreamReader reader)
         {
@@ -160,7 +163,11 @@ public sealed partial class VideoRecording : IRecording
                     {
                         if (line.Contains("Parsed_showinfo", StringComparison.Ordinal)) continue;
                         if (line.Contains("rror", StringComparison.Ordinal) || line.Contains("nvalid", StringComparison.Ordinal)
-                            || line.Contains("runcat", StringComparison.Ordinal)) Damaged = true;
+                            || line.Contains("runcat", StringComparison.Ordinal))
+                        {
+                            Damaged = true;
+                            _firstDamage ??= line;
+                        }
                         _other.Enqueue(line);
                         if (_other.Count > 8) _other.Dequeue();
                         continue;
@@ -199,8 +206,10 @@ public sealed partial class VideoRecording : IRecording
             return false;
         }
 
+        /// <summary>The first line that named damage, else the last line ffmpeg wrote (often only "Conversion failed!").</summary>
         public string LastComplaint(string path, string name) =>
-            _other.Count == 0 ? "the decoder gave no reason." : VideoHeader.LastLine(string.Join('\n', _other), path, name);
+            _firstDamage is not null ? VideoHeader.LastLine(_firstDamage, path, name)
+            : _other.Count == 0 ? "the decoder gave no reason." : VideoHeader.LastLine(string.Join('\n', _other), path, name);
 
         [GeneratedRegex(@"Parsed_showinfo_(?<log>\d+) @ [^\]]*\] n: *(?<n>\d+) pts: *(?<pts>-?\d+) pts_time:(?<t>[-0-9.eE+]+)")]
         private static partial Regex ShowInfo();

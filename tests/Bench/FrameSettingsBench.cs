@@ -15,7 +15,7 @@ namespace Strayspot.Bench;
 /// </summary>
 public static class FrameSettingsBench
 {
-    private sealed record Setting(string Name, int Frames, int Threads, int NetworkRuns);
+    private sealed record Setting(string Name, int Frames, int Threads, int NetworkRuns, int LoneThreads = 0);
 
     public static void Run(int runs)
     {
@@ -32,6 +32,7 @@ public static class FrameSettingsBench
                 new($"1 frame in flight, {cores} intra-op threads", 1, cores, 0),
                 new($"2 frames in flight, {Math.Max(1, cores / 2)} intra-op thread(s) each", 2, Math.Max(1, cores / 2), 0),
                 new($"2 frames in flight, {cores} intra-op threads, 1 network run at once", 2, cores, 1),
+                new($"2 frames in flight, {Math.Max(1, cores / 2)} intra-op thread(s) each, a lone network run on {cores}", 2, Math.Max(1, cores / 2), 0, cores),
             };
             foreach (var s in settings)
             {
@@ -48,6 +49,7 @@ public static class FrameSettingsBench
                         ["Service:MaxConcurrentFrames"] = s.Frames.ToString(),
                         ["Service:IntraOpThreads"] = s.Threads.ToString(),
                         ["Service:NetworkRunsAtOnce"] = s.NetworkRuns.ToString(),
+                        ["Service:LoneRunThreads"] = s.LoneThreads.ToString(),
                     },
                 });
                 app.StartAsync().GetAwaiter().GetResult();

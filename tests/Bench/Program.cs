@@ -2,7 +2,7 @@ namespace Strayspot.Bench;
 
 /// <summary>
 /// <c>dotnet run -c Release --project tests/Bench -- [suite] [--runs N]</c>. Prints medians and ratios measured in
-/// one run as a Markdown table. Suites: scoring (default), chain, runtime, decode, cadence, form, frame-settings, service, load, evaluation, review, recordings
+/// one run as a Markdown table. Suites: scoring (default), chain, chain-kernels (256- against 512-bit kernels, CPU time), runtime, decode, cadence, form, frame-settings, service, load, evaluation, review, recordings
 /// (recording-memory: its memory part alone), drive-by (tracking settings on the demo drive-by), all;
 /// issue-tables (chain and load with a goals table, for the README's throughput-and-memory section); replicas (worker processes on
 /// PostgreSQL: started on its own, not by all).
@@ -51,6 +51,7 @@ public static class Program
         {
             case "scoring": ScoringBench.Run(runs); return 0;
             case "chain": PostHocChainBench.Run(runs); return 0;
+            case "chain-kernels": ChainKernelsBench.Run(runs); return 0;
             case "load": LoadBench.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args), IntraOp(args)); return 0;
             case "issue-tables": IssueTables.Run(runs, FramesAtOnce(args), MemoryPattern(args), NetworkRuns(args), IntraOp(args)); return 0;
             case "runtime": RuntimeBench.Run(runs); return 0;
@@ -66,7 +67,7 @@ public static class Program
             case "drive-by": DriveByBench.Run(); return 0;
             case "replicas": ReplicaBench.Run(Math.Min(runs, 5)); return 0;
             case "all": ScoringBench.Run(runs); PostHocChainBench.Run(runs); RuntimeBench.Run(runs); ServiceBench.Run(runs); LoadBench.Run(runs); EvaluationBench.Run(runs); ReviewBench.Run(runs); RecordingBench.Run(runs); return 0;
-            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, runtime, decode, cadence, form, frame-settings, service, load, issue-tables, evaluation, review, recordings, recording-memory, drive-by, replicas, all"); return 2;
+            default: Console.Error.WriteLine($"unknown suite '{suite}'; try: scoring, chain, chain-kernels, runtime, decode, cadence, form, frame-settings, service, load, issue-tables, evaluation, review, recordings, recording-memory, drive-by, replicas, all"); return 2;
         }
     }
 }

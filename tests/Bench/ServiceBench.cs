@@ -79,7 +79,21 @@ public static class ServiceBench
     }
 
     /// <summary>Each client on a thread of its own, so all of them are sending from the first frame on.</summary>
-    internal static (double P50, double P99, double Throughput, int Refused) Clients(HttpClient http, byte[][] frames, int clients, int perClient)
+    internal static (double P50, double P99, double Throughput, int Refused) Clients(HttpClient http, byte[][] frames, int clients, int perClient,
+        string path = FramesPath)
+    {
+        var (latencies, refused, seconds) = ClientLatencies(http, frames, clients, perClient, path);
+        if (latencies.Count == 0) return (double.NaN, double.NaN, 0, refused);
+        latencies.Sort();
+        return (Measure.Median(latencies), Percentile99(latencies), latencies.Count / seconds, refused);
+    }
+
+    /// <summary>The 99th percentile of sorted latencies (nearest rank).</summary>
+    internal static double Percentile99(List<double> sorted) => sorted[Math.Min(sorted.Count - 1, (int)Math.Ceiling(0.99 * sorted.Count) - 1)];
+
+    /// <summary>Latencies of the answered requests (unsorted), refused count and wall seconds of one round of clients.</summary>
+    internal static (List<double> Latencies, int Refused, double Seconds) ClientLatencies(HttpClient http, byte[][] frames, int clients, int perClient,
+        string path = FramesPath)
     {
         var latencies = new List<double>();
         int refused = 0;
@@ -89,7 +103,7 @@ public static class ServiceBench
             for (int k = 0; k < perClient; k++)
             {
                 long t = Stopwatch.GetTimestamp();
-                var status = Post(http, frames[(c + k) % frames.Length]);
+                var status = Post(http, frames[(c + k) % frames.Length], path);
                 double ms = Stopwatch.GetElapsedTime(t).TotalMilliseconds;
                 lock (latencies)
                 {
@@ -100,22 +114,26 @@ public static class ServiceBench
         })).ToList();
         threads.ForEach(t => t.Start());
         threads.ForEach(t => t.Join());
-        double seconds = clock.Elapsed.TotalSeconds;
-        if (latencies.Count == 0) return (double.NaN, double.NaN, 0, refused);
-        latencies.Sort();
-        double p99 = latencies[Math.Min(latencies.Count - 1, (int)Math.Ceiling(0.99 * latencies.Count) - 1)];
-        return (Measure.Median(latencies), p99, latencies.Count / seconds, refused);
+        return (latencies, refused, clock.Elapsed.TotalSeconds);
     }
 
-    internal static HttpStatusCode Post(HttpClient http, byte[] png)
+    internal const string FramesPath = "/v1/models/demo/frames";
+
+    internal static HttpStatusCode Post(HttpClient http, byte[] png, string path = FramesPath)
+    {
+        using var response = PostForAnswer(http, png, path);
+        return response.StatusCode;
+    }
+
+    /// <summary>One frame as the load clients send it (PNG part, no artifacts); the caller disposes the answer.</summary>
+    internal static HttpResponseMessage PostForAnswer(HttpClient http, byte[] png, string path = FramesPath)
     {
         using var form = new MultipartFormDataContent();
         var part = new ByteArrayContent(png);
         part.Headers.ContentType = new("image/png");
         form.Add(part, "frame", "frame.png");
         form.Add(new StringContent("none"), "artifacts");
-        using var response = http.PostAsync("/v1/models/demo/frames", form).GetAwaiter().GetResult();
-        return response.StatusCode;
+        return http.PostAsync(path, form).GetAwaiter().GetResult();
     }
 
 

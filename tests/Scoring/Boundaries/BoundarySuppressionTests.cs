@@ -41,6 +41,34 @@ public class BoundarySuppressionTests
         }
     }
 
+    /// <summary>
+    /// The 512-bit row kernels against the 256-bit ones, to the bit: random class maps (every row dense with
+    /// boundaries) and wide class stripes (rows with few boundary pixels), every size above, default and wide
+    /// options. Both give the same bits, so flipping the switch cannot disturb a test running beside this one.
+    /// </summary>
+    [Theory]
+    [MemberData(nameof(Sizes))]
+    public void Wide_kernels_give_the_same_bits_as_the_narrow_ones(int w, int h)
+    {
+        var rng = new Random(w * 31 + h);
+        foreach (var o in new[] { new BoundarySuppressionOptions(), new BoundarySuppressionOptions { InitialWidth = 7, WidthStep = 2, Iterations = 5 } })
+            foreach (bool stripes in new[] { false, true })
+            {
+                var cls = stripes ? new ushort[w * h] : BoundaryReference.RandomClasses(rng, w, h, 3);
+                if (stripes)
+                    for (int i = 0; i < cls.Length; i++) cls[i] = (ushort)((i % w + 3 * (i / w)) / 37 % 3);
+                var score = RandomScores(rng, w * h);
+                var narrow = (float[])score.Clone();
+                BoundarySuppression.WideKernels = false;
+                try { new BoundarySuppression(o).Apply(narrow, cls, w, h); }
+                finally { BoundarySuppression.WideKernels = true; }
+                new BoundarySuppression(o).Apply(score, cls, w, h);
+                for (int i = 0; i < score.Length; i++)
+                    Assert.True(BitConverter.SingleToInt32Bits(narrow[i]) == BitConverter.SingleToInt32Bits(score[i]),
+                        $"{w}×{h} r0={o.InitialWidth} stripes={stripes} at ({i % w},{i / w}): {narrow[i]} vs {score[i]}");
+            }
+    }
+
     [Fact]
     public void Reused_instance_across_frame_sizes_matches_the_definition()
     {

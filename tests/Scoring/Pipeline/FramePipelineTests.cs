@@ -1,5 +1,6 @@
 using Strayspot.Scoring.Logits;
 using Strayspot.Scoring.Pipeline;
+using Strayspot.Scoring.Reduction;
 using Strayspot.Scoring.Standardization;
 
 namespace Strayspot.Tests.Scoring.Pipeline;
@@ -149,5 +150,50 @@ public class FramePipelineTests
             .Score(new LogitsView(new float[] { 0.5f }, 1, 1, 1), 1, 1);
         Assert.Equal(-0.5f, s.AnomalyScore[0], 5);
         Assert.Empty(s.Regions.Regions);
+    }
+
+    /// <summary>
+    /// Each method's score against its plain formula on the reduced maps (for SML: standardize, then negate, the
+    /// two-step form the one-pass kernel replaces). Bit-equal for every method, on the resized and the frame-sized
+    /// path, with smooth and noisy logits.
+    /// </summary>
+    [Theory]
+    [InlineData(17, 29, 40, 70, 1)]
+    [InlineData(64, 96, 64, 96, 2)]
+    [InlineData(33, 50, 33, 50, 3)]
+    public void Score_is_bit_equal_to_each_methods_formula_on_the_reduced_maps(int h, int w, int fh, int fw, int seed)
+    {
+        const int c = 5;
+        var rng = new Random(seed);
+        var data = new float[c * h * w];
+        for (int i = 0; i < data.Length; i++)
+            data[i] = (seed % 2 == 0 ? (float)Math.Sin(i % w * 0.1 + i / (h * w)) * 4 : 0f) + (float)(3 * rng.NextDouble());
+        var stats = new ClassStatistics(Enumerable.Range(0, c).Select(k => new ClassStatistic($"k{k}", 1000, k - 2.0, 0.5 + k)).ToList(), 100);
+        var sml = new StandardizedMaxLogit(stats);
+        foreach (var method in ScoringMethods.All)
+        {
+            var options = Plain with { Method = method.Id, Threshold = 1e30f };
+            var got = new FramePipeline(options, stats).Score(new LogitsView(data, c, h, w), fh, fw).AnomalyScore.ToArray();
+            var maps = new ReducedMaps();
+            new PixelReduction(method.Outputs).Reduce(new LogitsView(data, c, h, w), fh, fw, maps);
+            var expected = new float[fh * fw];
+            for (int i = 0; i < expected.Length; i++)
+                expected[i] = method.Id switch
+                {
+                    ScoreMethod.Msp => -maps.Msp[i],
+                    ScoreMethod.MaxLogit => -maps.MaxLogit[i],
+                    ScoreMethod.Entropy => maps.Entropy[i],
+                    ScoreMethod.Energy => maps.Energy[i],
+                    _ => 0f,
+                };
+            if (method.Id == ScoreMethod.Sml)
+            {
+                sml.Apply(maps.MaxLogit, maps.ClassIndex, expected);
+                for (int i = 0; i < expected.Length; i++) expected[i] = -expected[i];
+            }
+            for (int i = 0; i < expected.Length; i++)
+                Assert.True(BitConverter.SingleToInt32Bits(expected[i]) == BitConverter.SingleToInt32Bits(got[i]),
+                    $"{method.Name}, pixel {i}: {expected[i]} vs {got[i]}");
+        }
     }
 }

@@ -177,6 +177,62 @@ public class PixelReductionTests
         }
     }
 
+    /// <summary>
+    /// Frame-sized logits (the 512-bit, 256-bit pair and single-block kernels, by row width) against the naive
+    /// oracle: class and max logit exactly equal, with many exact ties (values on a coarse grid) and without.
+    /// </summary>
+    [Theory]
+    [InlineData(8)]
+    [InlineData(31)]
+    [InlineData(32)]
+    [InlineData(47)]
+    [InlineData(64)]
+    [InlineData(100)]
+    [InlineData(1029)]
+    public void Frame_sized_reduction_equals_naive_exactly_with_and_without_ties(int w)
+    {
+        foreach (bool ties in new[] { true, false })
+        {
+            const int c = 19, h = 5;
+            var rng = new Random(w * 2 + (ties ? 1 : 0));
+            var data = new float[c * h * w];
+            for (int i = 0; i < data.Length; i++) data[i] = ties ? rng.Next(4) : (float)(20 * rng.NextDouble() - 10);
+            var view = new LogitsView(data, c, h, w);
+            var naive = new ReducedMaps();
+            var fused = new ReducedMaps();
+            NaiveReduction.Reduce(view, h, w, ReductionOutputs.None, 1.0, naive);
+            new PixelReduction().Reduce(view, h, w, fused);
+            Assert.Equal(naive.ClassIndex.ToArray(), fused.ClassIndex.ToArray());
+            Assert.Equal(naive.MaxLogit.ToArray(), fused.MaxLogit.ToArray());
+            Assert.Equal(w >= 8, fused.LogitsCheckedFinite);
+        }
+    }
+
+    /// <summary>
+    /// The frame-sized pass vouches for finiteness only when every logit is finite: one NaN or infinity anywhere
+    /// (first or last class, inside the wide kernel, the pair kernel or the row's tail) withdraws it.
+    /// </summary>
+    [Theory]
+    [InlineData(0, 0, 0)]
+    [InlineData(18, 4, 5)]
+    [InlineData(7, 2, 40)]
+    [InlineData(18, 4, 99)]
+    [InlineData(3, 1, 97)]
+    public void Frame_sized_pass_vouches_for_finite_logits_only(int channel, int y, int x)
+    {
+        const int c = 19, h = 5, w = 100;
+        foreach (float bad in new[] { float.NaN, float.PositiveInfinity, float.NegativeInfinity })
+        {
+            var data = ReductionAgainstOnnxRuntimeTests.RandomLogits(c * h * w, 5, scale: 20f);
+            var maps = new ReducedMaps();
+            new PixelReduction().Reduce(new LogitsView(data, c, h, w), h, w, maps);
+            Assert.True(maps.LogitsCheckedFinite);
+            data[(channel * h + y) * w + x] = bad;
+            new PixelReduction().Reduce(new LogitsView(data, c, h, w), h, w, maps);
+            Assert.False(maps.LogitsCheckedFinite, $"{bad} at class {channel}, y {y}, x {x}");
+        }
+    }
+
     [Theory]
     [InlineData(ReductionOutputs.None)]
     [InlineData(All)]

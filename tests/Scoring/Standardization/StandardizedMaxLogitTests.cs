@@ -112,4 +112,50 @@ public class StandardizedMaxLogitTests
                 return false;
         return true;
     }
+
+    /// <summary>
+    /// The one-pass anomaly score against the straightforward two-step reference (standardize, then negate) to the
+    /// bit, signed zeros included: random values, values equal to a class mean (±0), values far beyond the float
+    /// range after scaling (the clamp), fallback classes, and lengths on and off the vector width and past the
+    /// parallel threshold; five classes, so the tables sit in registers.
+    /// </summary>
+    [Theory]
+    [InlineData(1, 1)]
+    [InlineData(37, 2)]
+    [InlineData(300_001, 3)]
+    public void Negated_pass_is_bit_equal_to_standardize_then_negate(int n, int seed)
+    {
+        var sml = new StandardizedMaxLogit(Stats(100, (500, 10, 2), (400, -4, 0.5), (5, 50, 5), (1000, 0, 1e-30), (800, 3.25, 0.1)));
+        var rng = new Random(seed);
+        var x = new float[n];
+        var c = new ushort[n];
+        for (int i = 0; i < n; i++)
+        {
+            c[i] = (ushort)rng.Next(5);
+            x[i] = (i % 7) switch
+            {
+                0 => c[i] switch { 0 => 10f, 1 => -4f, 4 => 3.25f, _ => 0f },
+                1 => (rng.Next(2) * 2 - 1) * float.MaxValue / (1 + rng.Next(3)),
+                _ => (float)(40 * rng.NextDouble() - 20),
+            };
+        }
+        var reference = Apply(sml, x, c);
+        for (int i = 0; i < n; i++) reference[i] = -reference[i];
+        var once = new float[n];
+        sml.ApplyNegated(x, c, once);
+        for (int i = 0; i < n; i++)
+            Assert.True(BitConverter.SingleToInt32Bits(reference[i]) == BitConverter.SingleToInt32Bits(once[i]),
+                $"pixel {i}: class {c[i]}, max logit {x[i]}: {reference[i]} vs {once[i]}");
+        Assert.Contains(once, v => v == 0f && float.IsNegative(v));
+
+        // The 16-pixel permute kernel against the 8-pixel gather kernel (both give the same bits, so flipping the
+        // switch cannot disturb a test running beside this one).
+        var gathered = new float[n];
+        StandardizedMaxLogit.WideKernels = false;
+        try { sml.Apply(x, c, gathered); }
+        finally { StandardizedMaxLogit.WideKernels = true; }
+        var permuted = Apply(sml, x, c);
+        for (int i = 0; i < n; i++)
+            Assert.True(BitConverter.SingleToInt32Bits(gathered[i]) == BitConverter.SingleToInt32Bits(permuted[i]), $"pixel {i}");
+    }
 }

@@ -1,3 +1,4 @@
+using SixLabors.ImageSharp;
 using System.IO.Compression;
 using System.Net.Http.Headers;
 using System.Text;
@@ -82,6 +83,14 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         uint crc = System.IO.Hashing.Crc32.HashToUInt32(png.AsSpan(12, 17)); // chunk type + data (PNG spec 5.3)
         System.Buffers.Binary.BinaryPrimitives.WriteUInt32BigEndian(png.AsSpan(29), crc);
         return png;
+    }
+
+    private static byte[] HalfWebp()
+    {
+        using var img = TestImages.Noise(40, 24, seed: 5);
+        using var ms = new MemoryStream();
+        img.Save(ms, new SixLabors.ImageSharp.Formats.Webp.WebpEncoder());
+        return ms.ToArray()[..(int)(ms.Length / 2)];
     }
 
     private static MultipartFormDataContent Form(params (string Name, object Value)[] parts)
@@ -205,6 +214,7 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         ["frames: text as image"] = new("'hello' as frame", () => Post(Frames, Form(("frame", Encoding.ASCII.GetBytes("hello")), ("method", "maxlogit"))), 415, "frame-format"),
         ["frames: empty image"] = new("0-byte frame", () => Post(Frames, Form(("frame", Array.Empty<byte>()), ("method", "maxlogit"))), 415, "frame-format"),
         ["frames: header claims 10^10 pixels"] = new("PNG IHDR 100000×100000", () => Post(Frames, Form(("frame", HugePng()), ("method", "maxlogit"))), 413, "frame-too-large"),
+        ["frames: truncated WebP"] = new("first half of a lossy WebP", () => Post(Frames, Form(("frame", HalfWebp()), ("method", "maxlogit"))), 400, "frame-corrupt"),
         ["frames: truncated PNG"] = new("first 60 bytes of a PNG", () => Post(Frames, Form(("frame", Png[..60]), ("method", "maxlogit"))), 400, "frame-corrupt"),
 
         // Batches.
@@ -232,6 +242,7 @@ public class HostileInputTests(HostileService fixture) : IClassFixture<HostileSe
         ["batches: plain text body"] = new("text/plain", () => Post(Batches, new StringContent("folder=x")), 415, "unsupported-media-type"),
         ["batches: limit not a number"] = new("?limit=abc", () => Get(Batches + "?limit=abc"), 400, "bad-request"),
         ["batches: encoded traversal id"] = new("/v1/batches/..%2F..%2Fetc", () => Get(Batches + "/..%2F..%2Fetc"), 404, "batch-not-found"),
+        ["batches: list by unknown state"] = new("?state=Done (states are lower case)", () => Get(Batches + "?state=Done"), 400, "validation-failed"),
         ["batches: manifest of unknown batch"] = new("?verdict=junk on 'nope'", () => Get(Batches + "/nope/manifest?verdict=junk"), 404, "batch-not-found"),
         ["batches: cancel unknown"] = new("POST /v1/batches/nope/cancel", () => Post(Batches + "/nope/cancel", Json("")), 404, "batch-not-found"),
 

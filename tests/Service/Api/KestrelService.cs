@@ -56,7 +56,8 @@ public sealed class KestrelService : IAsyncDisposable
         var r = await client.GetAsync("/readyz");
         if (r.StatusCode == HttpStatusCode.OK) return true;
         var problems = System.Text.Json.JsonDocument.Parse(await r.Content.ReadAsStringAsync()).RootElement.GetProperty("problems");
-        return problems.EnumerateArray().All(p => unusable.Any(m => p.GetString()!.StartsWith($"Model '{m}' is unusable", StringComparison.Ordinal)));
+        return problems.EnumerateArray().All(p => unusable.Any(m => p.GetString()!.StartsWith($"Model '{m}' is unusable", StringComparison.Ordinal)
+            || p.GetString()!.StartsWith($"Model '{m}' could not be loaded", StringComparison.Ordinal)));
     }
 
     public async ValueTask DisposeAsync()

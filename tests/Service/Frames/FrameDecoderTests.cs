@@ -69,6 +69,24 @@ public class FrameDecoderTests
         Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Corrupt, e.Code);
     }
 
+    [Theory]
+    [InlineData(false)]
+    [InlineData(true)]
+    public void TruncatedWebpIsRefusedAsCorrupt(bool lossless)
+    {
+        using var img = TestImages.Noise(64, 48, seed: 13);
+        using var ms = new MemoryStream();
+        img.Save(ms, new SixLabors.ImageSharp.Formats.Webp.WebpEncoder
+        {
+            FileFormat = lossless ? SixLabors.ImageSharp.Formats.Webp.WebpFileFormatType.Lossless : SixLabors.ImageSharp.Formats.Webp.WebpFileFormatType.Lossy,
+        });
+        byte[] webp = ms.ToArray();
+        using (var whole = _decoder.Decode(webp)) Assert.Equal(64, whole.Width);
+        var e = Assert.Throws<FrameException>(() => _decoder.Decode(webp.AsMemory(0, webp.Length / 2)));
+        Assert.Equal(Strayspot.Service.Frames.FrameErrorCodes.Corrupt, e.Code);
+        Assert.Contains("WebP", e.Message);
+    }
+
     [Fact]
     public void LosslessWebpDecodesExactly()
     {

@@ -27,6 +27,16 @@ public class ModelInspectorTests
         Assert.Equal(["1", "6", "out_h", "out_w"], Assert.Single(facts.Outputs).Shape);
     }
 
+    [Fact]
+    public void A_model_folder_given_to_inspect_is_refused_naming_the_file_inside()
+    {
+        using var dir = new TempFolder();
+        var e = Assert.Throws<ModelException>(() => ModelInspector.Inspect(dir.Path));
+        Assert.Equal(ModelErrorCodes.ModelInvalid, e.Code);
+        Assert.Contains("is a folder", e.Message);
+        Assert.Contains(Path.Combine(dir.Path, "model.onnx"), e.Message);
+    }
+
     [Theory]
     [InlineData(false, null, null)]
     [InlineData(true, null, null)]

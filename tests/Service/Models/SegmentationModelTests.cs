@@ -41,6 +41,33 @@ public class SegmentationModelTests
     }
 
     [Fact]
+    public void ALoneRunSessionIsOneModelWithTwoRuntimeSessionsAndTheSameLogits()
+    {
+        // Outside reference: ONNX Runtime's Conv and AveragePool against TestSegmentationGraph.Reference, as above.
+        var graph = new TestSegmentationGraph { Classes = 4, Stride = 2 };
+        using var dir = new TempFolder();
+        graph.WriteFolder(dir.Path);
+        string modelPath = Path.Combine(dir.Path, SegmentationModel.ModelFileName);
+        using var frame = DecodedFrame.FromImage(TestImages.Noise(18, 10, seed: 9));
+        using (var model = SegmentationModel.LoadFolder(dir.Path, new ModelRuntimeOptions { IntraOpThreads = 1, LoneRunThreads = 2 }))
+        {
+            Assert.Equal((1, 2), (SegmentationModel.LiveSessions(modelPath), model.OnnxSessions));
+            var input = new FramePreprocessor(model.Descriptor.Input).Prepare(frame);
+            var expected = graph.Reference(input.Data.ToArray(), input.Box.InputHeight, input.Box.InputWidth);
+            // Two runs at once: one takes the lone-run session, the other the shared one; both give the graph's arithmetic.
+            Parallel.For(0, 4, new ParallelOptions { MaxDegreeOfParallelism = 2 }, _ =>
+            {
+                using var lease = model.Run(input);
+                var actual = lease.View.Data.Span;
+                for (int i = 0; i < expected.Length; i++) Assert.Equal(expected[i], actual[i], 4);
+            });
+        }
+        Assert.Equal(0, SegmentationModel.LiveSessions(modelPath));
+        using var plain = SegmentationModel.LoadFolder(dir.Path, new ModelRuntimeOptions { IntraOpThreads = 2, LoneRunThreads = 2 });
+        Assert.Equal(1, plain.OnnxSessions);
+    }
+
+    [Fact]
     public void CroppingPaddedLogitsEqualsRunningTheUnpaddedContent()
     {
         // Frame 20×8 padded to 32×16 for a stride-4 model: content covers 5×2 output cells exactly.

@@ -106,6 +106,25 @@ public sealed class RecordingBadInputTests : IDisposable
     }
 
     [VideoFact]
+    public void Data_damaged_mid_stream_gives_the_frames_left_with_notes_quoting_the_decoders_complaint()
+    {
+        string whole = Path.Combine(_dir, "whole.mp4");
+        VideoFiles.Ffmpeg(["-f", "lavfi", "-i", "testsrc=size=320x240:rate=10", "-t", "3", "-c:v", "libx264", "-pix_fmt", "yuv420p", whole]);
+        var bytes = File.ReadAllBytes(whole);
+        // Overwrite a stretch of the coded frames: the container stays readable, some frames do not.
+        for (int i = bytes.Length / 3; i < bytes.Length / 3 + 3000; i++) bytes[i] = 0x5a;
+        var damaged = VideoRecording.Open(Write("damaged.mp4", bytes));
+        int n = 0;
+        foreach (var f in damaged.Frames()) using (f) n++;
+        Assert.InRange(n, 1, 29);
+        Assert.Contains(damaged.Notes, note => note.Contains("of the 30 frames"));
+        string complaint = Assert.Single(damaged.Notes, note => note.StartsWith("the decoder reported damaged data", StringComparison.Ordinal));
+        // The note quotes the decoder's complaint, not the size summary ffmpeg prints last.
+        Assert.DoesNotContain("muxing overhead", complaint);
+        Assert.Matches("(?i)invalid|error|corrupt|missing", complaint[complaint.IndexOf(':')..]);
+    }
+
+    [VideoFact]
     public void A_decode_past_its_time_limit_is_stopped_with_a_clear_error()
     {
         string path = Path.Combine(_dir, "slow.mp4");
