@@ -21,6 +21,62 @@ public class MaxLogitDriftTests
     }
 
     [Fact]
+    public void Summing_runs_of_one_class_gives_the_per_pixel_sums_bit_for_bit()
+    {
+        // Reference: each pixel added to its class's sums in pixel order, as the watch did before it summed runs.
+        var rng = new Random(11);
+        const int classes = 3, n = 4099;
+        var stats = new ClassStatistics([new("a", 10_000, 5, 1), new("b", 10_000, 2, 0.5), new("c", 10_000, -1, 2)]);
+        var drift = new MaxLogitDrift(stats, halfLifeFrames: double.PositiveInfinity);
+        var count = new double[classes];
+        var sum = new double[classes];
+        var squares = new double[classes];
+        for (int f = 0; f < 3; f++)
+        {
+            var m = new float[n];
+            var c = new ushort[n];
+            for (int i = 0; i < n; )
+            {
+                // Runs of 1–40 pixels, some of a class the calibration does not know (skipped).
+                int run = 1 + rng.Next(f == 0 ? 1 : 40);
+                ushort k = (ushort)rng.Next(classes + 1);
+                for (int j = 0; j < run && i < n; j++, i++)
+                {
+                    c[i] = k;
+                    m[i] = (float)(rng.NextDouble() * 20 - 7);
+                }
+            }
+            drift.Observe(m, c);
+            var frameCount = new long[classes];
+            var frameSum = new double[classes];
+            var frameSquares = new double[classes];
+            for (int i = 0; i < n; i++)
+            {
+                if (c[i] >= classes) continue;
+                double v = m[i];
+                frameCount[c[i]]++;
+                frameSum[c[i]] += v;
+                frameSquares[c[i]] += v * v;
+            }
+            // A frame's sums join the running ones once per frame (weight 1: no decay).
+            for (int k = 0; k < classes; k++)
+            {
+                count[k] = 1.0 * count[k] + frameCount[k];
+                sum[k] = 1.0 * sum[k] + frameSum[k];
+                squares[k] = 1.0 * squares[k] + frameSquares[k];
+            }
+        }
+        var report = drift.Report();
+        for (int k = 0; k < classes; k++)
+        {
+            double mean = sum[k] / count[k];
+            Assert.Equal(count[k], report.Classes[k].PixelWeight);
+            Assert.Equal(mean, report.Classes[k].Mean);
+            Assert.Equal(Math.Sqrt(Math.Max(0, squares[k] / count[k] - mean * mean)), report.Classes[k].Std);
+        }
+    }
+
+    [Fact]
     public void Without_decay_the_statistics_equal_a_two_pass_computation_over_every_pixel()
     {
         var rng = new Random(3);
