@@ -109,7 +109,9 @@ public sealed class FrameDecoder
             Image<Rgb24>? fast;
             try
             {
-                fast = PngFastDecoder.TryDecode(pngBytes.AsSpan((int)start), _configuration, _options.AllocationLimitMegabytes * 1024L * 1024);
+                long limit = _options.AllocationLimitMegabytes * 1024L * 1024;
+                fast = PngFrameInflater.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit)
+                    ?? PngFastDecoder.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit);
             }
             catch (Exception e) when (IsDecodeFailure(e))
             {

@@ -32,6 +32,8 @@ public static class DecodeBench
         Console.WriteLine($"| ratio | {b / n:0.0}× |");
         Console.WriteLine($"| of which: ImageSharp's header read (identify) | {identify:0.0} |");
         Console.WriteLine($"| of which: libpng decode and RGBA → RGB copy | {skia:0.0} |");
+        PngDecoders(runs, png, "1024×512 demo frame");
+        PngDecoders(runs, DemoPng.Encode(new ApronSceneGenerator(1920, 1080).Render(70)), "1920×1080 demo scene");
         PixelLoops(runs, png);
     }
 
@@ -123,6 +125,43 @@ public static class DecodeBench
         {
             Directory.Delete(root, recursive: true);
         }
+    }
+
+    /// <summary>
+    /// The three PNG decoders one after another in each run (ImageSharp 2.1, libpng through SkiaSharp, the managed
+    /// inflate-and-unfilter path), each to Rgb24, and whether the two fast ones give ImageSharp's pixels.
+    /// </summary>
+    public static void PngDecoders(int runs, byte[] png, string what)
+    {
+        var configuration = Configuration.Default;
+        Image<Rgb24> Sharp() => Image.Load<Rgb24>(png);
+        Image<Rgb24> Libpng() => PngFastDecoder.TryDecode(png, configuration) ?? throw new InvalidOperationException("libpng declined");
+        Image<Rgb24> Managed() => PngFrameInflater.TryDecode(png, configuration) ?? throw new InvalidOperationException("managed path declined");
+        Func<Image<Rgb24>>[] decoders = [Sharp, Libpng, Managed];
+        var times = decoders.Select(_ => new List<double>()).ToArray();
+        for (int i = -3; i < Math.Max(runs, 15); i++)
+            for (int d = 0; d < decoders.Length; d++)
+            {
+                long t = Stopwatch.GetTimestamp();
+                decoders[d]().Dispose();
+                if (i >= 0) times[d].Add(Stopwatch.GetElapsedTime(t).TotalMilliseconds);
+            }
+        using var reference = Sharp();
+        using var viaLibpng = Libpng();
+        using var viaManaged = Managed();
+        bool Same(Image<Rgb24> other)
+        {
+            for (int y = 0; y < reference.Height; y++)
+                if (!reference.DangerousGetPixelRowMemory(y).Span.SequenceEqual(other.DangerousGetPixelRowMemory(y).Span)) return false;
+            return true;
+        }
+        double sharp = Measure.Median(times[0]), libpng = Measure.Median(times[1]), managed = Measure.Median(times[2]);
+        Console.WriteLine();
+        Console.WriteLine($"| PNG decode to Rgb24, {what} ({reference.Width}×{reference.Height}, {png.Length / 1e3:0} KB), alternating | median ms | vs libpng | ImageSharp's pixels |");
+        Console.WriteLine("|---|---|---|---|");
+        Console.WriteLine($"| ImageSharp 2.1 | {sharp:0.00} | {sharp / libpng:0.00}× | (reference) |");
+        Console.WriteLine($"| libpng via SkiaSharp (before) | {libpng:0.00} | 1.00× | {(Same(viaLibpng) ? "yes" : "NO")} |");
+        Console.WriteLine($"| managed: ZLibStream + unfilter (now) | {managed:0.00} | {managed / libpng:0.00}× | {(Same(viaManaged) ? "yes" : "NO")} |");
     }
 
     private static (double Before, double Now) Alternate(int runs, Action before, Action now)

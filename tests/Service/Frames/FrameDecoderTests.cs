@@ -235,7 +235,7 @@ public class FrameDecoderTests
         return ms.ToArray();
     }
 
-    private static void WriteChunk(Stream s, string type, byte[] data)
+    internal static void WriteChunk(Stream s, string type, byte[] data)
     {
         Span<byte> four = stackalloc byte[4];
         BinaryPrimitives.WriteInt32BigEndian(four, data.Length);

@@ -1,0 +1,274 @@
+using System.Buffers;
+using System.Buffers.Binary;
+using System.IO.Compression;
+using System.Runtime.CompilerServices;
+using System.Runtime.InteropServices;
+using System.Runtime.Intrinsics;
+using SixLabors.ImageSharp;
+using SixLabors.ImageSharp.Advanced;
+using SixLabors.ImageSharp.PixelFormats;
+
+namespace Strayspot.Service.Frames;
+
+/// <summary>
+/// The common camera PNG (8-bit RGB, RGBA or grey, not interlaced) decoded in managed code, in front of libpng:
+/// .NET's zlib inflates a 1024×512 frame in about a millisecond, and libpng spends most of its time after that
+/// (unfiltering, its RGBA swizzle, copies). The rows are unfiltered in place and written straight into the Rgb24
+/// image, giving ImageSharp's pixels (alpha dropped, grey spread to R, G and B). Anything else — palette,
+/// grey+alpha, 16-bit or sub-8-bit samples, interlacing, tRNS, eXIf, a bad CRC, too little or too much data, an
+/// unknown filter — returns null and goes on to the libpng and ImageSharp paths, which report damage in their words.
+/// </summary>
+internal static class PngFrameInflater
+{
+    private static ReadOnlySpan<byte> Signature => [0x89, (byte)'P', (byte)'N', (byte)'G', 0x0D, 0x0A, 0x1A, 0x0A];
+
+    /// <param name="limitBytes">The decoder's allocation cap, applied as <see cref="PngFastDecoder"/> applies it.</param>
+    public static Image<Rgb24>? TryDecode(ReadOnlySpan<byte> png, Configuration configuration, long limitBytes = long.MaxValue)
+    {
+        if (png.Length < 8 + 25 || !png.StartsWith(Signature)) return null;
+        int at = 8, width = 0, height = 0, bpp = 0, idatBytes = 0, idatRuns = 0;
+        bool inIdat = false, ended = false;
+        while (at + 12 <= png.Length)
+        {
+            uint length = BinaryPrimitives.ReadUInt32BigEndian(png.Slice(at));
+            if (length > int.MaxValue || at + 12L + length > png.Length) return null;
+            var type = png.Slice(at + 4, 4);
+            var data = png.Slice(at + 8, (int)length);
+            if (BinaryPrimitives.ReadUInt32BigEndian(png.Slice(at + 8 + (int)length)) != System.IO.Hashing.Crc32.HashToUInt32(png.Slice(at + 4, 4 + (int)length)))
+                return null;
+            if (at == 8)
+            {
+                if (!type.SequenceEqual("IHDR"u8) || length != 13) return null;
+                uint w = BinaryPrimitives.ReadUInt32BigEndian(data), h = BinaryPrimitives.ReadUInt32BigEndian(data.Slice(4));
+                // depth 8; colour type 0, 2 or 6; compression, filter method and interlace all 0.
+                if (w < 1 || h < 1 || w > int.MaxValue || h > int.MaxValue || data[8] != 8 || data[10] != 0 || data[11] != 0 || data[12] != 0) return null;
+                bpp = data[9] switch { 0 => 1, 2 => 3, 6 => 4, _ => 0 };
+                if (bpp == 0) return null;
+                (width, height) = ((int)w, (int)h);
+            }
+            else if (type.SequenceEqual("IDAT"u8))
+            {
+                if (!inIdat && idatRuns++ > 0) return null; // IDAT chunks must follow one another
+                inIdat = true;
+                idatBytes = checked(idatBytes + (int)length);
+            }
+            else
+            {
+                inIdat = false;
+                if (type.SequenceEqual("IEND"u8)) { ended = true; break; }
+                // tRNS would make a colour transparent, PLTE has no place here, eXIf may turn the frame: leave them to the others.
+                if (type.SequenceEqual("tRNS"u8) || type.SequenceEqual("eXIf"u8) || type.SequenceEqual("PLTE"u8)) return null;
+                if ((type[0] & 0x20) == 0) return null; // an unknown critical chunk
+            }
+            at += 12 + (int)length;
+        }
+        if (!ended || idatRuns != 1 || idatBytes < 2) return null;
+        if (4L * width * height > Math.Min(limitBytes, Array.MaxLength)) return null;
+        long stride = 1 + (long)width * bpp;
+        if (stride * height > Array.MaxLength - 64) return null;
+        int total = (int)(stride * height);
+
+        byte[] compressed = ArrayPool<byte>.Shared.Rent(idatBytes);
+        // Slack after the rows: the pixel-at-a-time filters read and write four bytes for a three-byte pixel.
+        byte[] rows = ArrayPool<byte>.Shared.Rent(total + 16);
+        byte[] zeros = ArrayPool<byte>.Shared.Rent((int)stride + 16);
+        Image<Rgb24>? image = null;
+        try
+        {
+            int filled = 0;
+            for (at = 8; ;)
+            {
+                int length = (int)BinaryPrimitives.ReadUInt32BigEndian(png.Slice(at));
+                var type = png.Slice(at + 4, 4);
+                if (type.SequenceEqual("IEND"u8)) break;
+                if (type.SequenceEqual("IDAT"u8)) { png.Slice(at + 8, length).CopyTo(compressed.AsSpan(filled)); filled += length; }
+                at += 12 + length;
+            }
+            if (!Inflate(compressed, idatBytes, rows.AsSpan(0, total))) return null;
+
+            zeros.AsSpan().Clear();
+            int rowBytes = (int)stride - 1;
+            for (int y = 0; y < height; y++)
+            {
+                int start = (int)(y * stride);
+                var prior = y == 0 ? zeros.AsSpan(0, rowBytes + 16) : rows.AsSpan(start - rowBytes, rowBytes + 16);
+                if (!Unfilter(rows[start], rows.AsSpan(start + 1, rowBytes + 15), prior, rowBytes, bpp)) return null;
+            }
+
+            image = new Image<Rgb24>(configuration, width, height);
+            for (int y = 0; y < height; y++)
+            {
+                var row = rows.AsSpan((int)(y * stride) + 1, rowBytes);
+                var target = MemoryMarshal.AsBytes(image.DangerousGetPixelRowMemory(y).Span);
+                if (bpp == 3) row.CopyTo(target);
+                else if (bpp == 4) PngFastDecoder.DropAlpha(row, target);
+                else SpreadGrey(row, target);
+            }
+            var done = image;
+            image = null;
+            return done;
+        }
+        finally
+        {
+            image?.Dispose();
+            ArrayPool<byte>.Shared.Return(compressed);
+            ArrayPool<byte>.Shared.Return(rows);
+            ArrayPool<byte>.Shared.Return(zeros);
+        }
+    }
+
+    /// <summary>Exactly <paramref name="rows"/>.Length bytes from one zlib stream that ends where the IDAT data ends.</summary>
+    private static bool Inflate(byte[] compressed, int length, Span<byte> rows)
+    {
+        var source = new TailByByte(compressed, length);
+        try
+        {
+            using var z = new ZLibStream(source, CompressionMode.Decompress, leaveOpen: true);
+            if (z.ReadAtLeast(rows, rows.Length, throwOnEndOfStream: false) != rows.Length) return false;
+            Span<byte> beyond = stackalloc byte[1];
+            if (z.Read(beyond) != 0) return false;
+        }
+        catch (InvalidDataException)
+        {
+            return false;
+        }
+        return source.Position == length;
+    }
+
+    /// <summary>
+    /// Hands the inflater its last bytes one at a time: it stops asking once the zlib stream (and its Adler-32) is
+    /// complete, so bytes left unread mean data after the stream, which ZLibStream would otherwise swallow unseen.
+    /// </summary>
+    private sealed class TailByByte(byte[] buffer, int length) : MemoryStream(buffer, 0, length, writable: false)
+    {
+        private int Allowed(int count)
+        {
+            long left = Length - Position;
+            return left <= 16 ? Math.Min(count, 1) : (int)Math.Min(count, left - 16);
+        }
+
+        public override int Read(byte[] array, int offset, int count) => base.Read(array, offset, Allowed(count));
+        public override int Read(Span<byte> destination) => base.Read(destination.Slice(0, Allowed(destination.Length)));
+    }
+
+    /// <summary>
+    /// One row's filter undone in place. <paramref name="row"/> and <paramref name="prior"/> reach 15 bytes past the
+    /// row's <paramref name="rowBytes"/> so that a three-byte pixel can be handled as four; the fourth byte always
+    /// gets zero added, so it is written back unchanged.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static bool Unfilter(byte filter, Span<byte> row, ReadOnlySpan<byte> prior, int rowBytes, int bpp)
+    {
+        ref byte x = ref MemoryMarshal.GetReference(row);
+        ref byte b = ref MemoryMarshal.GetReference(prior);
+        switch (filter)
+        {
+            case 0:
+                return true;
+            case 2:
+            {
+                int i = 0;
+                for (; i + 16 <= rowBytes; i += 16)
+                    (Vector128.LoadUnsafe(ref x, (nuint)i) + Vector128.LoadUnsafe(ref b, (nuint)i)).StoreUnsafe(ref x, (nuint)i);
+                for (; i < rowBytes; i++) Unsafe.Add(ref x, i) += Unsafe.Add(ref b, i);
+                return true;
+            }
+            case 1 or 3 or 4 when bpp == 1:
+                UnfilterScalar(filter, row.Slice(0, rowBytes), prior.Slice(0, rowBytes), bpp);
+                return true;
+            case 1:
+            {
+                var keep = Keep(bpp);
+                var a = Vector128<byte>.Zero;
+                for (int i = 0; i < rowBytes; i += bpp)
+                {
+                    a = Load4(ref x, i) + (a & keep);
+                    Store4(ref x, i, a);
+                }
+                return true;
+            }
+            case 3:
+            {
+                var keep = Keep(bpp);
+                var low7 = Vector128.Create((byte)0x7F);
+                var a = Vector128<byte>.Zero;
+                for (int i = 0; i < rowBytes; i += bpp)
+                {
+                    var up = Load4(ref b, i);
+                    // floor((a + b) / 2) without leaving bytes: the shared bits plus half the differing ones.
+                    var half = ((a ^ up).AsUInt16() >>> 1).AsByte() & low7;
+                    a = Load4(ref x, i) + (((a & up) + half) & keep);
+                    Store4(ref x, i, a);
+                }
+                return true;
+            }
+            case 4:
+            {
+                var keep = Keep(bpp);
+                var a = Vector128<short>.Zero;
+                var c = Vector128<short>.Zero;
+                for (int i = 0; i < rowBytes; i += bpp)
+                {
+                    var up = Vector128.WidenLower(Load4(ref b, i)).AsInt16();
+                    var pa = Vector128.Abs(up - c);     // |p - a| = |b - c|
+                    var pb = Vector128.Abs(a - c);      // |p - b| = |a - c|
+                    var pc = Vector128.Abs(a + up - c - c);
+                    var smallest = Vector128.Min(pa, Vector128.Min(pb, pc));
+                    // The specification's order on ties: a, then b, then c.
+                    var nearest = Vector128.ConditionalSelect(Vector128.Equals(smallest, pa), a,
+                        Vector128.ConditionalSelect(Vector128.Equals(smallest, pb), up, c));
+                    var result = Load4(ref x, i) + (Vector128.Narrow(nearest.AsUInt16(), nearest.AsUInt16()) & keep);
+                    Store4(ref x, i, result);
+                    a = Vector128.WidenLower(result & keep).AsInt16();
+                    c = up & Vector128.WidenLower(keep).AsInt16();
+                }
+                return true;
+            }
+            default:
+                return false;
+        }
+    }
+
+    /// <summary>The lanes that belong to one pixel: three or four bytes.</summary>
+    private static Vector128<byte> Keep(int bpp) =>
+        bpp == 4 ? Vector128.Create(0xFFFFFFFFu, 0, 0, 0).AsByte() : Vector128.Create(0x00FFFFFFu, 0, 0, 0).AsByte();
+
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static Vector128<byte> Load4(ref byte at, int i) => Vector128.CreateScalar(Unsafe.ReadUnaligned<uint>(ref Unsafe.Add(ref at, i))).AsByte();
+
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void Store4(ref byte at, int i, Vector128<byte> value) => Unsafe.WriteUnaligned(ref Unsafe.Add(ref at, i), value.AsUInt32().ToScalar());
+
+    /// <summary>Sub, Average and Paeth a byte at a time, for grey rows (one byte a pixel leaves nothing to vectorize).</summary>
+    private static void UnfilterScalar(byte filter, Span<byte> row, ReadOnlySpan<byte> prior, int bpp)
+    {
+        for (int i = 0; i < row.Length; i++)
+        {
+            int a = i >= bpp ? row[i - bpp] : 0, b = prior[i], c = i >= bpp ? prior[i - bpp] : 0;
+            int add = filter switch
+            {
+                1 => a,
+                3 => (a + b) >> 1,
+                _ => Paeth(a, b, c),
+            };
+            row[i] = (byte)(row[i] + add);
+        }
+    }
+
+    private static int Paeth(int a, int b, int c)
+    {
+        int p = a + b - c, pa = Math.Abs(p - a), pb = Math.Abs(p - b), pc = Math.Abs(p - c);
+        return pa <= pb && pa <= pc ? a : pb <= pc ? b : c;
+    }
+
+    private static void SpreadGrey(ReadOnlySpan<byte> grey, Span<byte> rgb)
+    {
+        for (int i = 0, o = 0; i < grey.Length; i++, o += 3)
+        {
+            byte g = grey[i];
+            rgb[o] = g;
+            rgb[o + 1] = g;
+            rgb[o + 2] = g;
+        }
+    }
+}
