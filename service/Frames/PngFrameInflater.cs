@@ -88,11 +88,20 @@ internal static class PngFrameInflater
 
             zeros.AsSpan().Clear();
             int rowBytes = (int)stride - 1;
-            for (int y = 0; y < height; y++)
+            for (int y = 0; y < height;)
             {
                 int start = (int)(y * stride);
                 var prior = y == 0 ? zeros.AsSpan(0, rowBytes + 16) : rows.AsSpan(start - rowBytes, rowBytes + 16);
+                if (bpp > 1 && rows[start] == 4)
+                {
+                    int run = 1;
+                    while (run < 4 && y + run < height && rows[start + run * (int)stride] == 4) run++;
+                    PaethRows(rows.AsSpan(start + 1), prior, (int)stride, run, rowBytes, bpp);
+                    y += run;
+                    continue;
+                }
                 if (!Unfilter(rows[start], rows.AsSpan(start + 1, rowBytes + 15), prior, rowBytes, bpp)) return null;
+                y++;
             }
 
             image = new Image<Rgb24>(configuration, width, height);
@@ -203,31 +212,90 @@ internal static class PngFrameInflater
                 return true;
             }
             case 4:
-            {
-                var keep = Keep(bpp);
-                var a = Vector128<short>.Zero;
-                var c = Vector128<short>.Zero;
-                for (int i = 0; i < rowBytes; i += bpp)
-                {
-                    var up = Vector128.WidenLower(Load4(ref b, i)).AsInt16();
-                    var pa = Vector128.Abs(up - c);     // |p - a| = |b - c|
-                    var pb = Vector128.Abs(a - c);      // |p - b| = |a - c|
-                    var pc = Vector128.Abs(a + up - c - c);
-                    var smallest = Vector128.Min(pa, Vector128.Min(pb, pc));
-                    // The specification's order on ties: a, then b, then c.
-                    var nearest = Vector128.ConditionalSelect(Vector128.Equals(smallest, pa), a,
-                        Vector128.ConditionalSelect(Vector128.Equals(smallest, pb), up, c));
-                    var result = Load4(ref x, i) + (Vector128.Narrow(nearest.AsUInt16(), nearest.AsUInt16()) & keep);
-                    Store4(ref x, i, result);
-                    a = Vector128.WidenLower(result & keep).AsInt16();
-                    c = up & Vector128.WidenLower(keep).AsInt16();
-                }
+                PaethRows(row, prior, 0, 1, rowBytes, bpp);
                 return true;
-            }
             default:
                 return false;
         }
     }
+
+    /// <summary>
+    /// Up to four Paeth rows at once, each one pixel behind the row above it (whose pixels it needs are then done),
+    /// one row to a quarter of a 16-lane vector. Each pixel waits on its left neighbour, so one row alone leaves the
+    /// core idle between dependent steps; four independent rows fill it. Lanes of a row not started or already
+    /// finished see zeros and are not stored; the fourth byte of a three-byte pixel is zeroed on load, so its lane
+    /// stays zero, and put back unchanged on store.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static void PaethRows(Span<byte> rows, ReadOnlySpan<byte> prior, int stride, int count, int rowBytes, int bpp)
+    {
+        ref byte x = ref MemoryMarshal.GetReference(rows);
+        ref byte p = ref MemoryMarshal.GetReference(prior);
+        uint pixel = bpp == 4 ? 0xFFFFFFFFu : 0x00FFFFFFu;
+        var keep = Vector128.Create(pixel).AsByte();
+        var low = Vector256.Create((short)0xFF);
+        var a = Vector256<short>.Zero;
+        var c = Vector256<short>.Zero;
+        int n = rowBytes / bpp;
+        Span<uint> raw = stackalloc uint[4];
+        Span<uint> up = stackalloc uint[4];
+        for (int k = 0; k < n + count - 1; k++)
+        {
+            Vector128<byte> rawBytes, upBytes;
+            if (count == 4 && k >= 3 && k < n)
+            {
+                // All four rows inside their pixels: the common case, without per-row checks.
+                int at = k * bpp;
+                rawBytes = Vector128.Create(Read4(ref x, at), Read4(ref x, stride + at - bpp),
+                    Read4(ref x, 2 * stride + at - 2 * bpp), Read4(ref x, 3 * stride + at - 3 * bpp)).AsByte();
+                upBytes = Vector128.Create(Read4(ref p, at), Read4(ref x, at - bpp),
+                    Read4(ref x, stride + at - 2 * bpp), Read4(ref x, 2 * stride + at - 3 * bpp)).AsByte();
+            }
+            else
+            {
+                for (int j = 0; j < 4; j++)
+                {
+                    int at = (k - j) * bpp;
+                    if (j < count && k - j >= 0 && k - j < n)
+                    {
+                        raw[j] = Read4(ref x, j * stride + at);
+                        up[j] = j == 0 ? Read4(ref p, at) : Read4(ref x, (j - 1) * stride + at);
+                    }
+                    else raw[j] = up[j] = 0;
+                }
+                rawBytes = Vector128.Create(raw[0], raw[1], raw[2], raw[3]).AsByte();
+                upBytes = Vector128.Create(up[0], up[1], up[2], up[3]).AsByte();
+            }
+            var b = Vector256.WidenLower((upBytes & keep).ToVector256Unsafe()).AsInt16();
+            var r = Vector256.WidenLower((rawBytes & keep).ToVector256Unsafe()).AsInt16();
+            var bc = b - c;
+            var pa = Vector256.Abs(bc);        // |p - a| = |b - c|
+            var d = a - c;
+            var pb = Vector256.Abs(d);         // |p - b| = |a - c|
+            var pc = Vector256.Abs(d + bc);    // |p - c| = |a + b - 2c|
+            var smallest = Vector256.Min(pa, Vector256.Min(pb, pc));
+            // The specification's order on ties: a, then b, then c.
+            var nearest = Vector256.ConditionalSelect(Vector256.Equals(smallest, pa), a, Vector256.ConditionalSelect(Vector256.Equals(smallest, pb), b, c));
+            a = (r + nearest) & low;
+            c = b;
+            var words = (Vector128.Narrow(a.GetLower().AsUInt16(), a.GetUpper().AsUInt16()) | (rawBytes & ~keep)).AsUInt32();
+            if (count == 4 && k >= 3 && k < n)
+            {
+                int at = k * bpp;
+                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, at), words.GetElement(0));
+                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, stride + at - bpp), words.GetElement(1));
+                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, 2 * stride + at - 2 * bpp), words.GetElement(2));
+                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, 3 * stride + at - 3 * bpp), words.GetElement(3));
+            }
+            else
+                for (int j = 0; j < count; j++)
+                    if (k - j >= 0 && k - j < n)
+                        Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, j * stride + (k - j) * bpp), words.GetElement(j));
+        }
+    }
+
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static uint Read4(ref byte at, int i) => Unsafe.ReadUnaligned<uint>(ref Unsafe.Add(ref at, i));
 
     /// <summary>The lanes that belong to one pixel: three or four bytes.</summary>
     private static Vector128<byte> Keep(int bpp) =>
