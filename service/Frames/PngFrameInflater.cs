@@ -162,8 +162,7 @@ internal static class PngFrameInflater
 
     /// <summary>
     /// One row's filter undone in place. <paramref name="row"/> and <paramref name="prior"/> reach 15 bytes past the
-    /// row's <paramref name="rowBytes"/> so that a three-byte pixel can be handled as four; the fourth byte always
-    /// gets zero added, so it is written back unchanged.
+    /// row's <paramref name="rowBytes"/> so that a three-byte pixel can be loaded as four; only its three are stored.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static bool Unfilter(byte filter, Span<byte> row, ReadOnlySpan<byte> prior, int rowBytes, int bpp)
@@ -192,7 +191,7 @@ internal static class PngFrameInflater
                 for (int i = 0; i < rowBytes; i += bpp)
                 {
                     a = Load4(ref x, i) + (a & keep);
-                    Store4(ref x, i, a);
+                    StorePixel(ref x, i, a.AsUInt32().ToScalar(), bpp);
                 }
                 return true;
             }
@@ -207,7 +206,7 @@ internal static class PngFrameInflater
                     // floor((a + b) / 2) without leaving bytes: the shared bits plus half the differing ones.
                     var half = ((a ^ up).AsUInt16() >>> 1).AsByte() & low7;
                     a = Load4(ref x, i) + (((a & up) + half) & keep);
-                    Store4(ref x, i, a);
+                    StorePixel(ref x, i, a.AsUInt32().ToScalar(), bpp);
                 }
                 return true;
             }
@@ -224,7 +223,7 @@ internal static class PngFrameInflater
     /// one row to a quarter of a 16-lane vector. Each pixel waits on its left neighbour, so one row alone leaves the
     /// core idle between dependent steps; four independent rows fill it. Lanes of a row not started or already
     /// finished see zeros and are not stored; the fourth byte of a three-byte pixel is zeroed on load, so its lane
-    /// stays zero, and put back unchanged on store.
+    /// stays zero, and is not stored.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void PaethRows(Span<byte> rows, ReadOnlySpan<byte> prior, int stride, int count, int rowBytes, int bpp)
@@ -238,35 +237,31 @@ internal static class PngFrameInflater
         var c = Vector256<short>.Zero;
         int n = rowBytes / bpp;
         Span<uint> raw = stackalloc uint[4];
-        Span<uint> up = stackalloc uint[4];
+        var firstRow = Vector256.Create(-1L, 0, 0, 0).AsInt16();
         for (int k = 0; k < n + count - 1; k++)
         {
-            Vector128<byte> rawBytes, upBytes;
+            Vector128<byte> rawBytes;
+            uint up0;
             if (count == 4 && k >= 3 && k < n)
             {
                 // All four rows inside their pixels: the common case, without per-row checks.
                 int at = k * bpp;
                 rawBytes = Vector128.Create(Read4(ref x, at), Read4(ref x, stride + at - bpp),
                     Read4(ref x, 2 * stride + at - 2 * bpp), Read4(ref x, 3 * stride + at - 3 * bpp)).AsByte();
-                upBytes = Vector128.Create(Read4(ref p, at), Read4(ref x, at - bpp),
-                    Read4(ref x, stride + at - 2 * bpp), Read4(ref x, 2 * stride + at - 3 * bpp)).AsByte();
+                up0 = Read4(ref p, at);
             }
             else
             {
                 for (int j = 0; j < 4; j++)
-                {
-                    int at = (k - j) * bpp;
-                    if (j < count && k - j >= 0 && k - j < n)
-                    {
-                        raw[j] = Read4(ref x, j * stride + at);
-                        up[j] = j == 0 ? Read4(ref p, at) : Read4(ref x, (j - 1) * stride + at);
-                    }
-                    else raw[j] = up[j] = 0;
-                }
+                    raw[j] = j < count && k - j >= 0 && k - j < n ? Read4(ref x, j * stride + (k - j) * bpp) : 0;
                 rawBytes = Vector128.Create(raw[0], raw[1], raw[2], raw[3]).AsByte();
-                upBytes = Vector128.Create(up[0], up[1], up[2], up[3]).AsByte();
+                up0 = k < n ? Read4(ref p, k * bpp) : 0;
             }
-            var b = Vector256.WidenLower((upBytes & keep).ToVector256Unsafe()).AsInt16();
+            // Up for the first row from the row above; for the others, the row above's pixel just computed, still in
+            // the lanes before theirs (read back from memory it would wait for its store).
+            var b = Vector256.ConditionalSelect(firstRow,
+                Vector256.WidenLower((Vector128.CreateScalar(up0).AsByte() & keep).ToVector256Unsafe()).AsInt16(),
+                Vector256.Shuffle(a.AsInt64(), Vector256.Create(0L, 0, 1, 2)).AsInt16());
             var r = Vector256.WidenLower((rawBytes & keep).ToVector256Unsafe()).AsInt16();
             var bc = b - c;
             var pa = Vector256.Abs(bc);        // |p - a| = |b - c|
@@ -278,19 +273,19 @@ internal static class PngFrameInflater
             var nearest = Vector256.ConditionalSelect(Vector256.Equals(smallest, pa), a, Vector256.ConditionalSelect(Vector256.Equals(smallest, pb), b, c));
             a = (r + nearest) & low;
             c = b;
-            var words = (Vector128.Narrow(a.GetLower().AsUInt16(), a.GetUpper().AsUInt16()) | (rawBytes & ~keep)).AsUInt32();
+            var words = Vector128.Narrow(a.GetLower().AsUInt16(), a.GetUpper().AsUInt16()).AsUInt32();
             if (count == 4 && k >= 3 && k < n)
             {
                 int at = k * bpp;
-                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, at), words.GetElement(0));
-                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, stride + at - bpp), words.GetElement(1));
-                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, 2 * stride + at - 2 * bpp), words.GetElement(2));
-                Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, 3 * stride + at - 3 * bpp), words.GetElement(3));
+                StorePixel(ref x, at, words.GetElement(0), bpp);
+                StorePixel(ref x, stride + at - bpp, words.GetElement(1), bpp);
+                StorePixel(ref x, 2 * stride + at - 2 * bpp, words.GetElement(2), bpp);
+                StorePixel(ref x, 3 * stride + at - 3 * bpp, words.GetElement(3), bpp);
             }
             else
                 for (int j = 0; j < count; j++)
                     if (k - j >= 0 && k - j < n)
-                        Unsafe.WriteUnaligned(ref Unsafe.Add(ref x, j * stride + (k - j) * bpp), words.GetElement(j));
+                        StorePixel(ref x, j * stride + (k - j) * bpp, words.GetElement(j), bpp);
         }
     }
 
@@ -304,8 +299,21 @@ internal static class PngFrameInflater
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
     private static Vector128<byte> Load4(ref byte at, int i) => Vector128.CreateScalar(Unsafe.ReadUnaligned<uint>(ref Unsafe.Add(ref at, i))).AsByte();
 
+    /// <summary>
+    /// A pixel's own bytes only: a four-byte store of a three-byte pixel would overlap the next pixel's load, which
+    /// then waits for the store to reach the cache instead of taking the value from the store queue.
+    /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
-    private static void Store4(ref byte at, int i, Vector128<byte> value) => Unsafe.WriteUnaligned(ref Unsafe.Add(ref at, i), value.AsUInt32().ToScalar());
+    private static void StorePixel(ref byte at, int i, uint value, int bpp)
+    {
+        if (bpp == 4)
+        {
+            Unsafe.WriteUnaligned(ref Unsafe.Add(ref at, i), value);
+            return;
+        }
+        Unsafe.WriteUnaligned(ref Unsafe.Add(ref at, i), (ushort)value);
+        Unsafe.Add(ref at, i + 2) = (byte)(value >> 16);
+    }
 
     /// <summary>Sub, Average and Paeth a byte at a time, for grey rows (one byte a pixel leaves nothing to vectorize).</summary>
     private static void UnfilterScalar(byte filter, Span<byte> row, ReadOnlySpan<byte> prior, int bpp)
