@@ -92,11 +92,11 @@ internal static class PngFrameInflater
             {
                 int start = (int)(y * stride);
                 var prior = y == 0 ? zeros.AsSpan(0, rowBytes + 16) : rows.AsSpan(start - rowBytes, rowBytes + 16);
-                if (bpp > 1 && rows[start] == 4)
+                if (bpp > 1 && rows[start] is 3 or 4)
                 {
                     int run = 1;
-                    while (run < 4 && y + run < height && rows[start + run * (int)stride] == 4) run++;
-                    PaethRows(rows.AsSpan(start + 1), prior, (int)stride, run, rowBytes, bpp);
+                    while (run < 4 && y + run < height && rows[start + run * (int)stride] is 3 or 4) run++;
+                    PixelFilterRows(rows.AsSpan(start + 1), prior, (int)stride, run, rowBytes, bpp);
                     y += run;
                     continue;
                 }
@@ -181,37 +181,20 @@ internal static class PngFrameInflater
                 for (; i < rowBytes; i++) Unsafe.Add(ref x, i) += Unsafe.Add(ref b, i);
                 return true;
             }
-            case 1 or 3 or 4 when bpp == 1:
+            case 1 when bpp > 1:
+            {
+                // Sub's chain is one add a pixel: a row alone keeps up with the four-row vector here.
+                var keep = bpp == 4 ? Vector128.Create(0xFFFFFFFFu, 0, 0, 0).AsByte() : Vector128.Create(0x00FFFFFFu, 0, 0, 0).AsByte();
+                var a = Vector128<byte>.Zero;
+                for (int i = 0; i < rowBytes; i += bpp)
+                {
+                    a = Vector128.CreateScalar(Read4(ref x, i)).AsByte() + (a & keep);
+                    StorePixel(ref x, i, a.AsUInt32().ToScalar(), bpp);
+                }
+                return true;
+            }
+            case 1 or 3 or 4:
                 UnfilterScalar(filter, row.Slice(0, rowBytes), prior.Slice(0, rowBytes), bpp);
-                return true;
-            case 1:
-            {
-                var keep = Keep(bpp);
-                var a = Vector128<byte>.Zero;
-                for (int i = 0; i < rowBytes; i += bpp)
-                {
-                    a = Load4(ref x, i) + (a & keep);
-                    StorePixel(ref x, i, a.AsUInt32().ToScalar(), bpp);
-                }
-                return true;
-            }
-            case 3:
-            {
-                var keep = Keep(bpp);
-                var low7 = Vector128.Create((byte)0x7F);
-                var a = Vector128<byte>.Zero;
-                for (int i = 0; i < rowBytes; i += bpp)
-                {
-                    var up = Load4(ref b, i);
-                    // floor((a + b) / 2) without leaving bytes: the shared bits plus half the differing ones.
-                    var half = ((a ^ up).AsUInt16() >>> 1).AsByte() & low7;
-                    a = Load4(ref x, i) + (((a & up) + half) & keep);
-                    StorePixel(ref x, i, a.AsUInt32().ToScalar(), bpp);
-                }
-                return true;
-            }
-            case 4:
-                PaethRows(row, prior, 0, 1, rowBytes, bpp);
                 return true;
             default:
                 return false;
@@ -219,15 +202,25 @@ internal static class PngFrameInflater
     }
 
     /// <summary>
-    /// Up to four Paeth rows at once, each one pixel behind the row above it (whose pixels it needs are then done),
-    /// one row to a quarter of a 16-lane vector. Each pixel waits on its left neighbour, so one row alone leaves the
+    /// Up to four rows filtered by Average or Paeth (any mix) at once, each one pixel behind the row above it
+    /// (whose pixels it needs are then done), one row to a quarter of a 16-lane vector. Each pixel waits on its left neighbour, so one row alone leaves the
     /// core idle between dependent steps; four independent rows fill it. Lanes of a row not started or already
     /// finished see zeros and are not stored; the fourth byte of a three-byte pixel is zeroed on load, so its lane
     /// stays zero, and is not stored.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static void PaethRows(Span<byte> rows, ReadOnlySpan<byte> prior, int stride, int count, int rowBytes, int bpp)
+    private static void PixelFilterRows(Span<byte> rows, ReadOnlySpan<byte> prior, int stride, int count, int rowBytes, int bpp)
     {
+        // Per row, which predictor its lanes take.
+        Span<long> mean = stackalloc long[4], paeth = stackalloc long[4];
+        for (int j = 0; j < count; j++)
+        {
+            byte filter = Unsafe.Add(ref MemoryMarshal.GetReference(rows), j * stride - 1);
+            mean[j] = filter == 3 ? -1 : 0;
+            paeth[j] = filter == 4 ? -1 : 0;
+        }
+        var isMean = Vector256.Create(mean[0], mean[1], mean[2], mean[3]).AsInt16();
+        var isPaeth = Vector256.Create(paeth[0], paeth[1], paeth[2], paeth[3]).AsInt16();
         ref byte x = ref MemoryMarshal.GetReference(rows);
         ref byte p = ref MemoryMarshal.GetReference(prior);
         uint pixel = bpp == 4 ? 0xFFFFFFFFu : 0x00FFFFFFu;
@@ -271,7 +264,8 @@ internal static class PngFrameInflater
             var smallest = Vector256.Min(pa, Vector256.Min(pb, pc));
             // The specification's order on ties: a, then b, then c.
             var nearest = Vector256.ConditionalSelect(Vector256.Equals(smallest, pa), a, Vector256.ConditionalSelect(Vector256.Equals(smallest, pb), b, c));
-            a = (r + nearest) & low;
+            var predicted = (isPaeth & nearest) | (isMean & ((a + b) >>> 1));
+            a = (r + predicted) & low;
             c = b;
             var words = Vector128.Narrow(a.GetLower().AsUInt16(), a.GetUpper().AsUInt16()).AsUInt32();
             if (count == 4 && k >= 3 && k < n)
@@ -291,13 +285,6 @@ internal static class PngFrameInflater
 
     [MethodImpl(MethodImplOptions.AggressiveInlining)]
     private static uint Read4(ref byte at, int i) => Unsafe.ReadUnaligned<uint>(ref Unsafe.Add(ref at, i));
-
-    /// <summary>The lanes that belong to one pixel: three or four bytes.</summary>
-    private static Vector128<byte> Keep(int bpp) =>
-        bpp == 4 ? Vector128.Create(0xFFFFFFFFu, 0, 0, 0).AsByte() : Vector128.Create(0x00FFFFFFu, 0, 0, 0).AsByte();
-
-    [MethodImpl(MethodImplOptions.AggressiveInlining)]
-    private static Vector128<byte> Load4(ref byte at, int i) => Vector128.CreateScalar(Unsafe.ReadUnaligned<uint>(ref Unsafe.Add(ref at, i))).AsByte();
 
     /// <summary>
     /// A pixel's own bytes only: a four-byte store of a three-byte pixel would overlap the next pixel's load, which
