@@ -69,7 +69,7 @@ internal static class PngFrameInflater
         int total = (int)(stride * height);
 
         byte[] compressed = ArrayPool<byte>.Shared.Rent(idatBytes);
-        // Slack after the rows: the pixel-at-a-time filters read and write four bytes for a three-byte pixel.
+        // Slack after the rows: a three-byte pixel is read as four bytes.
         byte[] rows = ArrayPool<byte>.Shared.Rent(total + 16);
         byte[] zeros = ArrayPool<byte>.Shared.Rent((int)stride + 16);
         Image<Rgb24>? image = null;
@@ -202,11 +202,11 @@ internal static class PngFrameInflater
     }
 
     /// <summary>
-    /// Up to four rows filtered by Average or Paeth (any mix) at once, each one pixel behind the row above it
-    /// (whose pixels it needs are then done), one row to a quarter of a 16-lane vector. Each pixel waits on its left neighbour, so one row alone leaves the
-    /// core idle between dependent steps; four independent rows fill it. Lanes of a row not started or already
-    /// finished see zeros and are not stored; the fourth byte of a three-byte pixel is zeroed on load, so its lane
-    /// stays zero, and is not stored.
+    /// Up to four rows filtered by Average or Paeth (any mix) at once, each one pixel behind the row above it (whose
+    /// pixels it needs are then done), one row to a quarter of a 16-lane vector. Each pixel waits on its left
+    /// neighbour, so one row alone leaves the core idle between dependent steps; four independent rows fill it.
+    /// Lanes of a row not started or already finished see zeros and are not stored; the fourth byte of a three-byte
+    /// pixel is zeroed on load, so its lane stays zero, and is not stored.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void PixelFilterRows(Span<byte> rows, ReadOnlySpan<byte> prior, int stride, int count, int rowBytes, int bpp)
