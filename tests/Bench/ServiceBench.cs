@@ -25,8 +25,11 @@ public static class ServiceBench
             BundledDemo.Extract(Path.Combine(models, "demo"), Path.Combine(root, "frames"));
             var frames = Enumerable.Range(0, 4).Select(i => DemoPng.Encode(new ApronSceneGenerator(1024, 512).Render(70 + i))).ToArray();
 
-            // In process: decode + the whole frame path, as the endpoint does, without HTTP.
-            using var bundle = LocalModel.Open(Path.Combine(models, "demo"));
+            // In process: decode + the whole frame path, as the endpoint does, without HTTP, with the service's own
+            // network setting (the CPU budget's intra-op threads, memory pattern off): otherwise the comparison
+            // measures a thread setting, not HTTP.
+            using var bundle = LocalModel.Open(Path.Combine(models, "demo"),
+                new ParallelSettings { IntraOpThreads = CpuBudget.Current.IntraOpThreads, MemoryPattern = false });
             var decoder = new FrameDecoder();
             int next = 0;
             double InProcess() => Measure.MedianMs(runs, () =>
