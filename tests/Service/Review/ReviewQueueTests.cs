@@ -252,7 +252,14 @@ public sealed class ReviewQueueTests(BrowserFixture browser, ReviewQueueTests.Sh
         await page.Keyboard.PressAsync("ArrowDown");
         await page.Keyboard.PressAsync("PageDown");
         await Expect(page.Locator("#frame-title")).ToHaveTextAsync(title);
-        Assert.True(await list.EvaluateAsync<double>("b => b.scrollTop") > 0, "the arrow keys did not scroll the focused region list");
+        // The browser scrolls a key press over a few frames: wait for it (up to 5 s) instead of reading it at once.
+        bool scrolled = false;
+        for (int i = 0; i < 50 && !scrolled; i++)
+        {
+            scrolled = await list.EvaluateAsync<double>("b => b.scrollTop") > 0;
+            if (!scrolled) await Task.Delay(100);
+        }
+        Assert.True(scrolled, "the arrow keys did not scroll the focused region list");
 
         // A click on a row focuses the list too, but the arrows keep their page meaning: the next frame.
         await page.Locator("#region-table tbody tr").Nth(1).ClickAsync();
