@@ -107,17 +107,22 @@ public sealed class FrameDecoder
         if (format.Name == "PNG" && memory.TryGetBuffer(out var pngBytes))
         {
             Image<Rgb24>? fast;
+            bool rowsMissing = false;
             try
             {
                 long limit = _options.AllocationLimitMegabytes * 1024L * 1024;
-                fast = PngFrameInflater.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit)
-                    ?? PngFastDecoder.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit);
+                fast = PngFrameInflater.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit, out rowsMissing);
+                if (fast is null && !rowsMissing)
+                    fast = PngFastDecoder.TryDecode(pngBytes.AsSpan((int)start), _configuration, limit);
             }
             catch (Exception e) when (IsDecodeFailure(e))
             {
                 throw Map(e, source);
             }
             if (fast is not null) return new DecodedFrame(fast, format.Name);
+            if (rowsMissing)
+                throw new FrameException(FrameErrorCodes.Corrupt,
+                    $"{source} is a truncated or damaged PNG: its image data ends before the last row.");
         }
         Image<Rgb24> image;
         try

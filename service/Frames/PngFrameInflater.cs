@@ -23,8 +23,15 @@ internal static class PngFrameInflater
     private static ReadOnlySpan<byte> Signature => [0x89, (byte)'P', (byte)'N', (byte)'G', 0x0D, 0x0A, 0x1A, 0x0A];
 
     /// <param name="limitBytes">The decoder's allocation cap, applied as <see cref="PngFastDecoder"/> applies it.</param>
-    public static Image<Rgb24>? TryDecode(ReadOnlySpan<byte> png, Configuration configuration, long limitBytes = long.MaxValue)
+    public static Image<Rgb24>? TryDecode(ReadOnlySpan<byte> png, Configuration configuration, long limitBytes = long.MaxValue) =>
+        TryDecode(png, configuration, limitBytes, out _);
+
+    /// <param name="rowsMissing">Every chunk whole and its CRC right, but the image data's zlib stream ends before the
+    /// last row: the file was cut inside its data and re-closed. ImageSharp would fill the missing rows and hand out
+    /// a picture the file never held, so the caller refuses the frame instead.</param>
+    public static Image<Rgb24>? TryDecode(ReadOnlySpan<byte> png, Configuration configuration, long limitBytes, out bool rowsMissing)
     {
+        rowsMissing = false;
         if (png.Length < 8 + 25 || !png.StartsWith(Signature)) return null;
         int at = 8, width = 0, height = 0, bpp = 0, idatBytes = 0, idatRuns = 0;
         bool inIdat = false, ended = false;
@@ -84,7 +91,12 @@ internal static class PngFrameInflater
                 if (type.SequenceEqual("IDAT"u8)) { png.Slice(at + 8, length).CopyTo(compressed.AsSpan(filled)); filled += length; }
                 at += 12 + length;
             }
-            if (!Inflate(compressed, idatBytes, rows.AsSpan(0, total))) return null;
+            var inflated = Inflate(compressed, idatBytes, rows.AsSpan(0, total));
+            if (inflated != Inflation.Whole)
+            {
+                rowsMissing = inflated == Inflation.Short;
+                return null;
+            }
 
             zeros.AsSpan().Clear();
             int rowBytes = (int)stride - 1;
@@ -126,22 +138,24 @@ internal static class PngFrameInflater
         }
     }
 
+    private enum Inflation { Whole, Short, Damaged }
+
     /// <summary>Exactly <paramref name="rows"/>.Length bytes from one zlib stream that ends where the IDAT data ends.</summary>
-    private static bool Inflate(byte[] compressed, int length, Span<byte> rows)
+    private static Inflation Inflate(byte[] compressed, int length, Span<byte> rows)
     {
         var source = new TailByByte(compressed, length);
         try
         {
             using var z = new ZLibStream(source, CompressionMode.Decompress, leaveOpen: true);
-            if (z.ReadAtLeast(rows, rows.Length, throwOnEndOfStream: false) != rows.Length) return false;
+            if (z.ReadAtLeast(rows, rows.Length, throwOnEndOfStream: false) != rows.Length) return Inflation.Short;
             Span<byte> beyond = stackalloc byte[1];
-            if (z.Read(beyond) != 0) return false;
+            if (z.Read(beyond) != 0) return Inflation.Damaged;
         }
         catch (InvalidDataException)
         {
-            return false;
+            return Inflation.Damaged;
         }
-        return source.Position == length;
+        return source.Position == length ? Inflation.Whole : Inflation.Damaged;
     }
 
     /// <summary>

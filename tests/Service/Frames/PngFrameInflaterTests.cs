@@ -66,13 +66,19 @@ public class PngFrameInflaterTests
     }
 
     [Fact]
-    public void TruncatedZlibDataStepsAside()
+    public void TruncatedZlibDataInACompleteFileIsRefusedAsCorrupt()
     {
         byte[] png = Encode(40, 20, Content.Random, PngColorType.Rgb, PngFilterMethod.Sub, PngCompressionLevel.DefaultCompression, 4);
         byte[] z = Idat(png);
         byte[] shorter = Rebuild(png, z.AsSpan(0, z.Length / 2).ToArray(), 1 << 20);
         Assert.Null(PngFrameInflater.TryDecode(shorter, Configuration.Default));
-        FrameDecoderAnswersAsBefore(shorter, expectError: false); // ImageSharp fills the missing rows, as before
+        // ImageSharp alone fills the missing rows and answers a picture the file never held: refused instead.
+        using (var filled = Image.Load<Rgb24>(shorter)) Assert.Equal(20, filled.Height);
+        Assert.Null(PngFrameInflater.TryDecode(shorter, Configuration.Default, long.MaxValue, out bool rowsMissing));
+        Assert.True(rowsMissing);
+        var e = Assert.Throws<FrameException>(() => new FrameDecoder().Decode(shorter));
+        Assert.Equal(FrameErrorCodes.Corrupt, e.Code);
+        Assert.Contains("ends before the last row", e.Message);
         // And a file cut short inside IDAT, with no IEND.
         Assert.Null(PngFrameInflater.TryDecode(png.AsSpan(0, png.Length - 40), Configuration.Default));
         FrameDecoderAnswersAsBefore(png.AsSpan(0, png.Length - 40).ToArray(), expectError: true);
